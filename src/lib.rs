@@ -1,0 +1,2 @@
+//! icefold: a latitude-resolved diffusive energy-balance climate model with ice-albedo
+//! feedback.
