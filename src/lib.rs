@@ -1,2 +1,14 @@
 //! icefold: a latitude-resolved diffusive energy-balance climate model with ice-albedo
 //! feedback.
+
+pub mod albedo;
+pub mod config;
+pub mod grid;
+pub mod insolation;
+pub mod linalg;
+pub mod longwave;
+pub mod model;
+pub mod quadrature;
+pub mod transport;
+pub mod integrate;
+pub mod equilibrium;

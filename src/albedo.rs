@@ -1,0 +1,264 @@
+//! Surface albedo as a function of band temperature: the ice-albedo feedback.
+//!
+//! Three forms (DESIGN section 2), one enum variant each:
+//! - `Step`: ice where the surface is colder than `T_freeze`; the band holding the ice edge gets
+//!   the area-weighted mix of ice and ice-free albedo, with the edge found by interpolating T
+//!   linearly between band centres. Absorbed sunlight is then continuous in T and equilibria
+//!   converge at second order in band width.
+//! - `Smooth`: `ice + (ice_free(x) - ice) (1 + tanh((T - T_freeze)/width)) / 2`.
+//! - `Ramp`: ice albedo below `T_freeze - width/2`, ice-free above `T_freeze + width/2`, linear between.
+//!
+//! The ice-free albedo is `a0 + a2 P2(x)` averaged over each band.
+
+use crate::grid::Grid;
+
+/// Which albedo form.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum AlbedoForm {
+    /// Step at the freezing temperature with edge-band mixing.
+    Step,
+    /// `tanh` transition of width `width` (K).
+    Smooth {
+        /// Transition width in K.
+        width: f64,
+    },
+    /// Linear ramp over `width` (K) centred on the freezing temperature.
+    Ramp {
+        /// Ramp width in K.
+        width: f64,
+    },
+}
+
+/// Albedo parameterisation on a grid.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Albedo {
+    /// The form.
+    pub form: AlbedoForm,
+    /// Ice-free albedo by band (dimensionless).
+    pub ice_free: Vec<f64>,
+    /// Ice albedo (dimensionless).
+    pub ice: f64,
+    /// Freezing temperature in K.
+    pub freeze: f64,
+    /// Per band: distance from centre to lower face, and to the lower neighbour's centre
+    /// (0 where there is no neighbour).
+    half_lo: Vec<(f64, f64)>,
+    /// Per band: distance from centre to upper face, and to the upper neighbour's centre.
+    half_hi: Vec<(f64, f64)>,
+}
+
+/// Sub-band geometry of a grid: the two half bands of each band.
+fn half_bands(grid: &Grid) -> (Vec<(f64, f64)>, Vec<(f64, f64)>) {
+    let n = grid.len();
+    let xc = &grid.x_centres;
+    let xf = &grid.x_faces;
+    let lo = (0..n)
+        .map(|i| (xc[i] - xf[i], if i > 0 { xc[i] - xc[i - 1] } else { 0.0 }))
+        .collect();
+    let hi = (0..n)
+        .map(|i| {
+            (
+                xf[i + 1] - xc[i],
+                if i + 1 < n { xc[i + 1] - xc[i] } else { 0.0 },
+            )
+        })
+        .collect();
+    (lo, hi)
+}
+
+/// Cold length (where T < `tf`) of the half band of length `h` that starts at a band centre with
+/// temperature `ti` and points toward a neighbour centre at distance `l` with temperature `tj`
+/// (`l = 0`: no neighbour, T constant). Returns the length and its derivatives by `ti`, `tj`.
+#[inline]
+fn half_cold(ti: f64, tj: f64, h: f64, l: f64, tf: f64) -> (f64, f64, f64) {
+    let cold_i = ti < tf;
+    if l == 0.0 {
+        return (if cold_i { h } else { 0.0 }, 0.0, 0.0);
+    }
+    let te = ti + (tj - ti) * h / l;
+    let cold_e = te < tf;
+    match (cold_i, cold_e) {
+        (true, true) => (h, 0.0, 0.0),
+        (false, false) => (0.0, 0.0, 0.0),
+        _ => {
+            let d = tj - ti;
+            let s = l * (tf - ti) / d;
+            let ds_i = l * (tf - tj) / (d * d);
+            let ds_j = -l * (tf - ti) / (d * d);
+            if cold_i {
+                (s, ds_i, ds_j)
+            } else {
+                (h - s, -ds_i, -ds_j)
+            }
+        }
+    }
+}
+
+/// Cold length of a linear function on an interval of length `len` with end values `va`, `vb`.
+fn linear_cold(va: f64, vb: f64, len: f64, tf: f64) -> f64 {
+    match (va < tf, vb < tf) {
+        (true, true) => len,
+        (false, false) => 0.0,
+        (true, false) => len * (tf - va) / (vb - va),
+        (false, true) => len * (vb - tf) / (vb - va),
+    }
+}
+
+impl Albedo {
+    /// Build from the band ice-free albedo, ice albedo and freezing temperature (K).
+    pub fn new(grid: &Grid, form: AlbedoForm, ice_free: Vec<f64>, ice: f64, freeze: f64) -> Albedo {
+        let (half_lo, half_hi) = half_bands(grid);
+        Albedo {
+            form,
+            ice_free,
+            ice,
+            freeze,
+            half_lo,
+            half_hi,
+        }
+    }
+
+    /// Ice fraction of band `i` (0..1) under the sub-band interpolation rule, with its
+    /// derivatives by `T_{i-1}`, `T_i`, `T_{i+1}` (per K).
+    #[inline]
+    pub fn ice_fraction(&self, temps: &[f64], i: usize) -> (f64, [f64; 3]) {
+        let n = temps.len();
+        let ti = temps[i];
+        let (hl, ll) = self.half_lo[i];
+        let (hh, lh) = self.half_hi[i];
+        let tl = if i > 0 { temps[i - 1] } else { ti };
+        let th = if i + 1 < n { temps[i + 1] } else { ti };
+        let (ml, dl_i, dl_j) = half_cold(ti, tl, hl, ll, self.freeze);
+        let (mh, dh_i, dh_j) = half_cold(ti, th, hh, lh, self.freeze);
+        let w = hl + hh;
+        ((ml + mh) / w, [dl_j / w, (dl_i + dh_i) / w, dh_j / w])
+    }
+
+    /// Albedo of every band, written into `out`.
+    pub fn evaluate(&self, temps: &[f64], out: &mut [f64]) {
+        for i in 0..temps.len() {
+            out[i] = self.band(temps, i).0;
+        }
+    }
+
+    /// Albedo of band `i` and its derivatives by `T_{i-1}`, `T_i`, `T_{i+1}` (per K).
+    #[inline]
+    pub fn band(&self, temps: &[f64], i: usize) -> (f64, [f64; 3]) {
+        let af = self.ice_free[i];
+        let ai = self.ice;
+        let t = temps[i];
+        match self.form {
+            AlbedoForm::Step => {
+                let (f, df) = self.ice_fraction(temps, i);
+                let d = ai - af;
+                (af + f * d, [d * df[0], d * df[1], d * df[2]])
+            }
+            AlbedoForm::Smooth { width } => {
+                let th = ((t - self.freeze) / width).tanh();
+                let a = ai + (af - ai) * 0.5 * (1.0 + th);
+                (a, [0.0, (af - ai) * 0.5 * (1.0 - th * th) / width, 0.0])
+            }
+            AlbedoForm::Ramp { width } => {
+                let lo = self.freeze - 0.5 * width;
+                if t <= lo {
+                    (ai, [0.0; 3])
+                } else if t >= lo + width {
+                    (af, [0.0; 3])
+                } else {
+                    let s = (af - ai) / width;
+                    (ai + s * (t - lo), [0.0, s, 0.0])
+                }
+            }
+        }
+    }
+
+    /// Ice measure (length in x where the interpolated T is below freezing) inside `[lo, hi]`.
+    /// Used for the ice-edge diagnostics with every albedo form.
+    pub fn ice_measure_in(&self, grid: &Grid, temps: &[f64], lo: f64, hi: f64) -> f64 {
+        let n = temps.len();
+        let tf = self.freeze;
+        let mut total = 0.0;
+        for i in 0..n {
+            let xc = grid.x_centres[i];
+            // The two half bands as (start x, end x, T at start, slope).
+            let slope_lo = if i > 0 {
+                (temps[i] - temps[i - 1]) / (xc - grid.x_centres[i - 1])
+            } else {
+                0.0
+            };
+            let slope_hi = if i + 1 < n {
+                (temps[i + 1] - temps[i]) / (grid.x_centres[i + 1] - xc)
+            } else {
+                0.0
+            };
+            for (a, b, slope) in [
+                (grid.x_faces[i], xc, slope_lo),
+                (xc, grid.x_faces[i + 1], slope_hi),
+            ] {
+                let (p, q) = (a.max(lo), b.min(hi));
+                if q > p {
+                    let at = |x: f64| temps[i] + slope * (x - xc);
+                    total += linear_cold(at(p), at(q), q - p, tf);
+                }
+            }
+        }
+        total
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::grid::{Domain, Spacing};
+    use approx::assert_relative_eq;
+
+    fn profile(grid: &Grid, warm: f64, drop: f64) -> Vec<f64> {
+        grid.x_centres.iter().map(|x| warm - drop * x * x).collect()
+    }
+
+    #[test]
+    fn step_ice_measure_matches_the_interpolated_edge() {
+        // Common practice: with T linear between centres, the ice measure of a monotone profile
+        // is the distance from the interpolated freezing point to the pole.
+        let g = Grid::new(Domain::Hemisphere, Spacing::EqualArea, 10);
+        let t = profile(&g, 300.0, 60.0);
+        let alb = Albedo::new(&g, AlbedoForm::Step, vec![0.3; 10], 0.6, 263.0);
+        let fr: f64 = (0..10).map(|i| alb.ice_fraction(&t, i).0 * g.dx[i]).sum();
+        // Find the crossing between centres.
+        let k = (0..9).find(|&k| t[k] >= 263.0 && t[k + 1] < 263.0).unwrap();
+        let xs = g.x_centres[k]
+            + (263.0 - t[k]) / (t[k + 1] - t[k]) * (g.x_centres[k + 1] - g.x_centres[k]);
+        assert_relative_eq!(fr, 1.0 - xs, epsilon = 1e-13);
+        assert_relative_eq!(alb.ice_measure_in(&g, &t, 0.0, 1.0), 1.0 - xs, epsilon = 1e-13);
+    }
+
+    #[test]
+    fn albedo_derivatives_match_finite_differences() {
+        // Property test against central differences (common practice); step 1e-6 K gives
+        // truncation ~1e-12 and round-off ~1e-10 on O(1) albedo.
+        let g = Grid::new(Domain::Globe, Spacing::EqualAngle, 12);
+        for form in [
+            AlbedoForm::Step,
+            AlbedoForm::Smooth { width: 3.0 },
+            AlbedoForm::Ramp { width: 8.0 },
+        ] {
+            let t: Vec<f64> = g.x_centres.iter().map(|x| 290.0 - 40.0 * x * x + 3.0 * x).collect();
+            let alb = Albedo::new(&g, form, vec![0.3; 12], 0.62, 263.15);
+            for i in 0..12 {
+                let (_, d) = alb.band(&t, i);
+                for (k, j) in [(0usize, i as isize - 1), (1, i as isize), (2, i as isize + 1)] {
+                    if j < 0 || j >= 12 {
+                        continue;
+                    }
+                    let h = 1e-6;
+                    let mut tp = t.clone();
+                    tp[j as usize] += h;
+                    let mut tm = t.clone();
+                    tm[j as usize] -= h;
+                    let fd = (alb.band(&tp, i).0 - alb.band(&tm, i).0) / (2.0 * h);
+                    assert!((fd - d[k]).abs() < 1e-7, "{form:?} band {i} k {k}: {fd} vs {}", d[k]);
+                }
+            }
+        }
+    }
+}

@@ -1,0 +1,245 @@
+//! Configuration: TOML text plus `--set` overrides, parsed into raw serde structs (unknown keys
+//! rejected) and validated into typed specs.
+//!
+//! Two stages (see DEVELOPERS.md): `raw` holds values as written; `validate` checks ranges and
+//! builds `spec`. Every error names the file and the dotted key (or line) and what is allowed.
+
+pub mod raw;
+pub mod spec;
+mod table;
+mod validate;
+
+use std::path::{Path, PathBuf};
+
+pub use raw::RawConfig;
+pub use spec::Spec;
+
+/// A configuration error; all are "bad input" (exit status 2).
+#[derive(Debug, thiserror::Error)]
+pub enum ConfigError {
+    /// The file could not be read.
+    #[error("cannot read config file {path}: {source}")]
+    Read {
+        /// The file.
+        path: PathBuf,
+        /// Why.
+        source: std::io::Error,
+    },
+    /// TOML syntax error (the message carries line and column).
+    #[error("{path}: TOML syntax error: {message}")]
+    Syntax {
+        /// The file.
+        path: String,
+        /// Parser message with line and column.
+        message: String,
+    },
+    /// Unknown key or wrong type.
+    #[error("{path}: key `{key}`: {message}")]
+    Key {
+        /// The file.
+        path: String,
+        /// Dotted key.
+        key: String,
+        /// What is wrong.
+        message: String,
+    },
+    /// A value out of its allowed range.
+    #[error("{path}: key `{key}` = {value}: {allowed}")]
+    Range {
+        /// The file.
+        path: String,
+        /// Dotted key.
+        key: String,
+        /// The value as written.
+        value: String,
+        /// The allowed values.
+        allowed: String,
+    },
+    /// A malformed `--set` argument.
+    #[error("--set {arg}: {message}")]
+    Set {
+        /// The argument.
+        arg: String,
+        /// What is wrong.
+        message: String,
+    },
+    /// A data file referenced by the config (OLR table) is bad.
+    #[error("{path}: {message}")]
+    DataFile {
+        /// The file (with `:line` when known).
+        path: String,
+        /// What is wrong.
+        message: String,
+    },
+}
+
+/// A loaded configuration: the resolved raw values (every default filled in), the typed spec,
+/// and the resolved TOML text.
+#[derive(Debug, Clone)]
+pub struct Loaded {
+    /// Where it came from (for messages).
+    pub source: String,
+    /// Directory relative paths in the config are resolved against.
+    pub base_dir: PathBuf,
+    /// The resolved TOML tree (defaults filled), the base for `with_value`.
+    pub resolved: toml::Value,
+    /// Typed spec.
+    pub spec: Spec,
+}
+
+impl Loaded {
+    /// The resolved configuration as TOML text.
+    pub fn resolved_text(&self) -> String {
+        toml::to_string_pretty(&self.resolved).unwrap_or_default()
+    }
+
+    /// A copy with one dotted numeric key set to `value`, re-validated (used by sweeps and
+    /// continuation to vary any numeric key).
+    pub fn with_value(&self, key: &str, value: f64) -> Result<Loaded, ConfigError> {
+        let mut tree = self.resolved.clone();
+        set_dotted(&mut tree, key, toml::Value::Float(value)).map_err(|m| ConfigError::Key {
+            path: self.source.clone(),
+            key: key.to_string(),
+            message: m,
+        })?;
+        from_tree(tree, &self.source, &self.base_dir)
+    }
+
+    /// The value of a numeric dotted key in the resolved configuration.
+    pub fn number(&self, key: &str) -> Option<f64> {
+        let mut v = &self.resolved;
+        for part in key.split('.') {
+            v = v.get(part)?;
+        }
+        v.as_float().or_else(|| v.as_integer().map(|i| i as f64))
+    }
+}
+
+/// Load a config file and apply `--set KEY=VALUE` overrides.
+pub fn load(path: &Path, sets: &[String]) -> Result<Loaded, ConfigError> {
+    let text = std::fs::read_to_string(path).map_err(|source| ConfigError::Read {
+        path: path.to_path_buf(),
+        source,
+    })?;
+    let base = path.parent().map(Path::to_path_buf).unwrap_or_default();
+    load_str(&text, &path.display().to_string(), &base, sets)
+}
+
+/// Load from TOML text (`source` names it in messages).
+pub fn load_str(text: &str, source: &str, base_dir: &Path, sets: &[String]) -> Result<Loaded, ConfigError> {
+    let mut tree: toml::Value = toml::from_str(text).map_err(|e| ConfigError::Syntax {
+        path: source.to_string(),
+        message: e.message().to_string()
+            + &e
+                .span()
+                .map(|s| format!(" (at line {})", line_of(text, s.start)))
+                .unwrap_or_default(),
+    })?;
+    for arg in sets {
+        let (key, value) = parse_set(arg)?;
+        set_dotted(&mut tree, &key, value).map_err(|message| ConfigError::Set {
+            arg: arg.clone(),
+            message,
+        })?;
+    }
+    from_tree(tree, source, base_dir)
+}
+
+fn line_of(text: &str, offset: usize) -> usize {
+    text[..offset.min(text.len())].matches('\n').count() + 1
+}
+
+/// Deserialise a TOML tree into raw structs and validate.
+fn from_tree(mut tree: toml::Value, source: &str, base_dir: &Path) -> Result<Loaded, ConfigError> {
+    floats_except_integer_keys(&mut tree, "");
+    let raw: RawConfig = serde_path_to_error::deserialize(tree).map_err(|e| {
+        let key = e.path().to_string();
+        ConfigError::Key {
+            path: source.to_string(),
+            key: if key == "." { "(top level)".into() } else { key },
+            message: e.into_inner().message().to_string(),
+        }
+    })?;
+    let (resolved_raw, spec) = validate::validate(raw, source, base_dir)?;
+    let resolved = toml::Value::try_from(&resolved_raw).map_err(|e| ConfigError::Key {
+        path: source.to_string(),
+        key: "(resolved)".into(),
+        message: e.to_string(),
+    })?;
+    Ok(Loaded {
+        source: source.to_string(),
+        base_dir: base_dir.to_path_buf(),
+        resolved,
+        spec,
+    })
+}
+
+/// Integers become floats except at integer keys, so `solar_constant = 1361` reads as written.
+fn floats_except_integer_keys(v: &mut toml::Value, prefix: &str) {
+    match v {
+        toml::Value::Table(t) => {
+            for (k, child) in t.iter_mut() {
+                let key = if prefix.is_empty() { k.clone() } else { format!("{prefix}.{k}") };
+                if let toml::Value::Integer(i) = child {
+                    if !raw::INTEGER_KEYS.contains(&key.as_str()) {
+                        *child = toml::Value::Float(*i as f64);
+                    }
+                } else {
+                    floats_except_integer_keys(child, &key);
+                }
+            }
+        }
+        toml::Value::Array(a) => {
+            for child in a.iter_mut() {
+                if let toml::Value::Integer(i) = child {
+                    *child = toml::Value::Float(*i as f64);
+                } else {
+                    floats_except_integer_keys(child, prefix);
+                }
+            }
+        }
+        _ => {}
+    }
+}
+
+/// Split `KEY=VALUE`; the value is read as a TOML value (number, boolean, quoted string, array)
+/// and otherwise taken as a bare string.
+fn parse_set(arg: &str) -> Result<(String, toml::Value), ConfigError> {
+    let err = |m: &str| ConfigError::Set {
+        arg: arg.to_string(),
+        message: m.to_string(),
+    };
+    let (key, value) = arg
+        .split_once('=')
+        .ok_or_else(|| err("expected KEY=VALUE, e.g. transport.diffusivity=0.5"))?;
+    let key = key.trim();
+    if key.is_empty() || key.split('.').any(|p| p.is_empty() || !p.chars().all(|c| c.is_ascii_alphanumeric() || c == '_')) {
+        return Err(err("the key must be a dotted name like albedo.ice"));
+    }
+    let value = value.trim();
+    let parsed = toml::from_str::<toml::Table>(&format!("v = {value}"))
+        .ok()
+        .and_then(|mut t| t.remove("v"))
+        .unwrap_or_else(|| toml::Value::String(value.to_string()));
+    Ok((key.to_string(), parsed))
+}
+
+/// Set a dotted key in a TOML tree, creating tables on the way; unknown keys are caught later
+/// by the raw structs (which reject them by name).
+fn set_dotted(tree: &mut toml::Value, key: &str, value: toml::Value) -> Result<(), String> {
+    let mut cur = tree;
+    let parts: Vec<&str> = key.split('.').collect();
+    for (k, part) in parts.iter().enumerate() {
+        let table = cur
+            .as_table_mut()
+            .ok_or_else(|| format!("`{}` is not a table", parts[..k].join(".")))?;
+        if k + 1 == parts.len() {
+            table.insert(part.to_string(), value);
+            return Ok(());
+        }
+        cur = table
+            .entry(part.to_string())
+            .or_insert_with(|| toml::Value::Table(toml::Table::new()));
+    }
+    Ok(())
+}

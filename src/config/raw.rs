@@ -1,0 +1,274 @@
+//! Raw configuration as written in TOML: every key optional, unknown keys rejected.
+//!
+//! `validate` turns this into typed specs; `resolve` fills in every default so that the resolved
+//! configuration can be printed (`icefold check`) and stored in output files.
+
+use serde::{Deserialize, Serialize};
+
+/// Integer-valued keys; every other integer written in a config or `--set` is read as a float.
+pub const INTEGER_KEYS: &[&str] = &[
+    "grid.bands",
+    "sweep.steps",
+    "branches.max_points",
+    "ensemble.members",
+    "ensemble.seed",
+    "regimes.rows",
+    "regimes.columns",
+    "equilibrium.max_iterations",
+    "time.max_steps",
+];
+
+/// The whole file.
+#[derive(Debug, Clone, Default, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawConfig {
+    /// Free-text title of the scenario.
+    pub title: Option<String>,
+    /// `[grid]`.
+    #[serde(default)]
+    pub grid: RawGrid,
+    /// `[insolation]`.
+    #[serde(default)]
+    pub insolation: RawInsolation,
+    /// `[albedo]`.
+    #[serde(default)]
+    pub albedo: RawAlbedo,
+    /// `[longwave]`.
+    #[serde(default)]
+    pub longwave: RawLongwave,
+    /// `[greenhouse]`.
+    #[serde(default)]
+    pub greenhouse: RawGreenhouse,
+    /// `[transport]`.
+    #[serde(default)]
+    pub transport: RawTransport,
+    /// `[heat_capacity]`.
+    #[serde(default)]
+    pub heat_capacity: RawHeatCapacity,
+    /// `[initial]`.
+    #[serde(default)]
+    pub initial: RawInitial,
+    /// `[time]`.
+    #[serde(default)]
+    pub time: RawTime,
+    /// `[forcing]`.
+    #[serde(default)]
+    pub forcing: RawForcing,
+    /// `[equilibrium]`.
+    #[serde(default)]
+    pub equilibrium: RawEquilibrium,
+    /// `[sweep]`.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub sweep: Option<RawSweep>,
+    /// `[branches]`.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub branches: Option<RawBranches>,
+}
+
+/// `[grid]`.
+#[derive(Debug, Clone, Default, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawGrid {
+    /// "hemisphere" or "globe".
+    pub domain: Option<String>,
+    /// Number of bands.
+    pub bands: Option<i64>,
+    /// "equal_area" or "equal_angle".
+    pub spacing: Option<String>,
+}
+
+/// `[insolation]`.
+#[derive(Debug, Clone, Default, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawInsolation {
+    /// "legendre", "annual_mean" or "seasonal".
+    pub kind: Option<String>,
+    /// S0, W m-2.
+    pub solar_constant: Option<f64>,
+    /// P2 coefficient (legendre); from the obliquity when absent.
+    pub s2: Option<f64>,
+    /// Obliquity, degrees.
+    pub obliquity_deg: Option<f64>,
+    /// Orbital eccentricity.
+    pub eccentricity: Option<f64>,
+    /// True longitude of perihelion from the northern spring equinox, degrees.
+    pub perihelion_deg: Option<f64>,
+}
+
+/// `[albedo]`.
+#[derive(Debug, Clone, Default, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawAlbedo {
+    /// "step", "smooth" or "ramp".
+    pub kind: Option<String>,
+    /// Ice-free albedo, P0 part.
+    pub ice_free: Option<f64>,
+    /// Ice-free albedo, P2 part.
+    pub ice_free_p2: Option<f64>,
+    /// Ice albedo.
+    pub ice: Option<f64>,
+    /// Freezing temperature, degrees C.
+    pub freeze_temperature_c: Option<f64>,
+    /// Transition width (smooth, ramp), K.
+    pub width_k: Option<f64>,
+}
+
+/// `[longwave]`.
+#[derive(Debug, Clone, Default, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawLongwave {
+    /// "linear", "gray_body", "emission_level" or "table".
+    pub kind: Option<String>,
+    /// Linear OLR at 0 C, W m-2.
+    pub a: Option<f64>,
+    /// Linear OLR slope, W m-2 K-1.
+    pub b: Option<f64>,
+    /// Gray-body emissivity.
+    pub emissivity: Option<f64>,
+    /// Lapse rate, K per km.
+    pub lapse_rate_k_per_km: Option<f64>,
+    /// Height of the emitting layer, km.
+    pub emission_height_km: Option<f64>,
+    /// CSV path of an OLR table (relative to the config file).
+    pub table: Option<String>,
+}
+
+/// `[greenhouse]`.
+#[derive(Debug, Clone, Default, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawGreenhouse {
+    /// CO2, ppm.
+    pub co2_ppm: Option<f64>,
+    /// Reference CO2, ppm (no forcing at this value).
+    pub reference_co2_ppm: Option<f64>,
+    /// Forcing per e-folding of CO2, W m-2 (Myhre et al. 1998: 5.35).
+    pub log_coefficient_wm2: Option<f64>,
+}
+
+/// `[transport]`.
+#[derive(Debug, Clone, Default, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawTransport {
+    /// "diffusive" or "relaxation".
+    pub kind: Option<String>,
+    /// D0, W m-2 K-1.
+    pub diffusivity: Option<f64>,
+    /// d2 in `D(x) = D0 (1 + d2 P2(x))`.
+    pub diffusivity_p2: Option<f64>,
+    /// gamma of the relaxation form, W m-2 K-1.
+    pub relaxation_rate: Option<f64>,
+}
+
+/// Land fraction: one value for every band, or one per band.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+#[serde(untagged)]
+pub enum RawLandFraction {
+    /// The same in every band.
+    Uniform(f64),
+    /// One value per band, equator (or south pole) first.
+    PerBand(Vec<f64>),
+}
+
+/// `[heat_capacity]`.
+#[derive(Debug, Clone, Default, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawHeatCapacity {
+    /// J m-2 K-1 (exclusive with `mixed_layer_depth_m`).
+    pub value: Option<f64>,
+    /// Depth of a sea-water mixed layer, m.
+    pub mixed_layer_depth_m: Option<f64>,
+    /// Heat capacity of land, J m-2 K-1.
+    pub land_value: Option<f64>,
+    /// Land fraction.
+    pub land_fraction: Option<RawLandFraction>,
+}
+
+/// `[initial]`.
+#[derive(Debug, Clone, Default, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawInitial {
+    /// Uniform start temperature, degrees C.
+    pub temperature_c: Option<f64>,
+    /// Added `P2(x)` shape, K (negative: colder poles).
+    pub temperature_p2_k: Option<f64>,
+}
+
+/// `[time]`.
+#[derive(Debug, Clone, Default, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawTime {
+    /// Run length, years.
+    pub years: Option<f64>,
+    /// Output cadence, years.
+    pub output_every_years: Option<f64>,
+    /// "implicit", "dopri5" or "dop853".
+    pub method: Option<String>,
+    /// Fixed step for the implicit scheme, days (absent: adaptive).
+    pub step_days: Option<f64>,
+    /// Local error tolerance per step, K.
+    pub tolerance: Option<f64>,
+    /// Longest step of the adaptive schemes, years.
+    pub max_step_years: Option<f64>,
+    /// Whether Dopri5/Dop853 stop on detected stiffness.
+    pub stiffness_check: Option<bool>,
+    /// Step limit of the whole run.
+    pub max_steps: Option<i64>,
+}
+
+/// `[forcing]`: constant additive forcing (time histories come with `file`).
+#[derive(Debug, Clone, Default, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawForcing {
+    /// Constant additive forcing, W m-2.
+    pub constant_wm2: Option<f64>,
+    /// Solar-constant multiplier.
+    pub solar_scale: Option<f64>,
+}
+
+/// `[equilibrium]`.
+#[derive(Debug, Clone, Default, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawEquilibrium {
+    /// Newton residual target, W m-2.
+    pub tolerance_wm2: Option<f64>,
+    /// Newton iteration limit.
+    pub max_iterations: Option<i64>,
+}
+
+/// `[sweep]`.
+#[derive(Debug, Clone, Default, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawSweep {
+    /// Dotted config key that is stepped.
+    pub control: Option<String>,
+    /// First value.
+    pub from: Option<f64>,
+    /// Last value.
+    pub to: Option<f64>,
+    /// Values per direction.
+    pub steps: Option<i64>,
+    /// Settled when the largest |dT/dt| is below this, K per year.
+    pub settle_k_per_year: Option<f64>,
+    /// Longest settling time per step, years.
+    pub settle_max_years: Option<f64>,
+    /// Relative precision of the refined tipping points.
+    pub refine_relative: Option<f64>,
+}
+
+/// `[branches]`.
+#[derive(Debug, Clone, Default, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawBranches {
+    /// Dotted config key that is continued in.
+    pub control: Option<String>,
+    /// Lower end of the range.
+    pub from: Option<f64>,
+    /// Upper end of the range.
+    pub to: Option<f64>,
+    /// Initial arclength step.
+    pub step: Option<f64>,
+    /// Largest arclength step.
+    pub max_step: Option<f64>,
+    /// Point limit per branch.
+    pub max_points: Option<i64>,
+}

@@ -1,0 +1,210 @@
+//! Typed, validated specifications built from the raw configuration. Physics and solvers see
+//! only these (never TOML or flags).
+
+use crate::albedo::AlbedoForm;
+use crate::grid::{Domain, Spacing};
+use crate::longwave::Longwave;
+
+/// Insolation form.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum InsolationForm {
+    /// `S0/4 (1 + s2 P2(x))`.
+    Legendre {
+        /// The P2 coefficient.
+        s2: f64,
+    },
+    /// Exact annual mean from the orbit.
+    AnnualMean,
+    /// Daily mean at the model time.
+    Seasonal,
+}
+
+/// `[insolation]`, validated.
+#[derive(Debug, Clone, PartialEq)]
+pub struct InsolationSpec {
+    /// Form.
+    pub form: InsolationForm,
+    /// S0, W m-2.
+    pub solar_constant: f64,
+    /// Obliquity, radians.
+    pub obliquity: f64,
+    /// Eccentricity.
+    pub eccentricity: f64,
+    /// Longitude of perihelion, radians.
+    pub perihelion: f64,
+}
+
+/// `[albedo]`, validated.
+#[derive(Debug, Clone, PartialEq)]
+pub struct AlbedoSpec {
+    /// Form.
+    pub form: AlbedoForm,
+    /// Ice-free albedo P0 part.
+    pub ice_free: f64,
+    /// Ice-free albedo P2 part.
+    pub ice_free_p2: f64,
+    /// Ice albedo.
+    pub ice: f64,
+    /// Freezing temperature, K.
+    pub freeze_k: f64,
+}
+
+/// `[transport]`, validated.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum TransportSpec {
+    /// `D0 (1 + d2 P2(x))`, W m-2 K-1.
+    Diffusive {
+        /// D0.
+        d0: f64,
+        /// d2.
+        d2: f64,
+    },
+    /// `gamma (T_mean - T)`, W m-2 K-1.
+    Relaxation {
+        /// gamma.
+        rate: f64,
+    },
+}
+
+/// `[heat_capacity]`, validated: ocean value, land value and land fraction by band.
+#[derive(Debug, Clone, PartialEq)]
+pub struct HeatCapacitySpec {
+    /// Ocean (or the only) heat capacity, J m-2 K-1.
+    pub ocean: f64,
+    /// Land heat capacity, J m-2 K-1.
+    pub land: f64,
+    /// Land fraction per band (empty: no land).
+    pub land_fraction: Vec<f64>,
+}
+
+/// Everything that defines the model's equations.
+#[derive(Debug, Clone)]
+pub struct ModelSpec {
+    /// Domain.
+    pub domain: Domain,
+    /// Spacing.
+    pub spacing: Spacing,
+    /// Number of bands.
+    pub bands: usize,
+    /// Insolation.
+    pub insolation: InsolationSpec,
+    /// Albedo.
+    pub albedo: AlbedoSpec,
+    /// OLR.
+    pub longwave: Longwave,
+    /// Greenhouse forcing subtracted from OLR, W m-2.
+    pub greenhouse_wm2: f64,
+    /// Transport.
+    pub transport: TransportSpec,
+    /// Heat capacity.
+    pub heat_capacity: HeatCapacitySpec,
+    /// Constant additive forcing, W m-2.
+    pub extra_wm2: f64,
+    /// Insolation multiplier.
+    pub solar_scale: f64,
+}
+
+/// Time-stepping scheme.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Method {
+    /// Linearly implicit Rosenbrock (ROS2) with tridiagonal solves.
+    Implicit,
+    /// Dormand-Prince 5(4) through `ode_solvers`.
+    Dopri5,
+    /// Dormand-Prince 8(5,3) through `ode_solvers`.
+    Dop853,
+}
+
+/// `[time]`, validated.
+#[derive(Debug, Clone, PartialEq)]
+pub struct TimeSpec {
+    /// Run length, years.
+    pub years: f64,
+    /// Output cadence, years.
+    pub output_every: f64,
+    /// Scheme.
+    pub method: Method,
+    /// Fixed step, years (implicit only); `None`: adaptive.
+    pub fixed_step: Option<f64>,
+    /// Local error tolerance, K.
+    pub tolerance: f64,
+    /// Longest adaptive step, years.
+    pub max_step: f64,
+    /// Stop explicit schemes on detected stiffness.
+    pub stiffness_check: bool,
+    /// Step limit.
+    pub max_steps: u64,
+}
+
+/// `[initial]`, validated.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct InitialSpec {
+    /// Uniform part, K.
+    pub temperature_k: f64,
+    /// P2 part, K.
+    pub p2_k: f64,
+}
+
+/// `[equilibrium]`, validated.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct EquilibriumSpec {
+    /// Newton residual target (largest |G|), W m-2.
+    pub tolerance_wm2: f64,
+    /// Iteration limit.
+    pub max_iterations: usize,
+}
+
+/// `[sweep]`, validated.
+#[derive(Debug, Clone, PartialEq)]
+pub struct SweepSpec {
+    /// Dotted key of the control.
+    pub control: String,
+    /// First value.
+    pub from: f64,
+    /// Last value.
+    pub to: f64,
+    /// Values per direction.
+    pub steps: usize,
+    /// Settle criterion, K per year.
+    pub settle_k_per_year: f64,
+    /// Settle time limit, years.
+    pub settle_max_years: f64,
+    /// Relative precision of refined tipping points.
+    pub refine_relative: f64,
+}
+
+/// `[branches]`, validated.
+#[derive(Debug, Clone, PartialEq)]
+pub struct BranchesSpec {
+    /// Dotted key of the control.
+    pub control: String,
+    /// Lower end.
+    pub from: f64,
+    /// Upper end.
+    pub to: f64,
+    /// Initial arclength step (in the scaled variables).
+    pub step: f64,
+    /// Largest arclength step.
+    pub max_step: f64,
+    /// Point limit per branch.
+    pub max_points: usize,
+}
+
+/// The whole validated configuration.
+#[derive(Debug, Clone)]
+pub struct Spec {
+    /// Title.
+    pub title: String,
+    /// Model equations.
+    pub model: ModelSpec,
+    /// Initial state.
+    pub initial: InitialSpec,
+    /// Time stepping.
+    pub time: TimeSpec,
+    /// Equilibrium solver.
+    pub equilibrium: EquilibriumSpec,
+    /// Sweep, if configured.
+    pub sweep: Option<SweepSpec>,
+    /// Continuation, if configured.
+    pub branches: Option<BranchesSpec>,
+}

@@ -1,0 +1,283 @@
+//! ROS2: a two-stage linearly implicit Rosenbrock-W scheme of order 2, L-stable, with an
+//! embedded first-order error estimate and cubic Hermite dense output.
+//!
+//! With `M = C/yr - gamma h dG/dT` (tridiagonal, plus rank one for relaxation transport):
+//!
+//! ```text
+//! M k1 = G(t, y)
+//! M k2 = G(t + h, y + h k1) - 2 (C/yr) k1
+//! y'   = y + h (3/2 k1 + 1/2 k2),    error = h/2 (k1 + k2),    gamma = 1 + 1/sqrt(2)
+//! ```
+//!
+//! The Jacobian holds transport, the OLR derivative and the albedo derivative (the edge band of
+//! the `step` albedo couples neighbours, still tridiagonal); sunlight and forcing enter through
+//! `G` explicitly. The order holds for any matrix in place of the Jacobian (a W-method), so a
+//! lagged or approximate Jacobian costs accuracy of the error estimate, never the order.
+//!
+//! Reference: Verwer, Spee, Blom and Hundsdorfer (1999, SIAM J. Sci. Comput. 20, 1456-1480).
+
+use super::{check_state, Integrator, SolverError, Stats};
+use crate::linalg::{Tridiag, TridiagLu};
+use crate::model::{Model, Workspace, YEAR_SECONDS};
+
+const GAMMA: f64 = 1.0 + std::f64::consts::FRAC_1_SQRT_2;
+
+/// Step-size policy.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum StepPolicy {
+    /// Fixed step, years.
+    Fixed(f64),
+    /// Adaptive to a local error tolerance (K), with a largest step (years).
+    Adaptive {
+        /// Tolerance, K.
+        tolerance: f64,
+        /// Longest step, years.
+        max_step: f64,
+    },
+}
+
+/// The ROS2 integrator over one model.
+pub struct Ros2<'m> {
+    model: &'m Model,
+    ws: Workspace,
+    policy: StepPolicy,
+    t_end: f64,
+    t0: f64,
+    n_fixed: u64,
+    /// Current step start (years) and state (K), with `f = dT/dt` (K/yr) there.
+    t: f64,
+    y: Vec<f64>,
+    f: Vec<f64>,
+    /// Previous accepted step, for dense output.
+    t_prev: f64,
+    y_prev: Vec<f64>,
+    f_prev: Vec<f64>,
+    h: f64,
+    max_steps: u64,
+    cap: Vec<f64>,
+    jac: Tridiag,
+    mat: Tridiag,
+    lu: TridiagLu,
+    k1: Vec<f64>,
+    k2: Vec<f64>,
+    tmp: Vec<f64>,
+    stats: Stats,
+}
+
+impl<'m> Ros2<'m> {
+    /// Start at `t0` (years) from `y0` (K), integrating at most to `t_end`.
+    pub fn new(model: &'m Model, t0: f64, y0: &[f64], t_end: f64, policy: StepPolicy, max_steps: u64) -> Ros2<'m> {
+        let n = model.len();
+        let mut ws = Workspace::new(n);
+        let cap: Vec<f64> = model.heat_capacity.iter().map(|c| c / YEAR_SECONDS).collect();
+        let mut f = vec![0.0; n];
+        model.heating(t0, y0, &mut ws, &mut f);
+        for (fi, c) in f.iter_mut().zip(&cap) {
+            *fi /= c;
+        }
+        let h = match policy {
+            StepPolicy::Fixed(h) => h,
+            StepPolicy::Adaptive { tolerance, max_step } => {
+                // First step: a change of about sqrt(tolerance) K of the fastest band, clipped
+                // (the controller grows it by up to 5x per step).
+                let fmax = f.iter().fold(0.0_f64, |m, v| m.max(v.abs()));
+                let h0 = if fmax > 0.0 { tolerance.sqrt() / fmax } else { max_step };
+                h0.clamp(1e-9, max_step)
+            }
+        };
+        Ros2 {
+            model,
+            ws,
+            policy,
+            t_end,
+            t0,
+            n_fixed: 0,
+            t: t0,
+            y: y0.to_vec(),
+            f_prev: f.clone(),
+            f,
+            t_prev: t0,
+            y_prev: y0.to_vec(),
+            h,
+            max_steps,
+            cap,
+            jac: Tridiag::zeros(n),
+            mat: Tridiag::zeros(n),
+            lu: TridiagLu::new(n, &model.grid.weights),
+            k1: vec![0.0; n],
+            k2: vec![0.0; n],
+            tmp: vec![0.0; n],
+            stats: Stats::default(),
+        }
+    }
+
+    /// Current step time (years).
+    pub fn time(&self) -> f64 {
+        self.t
+    }
+
+    /// Current state (K) at `time()`.
+    pub fn state(&self) -> &[f64] {
+        &self.y
+    }
+
+    /// Largest |dT/dt| (K per year) at the current state.
+    pub fn max_rate(&self) -> f64 {
+        self.f.iter().fold(0.0, |m, v| m.max(v.abs()))
+    }
+
+    /// One accepted step (retrying with smaller steps on rejection). Returns the step taken.
+    pub fn step(&mut self) -> Result<f64, SolverError> {
+        let model = self.model;
+        let n = self.y.len();
+        if self.stats.steps >= self.max_steps {
+            return Err(SolverError::TooManySteps { t: self.t, limit: self.max_steps });
+        }
+        model.heating_jacobian(self.t, &self.y, &mut self.ws, &mut self.jac);
+        let mut jac_fresh = true;
+        loop {
+            let remaining = self.t_end - self.t;
+            let (h, last) = match self.policy {
+                StepPolicy::Fixed(hf) => {
+                    let next = self.t0 + (self.n_fixed + 1) as f64 * hf;
+                    if next >= self.t_end - 1e-9 * hf {
+                        (remaining, true)
+                    } else {
+                        (next - self.t, false)
+                    }
+                }
+                StepPolicy::Adaptive { .. } => {
+                    if self.h >= remaining * (1.0 - 1e-12) {
+                        (remaining, true)
+                    } else {
+                        (self.h, false)
+                    }
+                }
+            };
+            if !jac_fresh {
+                model.heating_jacobian(self.t, &self.y, &mut self.ws, &mut self.jac);
+                jac_fresh = true;
+            }
+            // M = C/yr - gamma h J.
+            let gh = GAMMA * h;
+            for i in 0..n {
+                self.mat.diag[i] = self.cap[i] - gh * self.jac.diag[i];
+                self.mat.lower[i] = -gh * self.jac.lower[i];
+                self.mat.upper[i] = -gh * self.jac.upper[i];
+            }
+            self.mat.rank_one = self.jac.rank_one.map(|s| -gh * s);
+            let factored = self.lu.factor(&self.mat).is_ok();
+            self.stats.factorisations += 1;
+            let mut err = f64::INFINITY;
+            if factored {
+                // Stage 1: k1 = M^-1 G(t, y) = M^-1 (C/yr) f.
+                for i in 0..n {
+                    self.k1[i] = self.cap[i] * self.f[i];
+                }
+                self.lu.solve(&mut self.k1);
+                // Stage 2.
+                for i in 0..n {
+                    self.tmp[i] = self.y[i] + h * self.k1[i];
+                }
+                model.heating(self.t + h, &self.tmp, &mut self.ws, &mut self.k2);
+                self.stats.rhs_evals += 1;
+                for i in 0..n {
+                    self.k2[i] -= 2.0 * self.cap[i] * self.k1[i];
+                }
+                self.lu.solve(&mut self.k2);
+                err = match self.policy {
+                    StepPolicy::Fixed(_) => 0.0,
+                    StepPolicy::Adaptive { tolerance, .. } => {
+                        let mut e = 0.0_f64;
+                        for i in 0..n {
+                            e = e.max((0.5 * h * (self.k1[i] + self.k2[i])).abs());
+                        }
+                        if e.is_nan() { f64::INFINITY } else { e / tolerance }
+                    }
+                };
+            }
+            if err <= 1.0 {
+                // Accept.
+                std::mem::swap(&mut self.y_prev, &mut self.y);
+                std::mem::swap(&mut self.f_prev, &mut self.f);
+                self.t_prev = self.t;
+                for i in 0..n {
+                    self.y[i] = self.y_prev[i] + h * (1.5 * self.k1[i] + 0.5 * self.k2[i]);
+                }
+                self.t = if last { self.t_end } else { self.t + h };
+                check_state(model, self.t, &self.y)?;
+                model.heating(self.t, &self.y, &mut self.ws, &mut self.f);
+                self.stats.rhs_evals += 1;
+                for (fi, c) in self.f.iter_mut().zip(&self.cap) {
+                    *fi /= c;
+                }
+                self.stats.steps += 1;
+                match self.policy {
+                    StepPolicy::Fixed(_) => self.n_fixed += 1,
+                    StepPolicy::Adaptive { max_step, .. } => {
+                        let fac = if err > 0.0 { (0.9 / err.sqrt()).clamp(0.2, 5.0) } else { 5.0 };
+                        // After a shortened last step keep the controller's own proposal.
+                        if !last {
+                            self.h = (h * fac).min(max_step);
+                        }
+                    }
+                }
+                return Ok(h);
+            }
+            // Reject and retry smaller.
+            self.stats.rejected += 1;
+            let fac = if err.is_finite() { (0.9 / err.sqrt()).clamp(0.1, 0.5) } else { 0.25 };
+            match self.policy {
+                StepPolicy::Fixed(hf) => {
+                    return Err(SolverError::NoConvergence {
+                        what: "the fixed-step implicit scheme".into(),
+                        detail: format!("singular step matrix at model year {:.6} with step {hf} years; use a shorter time.step_days", self.t),
+                    })
+                }
+                StepPolicy::Adaptive { .. } => {
+                    self.h = h * fac;
+                    if self.h < 1e-12 * (1.0 + self.t.abs()) {
+                        return Err(SolverError::StepCollapsed { t: self.t, h: self.h });
+                    }
+                }
+            }
+        }
+    }
+
+    /// Cubic Hermite interpolation of the state at `t` within the last step into `out`.
+    fn interpolate(&self, t: f64, out: &mut [f64]) {
+        let h = self.t - self.t_prev;
+        if h <= 0.0 {
+            out.copy_from_slice(&self.y);
+            return;
+        }
+        let s = ((t - self.t_prev) / h).clamp(0.0, 1.0);
+        let s2 = s * s;
+        let s3 = s2 * s;
+        let h00 = 2.0 * s3 - 3.0 * s2 + 1.0;
+        let h10 = s3 - 2.0 * s2 + s;
+        let h01 = -2.0 * s3 + 3.0 * s2;
+        let h11 = s3 - s2;
+        for i in 0..out.len() {
+            out[i] = h00 * self.y_prev[i] + h10 * h * self.f_prev[i] + h01 * self.y[i] + h11 * h * self.f[i];
+        }
+    }
+}
+
+impl Integrator for Ros2<'_> {
+    fn advance_to(&mut self, t_target: f64, out: &mut [f64]) -> Result<(), SolverError> {
+        while self.t < t_target - 1e-12 * (1.0 + t_target.abs()) {
+            self.step()?;
+        }
+        if (self.t - t_target).abs() <= 1e-12 * (1.0 + t_target.abs()) {
+            out.copy_from_slice(&self.y);
+        } else {
+            self.interpolate(t_target, out);
+        }
+        Ok(())
+    }
+
+    fn stats(&self) -> Stats {
+        self.stats
+    }
+}

@@ -1,0 +1,326 @@
+//! The assembled energy-balance model: grid plus one of each parameterisation.
+//!
+//! `C_i dT_i/dt = G_i(t, T)` with the net heating
+//! `G_i = S_i (1 - albedo_i(T)) - [OLR(T_i) - F_co2] + L_i(T) + F(t)` in W m-2
+//! (DESIGN section 2; docs/discrete-model.md has the exact discrete equations). This is the only
+//! module that knows every piece; it does no I/O.
+
+use crate::albedo::Albedo;
+use crate::grid::Grid;
+use crate::insolation::{self, ClusteredRuleCache};
+use crate::linalg::Tridiag;
+use crate::longwave::Longwave;
+use crate::transport::Transport;
+
+/// Seconds in a model year (365.25 days).
+pub const YEAR_SECONDS: f64 = 365.25 * 86400.0;
+
+/// Where the insolation comes from.
+#[derive(Debug, Clone)]
+pub enum Sunlight {
+    /// Fixed in time: band means in W m-2 for `solar_scale = 1`.
+    Fixed(Vec<f64>),
+    /// Daily mean at the model time (seasonal cycle).
+    Seasonal {
+        /// Solar constant, W m-2.
+        s0: f64,
+        /// Obliquity, radians.
+        obliquity: f64,
+        /// Eccentricity.
+        eccentricity: f64,
+        /// True longitude of perihelion from the northern spring equinox, radians.
+        perihelion: f64,
+        /// Quadrature rule for the band means.
+        rule: ClusteredRuleCache,
+    },
+}
+
+/// Time-dependent drivers at one instant.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Drivers {
+    /// Multiplies the insolation (1 = as configured).
+    pub solar_scale: f64,
+    /// Greenhouse forcing subtracted from OLR, W m-2.
+    pub greenhouse_wm2: f64,
+    /// Additive forcing, W m-2.
+    pub extra_wm2: f64,
+}
+
+/// Supplies the drivers at a model time (years). The constant case is `Drivers` itself.
+pub trait DriverSource: Send + Sync + std::fmt::Debug {
+    /// Drivers at `t_years`.
+    fn at(&self, t_years: f64) -> Drivers;
+}
+
+/// The model.
+#[derive(Debug, Clone)]
+pub struct Model {
+    /// Latitude grid.
+    pub grid: Grid,
+    /// Insolation source.
+    pub sunlight: Sunlight,
+    /// Albedo.
+    pub albedo: Albedo,
+    /// Outgoing longwave.
+    pub longwave: Longwave,
+    /// Transport.
+    pub transport: Transport,
+    /// Heat capacity by band, J m-2 K-1.
+    pub heat_capacity: Vec<f64>,
+    /// Constant drivers (used when `forcing` is `None`).
+    pub drivers: Drivers,
+    /// Time-varying drivers, if any.
+    pub forcing: Option<std::sync::Arc<dyn DriverSource>>,
+}
+
+/// Scratch space for one model evaluation thread (no allocation in the hot loop).
+#[derive(Debug, Clone)]
+pub struct Workspace {
+    /// Insolation at `sun_time`, W m-2 (used by the seasonal source).
+    pub sun: Vec<f64>,
+    sun_time: f64,
+    /// Transport convergence scratch, W m-2.
+    pub conv: Vec<f64>,
+}
+
+impl Workspace {
+    /// Scratch for a model with `n` bands.
+    pub fn new(n: usize) -> Workspace {
+        Workspace {
+            sun: vec![0.0; n],
+            sun_time: f64::NAN,
+            conv: vec![0.0; n],
+        }
+    }
+}
+
+/// Net heating split into its parts, W m-2 per band.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Budget {
+    /// Absorbed sunlight.
+    pub absorbed: Vec<f64>,
+    /// OLR net of the greenhouse forcing.
+    pub olr: Vec<f64>,
+    /// Transport convergence.
+    pub transport: Vec<f64>,
+    /// Additive forcing (same in every band).
+    pub extra: f64,
+}
+
+impl Model {
+    /// Number of bands.
+    pub fn len(&self) -> usize {
+        self.grid.len()
+    }
+
+    /// Always false (a grid has at least one band).
+    pub fn is_empty(&self) -> bool {
+        self.grid.is_empty()
+    }
+
+    /// Drivers at a model time.
+    #[inline]
+    pub fn drivers_at(&self, t_years: f64) -> Drivers {
+        match &self.forcing {
+            Some(f) => f.at(t_years),
+            None => self.drivers,
+        }
+    }
+
+    /// Insolation (W m-2, before `solar_scale`) at a model time, cached in `ws`.
+    #[inline]
+    fn refresh_sun(&self, t_years: f64, ws: &mut Workspace) {
+        if let Sunlight::Seasonal {
+            s0,
+            obliquity,
+            eccentricity,
+            perihelion,
+            rule,
+        } = &self.sunlight
+        {
+            if ws.sun_time != t_years {
+                let at = insolation::orbit_at(t_years, *obliquity, *eccentricity, *perihelion);
+                insolation::daily_mean_bands(&self.grid, rule.rule(), *s0, at, &mut ws.sun);
+                ws.sun_time = t_years;
+            }
+        }
+    }
+
+    #[inline]
+    fn sun<'a>(&'a self, ws: &'a Workspace) -> &'a [f64] {
+        match &self.sunlight {
+            Sunlight::Fixed(s) => s,
+            Sunlight::Seasonal { .. } => &ws.sun,
+        }
+    }
+
+    /// Net heating `G(t, T)` in W m-2 into `out`.
+    pub fn heating(&self, t_years: f64, temps: &[f64], ws: &mut Workspace, out: &mut [f64]) {
+        self.refresh_sun(t_years, ws);
+        let d = self.drivers_at(t_years);
+        let mut conv = std::mem::take(&mut ws.conv);
+        self.transport.convergence(&self.grid, temps, &mut conv);
+        let sun = self.sun(ws);
+        for i in 0..temps.len() {
+            let (alb, _) = self.albedo.band(temps, i);
+            let (olr, _) = self.longwave.eval(temps[i]);
+            out[i] = d.solar_scale * sun[i] * (1.0 - alb) - (olr - d.greenhouse_wm2)
+                + conv[i]
+                + d.extra_wm2;
+        }
+        ws.conv = conv;
+    }
+
+    /// `dT/dt` in K per year into `out`.
+    pub fn tendency(&self, t_years: f64, temps: &[f64], ws: &mut Workspace, out: &mut [f64]) {
+        self.heating(t_years, temps, ws, out);
+        for (o, c) in out.iter_mut().zip(&self.heat_capacity) {
+            *o *= YEAR_SECONDS / c;
+        }
+    }
+
+    /// Jacobian of the net heating, `dG_i/dT_j` in W m-2 K-1, into `jac` (overwritten).
+    pub fn heating_jacobian(&self, t_years: f64, temps: &[f64], ws: &mut Workspace, jac: &mut Tridiag) {
+        self.refresh_sun(t_years, ws);
+        let d = self.drivers_at(t_years);
+        jac.lower.iter_mut().for_each(|v| *v = 0.0);
+        jac.upper.iter_mut().for_each(|v| *v = 0.0);
+        jac.rank_one = None;
+        let sun = self.sun(ws);
+        let n = temps.len();
+        for i in 0..n {
+            let (_, da) = self.albedo.band(temps, i);
+            let (_, dolr) = self.longwave.eval(temps[i]);
+            let s = d.solar_scale * sun[i];
+            jac.diag[i] = -s * da[1] - dolr;
+            if i > 0 {
+                jac.lower[i] = -s * da[0];
+            }
+            if i + 1 < n {
+                jac.upper[i] = -s * da[2];
+            }
+        }
+        self.transport.add_jacobian(jac);
+    }
+
+    /// The parts of the net heating at a state.
+    pub fn budget(&self, t_years: f64, temps: &[f64], ws: &mut Workspace) -> Budget {
+        self.refresh_sun(t_years, ws);
+        let d = self.drivers_at(t_years);
+        let n = temps.len();
+        let mut transport = vec![0.0; n];
+        self.transport.convergence(&self.grid, temps, &mut transport);
+        let sun = self.sun(ws);
+        let mut absorbed = vec![0.0; n];
+        let mut olr = vec![0.0; n];
+        for i in 0..n {
+            absorbed[i] = d.solar_scale * sun[i] * (1.0 - self.albedo.band(temps, i).0);
+            olr[i] = self.longwave.eval(temps[i]).0 - d.greenhouse_wm2;
+        }
+        Budget {
+            absorbed,
+            olr,
+            transport,
+            extra: d.extra_wm2,
+        }
+    }
+
+    /// Global-mean temperature, K.
+    pub fn global_mean(&self, temps: &[f64]) -> f64 {
+        self.grid.mean(temps)
+    }
+
+    /// Ice-edge latitudes `(north, south)` in degrees north: north is 90 when ice free and 0
+    /// when ice covered; south (globe only) is -90 when ice free and 0 when ice covered.
+    pub fn ice_edges(&self, temps: &[f64]) -> (f64, Option<f64>) {
+        let g = &self.grid;
+        let north = self.albedo.ice_measure_in(g, temps, 0.0, 1.0);
+        let north_lat = (1.0 - north).clamp(0.0, 1.0).asin().to_degrees();
+        let south = match g.domain {
+            crate::grid::Domain::Globe => {
+                let s = self.albedo.ice_measure_in(g, temps, -1.0, 0.0);
+                Some(-(1.0 - s).clamp(0.0, 1.0).asin().to_degrees())
+            }
+            crate::grid::Domain::Hemisphere => None,
+        };
+        (north_lat, south)
+    }
+
+    /// The temperature range (K) in which the model is defined: 1 K to 2000 K, narrowed to an
+    /// OLR table's range.
+    pub fn valid_range(&self) -> (f64, f64) {
+        let (mut lo, mut hi) = (1.0, 2000.0);
+        if let Some((a, b)) = self.longwave.valid_range() {
+            lo = f64::max(lo, a);
+            hi = f64::min(hi, b);
+        }
+        (lo, hi)
+    }
+}
+
+impl Model {
+    /// Assemble the model a validated spec describes.
+    pub fn from_spec(spec: &crate::config::spec::ModelSpec) -> Model {
+        use crate::albedo::Albedo;
+        use crate::config::spec::{InsolationForm, TransportSpec};
+        let grid = Grid::new(spec.domain, spec.spacing, spec.bands);
+        let n = grid.len();
+        let ins = &spec.insolation;
+        let sunlight = match ins.form {
+            InsolationForm::Legendre { s2 } => {
+                let mut s = vec![0.0; n];
+                insolation::legendre_bands(&grid, ins.solar_constant, s2, &mut s);
+                Sunlight::Fixed(s)
+            }
+            InsolationForm::AnnualMean => {
+                let mut s = vec![0.0; n];
+                insolation::annual_mean_bands(&grid, ins.solar_constant, ins.obliquity, ins.eccentricity, &mut s);
+                Sunlight::Fixed(s)
+            }
+            InsolationForm::Seasonal => Sunlight::Seasonal {
+                s0: ins.solar_constant,
+                obliquity: ins.obliquity,
+                eccentricity: ins.eccentricity,
+                perihelion: ins.perihelion,
+                rule: ClusteredRuleCache::new(12),
+            },
+        };
+        let a = &spec.albedo;
+        let ice_free = grid.p2_mean.iter().map(|p| a.ice_free + a.ice_free_p2 * p).collect();
+        let albedo = Albedo::new(&grid, a.form, ice_free, a.ice, a.freeze_k);
+        let transport = match spec.transport {
+            TransportSpec::Diffusive { d0, d2 } => Transport::diffusive(&grid, d0, d2),
+            TransportSpec::Relaxation { rate } => Transport::Relaxation { rate },
+        };
+        let hc = &spec.heat_capacity;
+        let heat_capacity = (0..n)
+            .map(|i| {
+                let f = hc.land_fraction.get(i).copied().unwrap_or(0.0);
+                (1.0 - f) * hc.ocean + f * hc.land
+            })
+            .collect();
+        Model {
+            grid,
+            sunlight,
+            albedo,
+            longwave: spec.longwave.clone(),
+            transport,
+            heat_capacity,
+            drivers: Drivers {
+                solar_scale: spec.solar_scale,
+                greenhouse_wm2: spec.greenhouse_wm2,
+                extra_wm2: spec.extra_wm2,
+            },
+            forcing: None,
+        }
+    }
+
+    /// The initial state a spec describes: uniform plus a P2 shape, K.
+    pub fn initial_state(&self, init: &crate::config::spec::InitialSpec) -> Vec<f64> {
+        self.grid
+            .x_centres
+            .iter()
+            .map(|&x| init.temperature_k + init.p2_k * crate::grid::p2(x))
+            .collect()
+    }
+}
