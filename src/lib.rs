@@ -12,3 +12,8 @@ pub mod quadrature;
 pub mod transport;
 pub mod integrate;
 pub mod equilibrium;
+pub mod cli;
+pub mod error;
+pub mod jobs;
+pub mod output;
+pub mod forcing;

@@ -311,7 +311,15 @@ impl Model {
                 greenhouse_wm2: spec.greenhouse_wm2,
                 extra_wm2: spec.extra_wm2,
             },
-            forcing: None,
+            forcing: spec.forcing.as_ref().map(|series| {
+                let base = Drivers {
+                    solar_scale: spec.solar_scale,
+                    greenhouse_wm2: spec.greenhouse_wm2,
+                    extra_wm2: spec.extra_wm2,
+                };
+                let (co2, reference, k) = spec.co2;
+                std::sync::Arc::new(crate::forcing::SeriesDrivers::new((**series).clone(), base, co2, reference, k)) as _
+            }),
         }
     }
 

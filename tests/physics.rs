@@ -4,7 +4,7 @@
 use icefold::config::{self, Loaded};
 use icefold::equilibrium::{newton, NewtonOptions};
 use icefold::grid::{p2, p4};
-use icefold::integrate::{driver, Integrator};
+use icefold::integrate::driver;
 use icefold::model::{Model, Workspace};
 use std::path::Path;
 

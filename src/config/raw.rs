@@ -223,6 +223,13 @@ pub struct RawForcing {
     pub constant_wm2: Option<f64>,
     /// Solar-constant multiplier.
     pub solar_scale: Option<f64>,
+    /// CSV forcing history (relative to the config file): `year` plus any of `co2_ppm`,
+    /// `solar_scale`, `forcing_wm2`.
+    pub file: Option<String>,
+    /// "linear" or "step" interpolation between rows.
+    pub interpolation: Option<String>,
+    /// Outside the file's years: "error" or "hold" (keep the end values).
+    pub outside: Option<String>,
 }
 
 /// `[equilibrium]`.

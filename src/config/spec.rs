@@ -102,6 +102,10 @@ pub struct ModelSpec {
     pub extra_wm2: f64,
     /// Insolation multiplier.
     pub solar_scale: f64,
+    /// CO2 (ppm), its reference (ppm) and the log coefficient (W m-2).
+    pub co2: (f64, f64, f64),
+    /// Forcing history, if any.
+    pub forcing: Option<std::sync::Arc<crate::forcing::ForcingSeries>>,
 }
 
 /// Time-stepping scheme.

@@ -259,6 +259,12 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
     let f = &mut raw.forcing;
     let extra_wm2 = c.num("forcing.constant_wm2", &mut f.constant_wm2, 0.0, Range::Closed(-1e4, 1e4))?;
     let solar_scale = c.num("forcing.solar_scale", &mut f.solar_scale, 1.0, Range::Closed(0.0, 100.0))?;
+    let interp = match c.choice("forcing.interpolation", &mut f.interpolation, "linear", &["linear", "step"])? {
+        "step" => crate::forcing::Interpolation::Step,
+        _ => crate::forcing::Interpolation::Linear,
+    };
+    let hold = c.choice("forcing.outside", &mut f.outside, "error", &["error", "hold"])? == "hold";
+    let forcing_file = f.file.clone();
 
     // [initial]
     let i = &mut raw.initial;
@@ -292,7 +298,7 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
         }
         None => None,
     };
-    let tolerance = c.num("time.tolerance", &mut tm.tolerance, 1e-3, Range::AboveUpTo(0.0, 100.0))?;
+    let tolerance = c.num("time.tolerance", &mut tm.tolerance, 1e-2, Range::AboveUpTo(0.0, 100.0))?;
     let max_step = c.num("time.max_step_years", &mut tm.max_step_years, years.min(1000.0), Range::Above(0.0))?;
     let stiffness_check = *tm.stiffness_check.get_or_insert(true);
     let max_steps = tm.max_steps.unwrap_or(50_000_000);
@@ -300,6 +306,25 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
         return Err(c.range_err("time.max_steps", max_steps.to_string(), "allowed: a whole number of at least 1".into()));
     }
     tm.max_steps = Some(max_steps);
+    let forcing = match forcing_file {
+        None => None,
+        Some(rel) => {
+            let path = base_dir.join(&rel);
+            let shown = path.display().to_string();
+            let meta = std::fs::metadata(&path).map_err(|e| ConfigError::DataFile { path: shown.clone(), message: format!("cannot read forcing file (forcing.file): {e}") })?;
+            if meta.len() > 2 * 1024 * 1024 * 1024 {
+                return Err(ConfigError::DataFile { path: shown, message: format!("forcing file is {} bytes; the limit is 2 GiB", meta.len()) });
+            }
+            let text = std::fs::read_to_string(&path).map_err(|e| ConfigError::DataFile { path: shown.clone(), message: format!("cannot read forcing file (forcing.file): {e}") })?;
+            let series = crate::forcing::ForcingSeries::parse(&text, interp, hold)
+                .and_then(|s| s.check_covers(years).map(|_| s))
+                .map_err(|e| ConfigError::DataFile {
+                    path: if e.line > 0 { format!("{shown}:{}", e.line) } else { shown.clone() },
+                    message: e.message,
+                })?;
+            Some(std::sync::Arc::new(series))
+        }
+    };
     let time = TimeSpec {
         years,
         output_every,
@@ -383,6 +408,8 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
             heat_capacity,
             extra_wm2,
             solar_scale,
+            co2: (co2, co2_ref, k),
+            forcing,
         },
         initial,
         time,

@@ -1,0 +1,127 @@
+//! Command-line interface: clap definitions and one module per subcommand (DESIGN section 4).
+//! `main.rs` only calls `cli::main` and exits with its status.
+
+mod check;
+
+mod inspect;
+pub mod progress;
+mod run;
+
+use crate::config::{self, Loaded};
+use crate::error::Error;
+use clap::{Parser, Subcommand};
+use std::path::{Path, PathBuf};
+
+/// icefold: an idealised latitude-resolved energy-balance climate model with ice-albedo feedback.
+#[derive(Debug, Parser)]
+#[command(name = "icefold", version, about, long_about = None, propagate_version = true)]
+pub struct Cli {
+    /// What to do.
+    #[command(subcommand)]
+    pub command: Command,
+}
+
+/// Options shared by commands that read a config.
+#[derive(Debug, clap::Args)]
+pub struct ConfigArgs {
+    /// The TOML configuration file.
+    pub config: PathBuf,
+    /// Override a config key, e.g. `--set transport.diffusivity=0.5` (repeatable).
+    #[arg(long = "set", value_name = "KEY=VALUE")]
+    pub sets: Vec<String>,
+}
+
+/// Options shared by commands that write a file.
+#[derive(Debug, clap::Args)]
+pub struct OutputArgs {
+    /// Output file (netCDF-4/HDF5). Default: `<config name>-<command>.nc` here.
+    #[arg(short = 'o', long = "output", value_name = "FILE")]
+    pub output: Option<PathBuf>,
+    /// Replace an existing output file.
+    #[arg(long)]
+    pub overwrite: bool,
+}
+
+/// The subcommands.
+#[derive(Debug, Subcommand)]
+pub enum Command {
+    /// Integrate the model through time and write the trajectory.
+    Run {
+        #[command(flatten)]
+        config: ConfigArgs,
+        #[command(flatten)]
+        output: OutputArgs,
+    },
+    /// Validate a config and print it with every default filled in.
+    Check {
+        #[command(flatten)]
+        config: ConfigArgs,
+    },
+    /// Print a short summary of any icefold output file.
+    Inspect {
+        /// The file.
+        file: PathBuf,
+    },
+    /// Run the built-in demonstration scenario and draw its pictures.
+    Demo {
+        /// Where to write the files.
+        #[arg(long, default_value = "icefold-demo")]
+        out_dir: PathBuf,
+    },
+}
+
+/// Parse the command line, run the command, print any error; returns the exit status.
+pub fn main() -> i32 {
+    let cli = match Cli::try_parse() {
+        Ok(c) => c,
+        Err(e) => {
+            let code = if e.use_stderr() { 2 } else { 0 };
+            let _ = e.print();
+            return code;
+        }
+    };
+    match dispatch(cli) {
+        Ok(()) => 0,
+        Err(e) => {
+            eprintln!("icefold: {e}");
+            e.exit_code()
+        }
+    }
+}
+
+/// The command line as one string, for provenance.
+pub fn command_line() -> String {
+    std::env::args().map(|a| if a.contains(' ') { format!("'{a}'") } else { a }).collect::<Vec<_>>().join(" ")
+}
+
+fn dispatch(cli: Cli) -> Result<(), Error> {
+    match cli.command {
+        Command::Run { config, output } => run::main(&config, &output),
+        Command::Check { config } => check::main(&config),
+        Command::Inspect { file } => inspect::main(&file),
+        Command::Demo { out_dir } => Err(Error::Other(format!("demo not built yet: {}", out_dir.display()))),
+    }
+}
+
+/// Load the config named by the arguments.
+pub fn load(args: &ConfigArgs) -> Result<Loaded, Error> {
+    Ok(config::load(&args.config, &args.sets)?)
+}
+
+/// Decide the output path and refuse to replace an existing file without `--overwrite`.
+pub fn output_path(args: &OutputArgs, config: &Path, command: &str) -> Result<PathBuf, Error> {
+    let path = args.output.clone().unwrap_or_else(|| {
+        let stem = config.file_stem().map(|s| s.to_string_lossy().into_owned()).unwrap_or_else(|| "icefold".into());
+        PathBuf::from(format!("{stem}-{command}.nc"))
+    });
+    if path.exists() && !args.overwrite {
+        return Err(Error::Usage(format!(
+            "output file {} exists; pass --overwrite to replace it (it is kept as it is)",
+            path.display()
+        )));
+    }
+    if path.is_dir() {
+        return Err(Error::Usage(format!("output path {} is a directory; give a file name with -o", path.display())));
+    }
+    Ok(path)
+}

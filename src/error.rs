@@ -1,0 +1,71 @@
+//! The top-level error: one variant per layer, each mapped to a documented exit status
+//! (0 success, 2 bad input, 3 numerical failure, 1 other; 130/143 interrupted by SIGINT/SIGTERM).
+
+use crate::config::ConfigError;
+use crate::integrate::driver::RunError;
+use crate::integrate::SolverError;
+use crate::output::OutputError;
+
+/// Any failure of an icefold command.
+#[derive(Debug, thiserror::Error)]
+pub enum Error {
+    /// Bad configuration (exit 2).
+    #[error("config error: {0}")]
+    Config(#[from] ConfigError),
+    /// Bad command-line use or input file (exit 2).
+    #[error("{0}")]
+    Usage(String),
+    /// Output could not be created where asked (exit 2).
+    #[error("output error: {0}")]
+    OutputPath(OutputError),
+    /// Other output failure (exit 1).
+    #[error("output error: {0}")]
+    Output(OutputError),
+    /// Numerical failure (exit 3).
+    #[error("numerical failure: {0}")]
+    Solver(#[from] SolverError),
+    /// Interrupted by a signal (exit 128 + signal).
+    #[error("interrupted by signal {signal} at model time {reached}")]
+    Interrupted {
+        /// Signal number.
+        signal: i32,
+        /// How far the work got.
+        reached: String,
+    },
+    /// Anything else (exit 1).
+    #[error("{0}")]
+    Other(String),
+}
+
+impl From<OutputError> for Error {
+    fn from(e: OutputError) -> Self {
+        match e {
+            OutputError::NoDirectory { .. } | OutputError::Create { .. } => Error::OutputPath(e),
+            other => Error::Output(other),
+        }
+    }
+}
+
+impl From<RunError> for Error {
+    fn from(e: RunError) -> Self {
+        match e {
+            RunError::Solver(s) => Error::Solver(s),
+            RunError::Output(o) => match o.downcast::<OutputError>() {
+                Ok(oe) => Error::from(*oe),
+                Err(other) => Error::Other(other.to_string()),
+            },
+        }
+    }
+}
+
+impl Error {
+    /// The process exit status for this error.
+    pub fn exit_code(&self) -> i32 {
+        match self {
+            Error::Config(_) | Error::Usage(_) | Error::OutputPath(_) => 2,
+            Error::Solver(_) => 3,
+            Error::Interrupted { signal, .. } => 128 + signal,
+            Error::Output(_) | Error::Other(_) => 1,
+        }
+    }
+}

@@ -1,0 +1,102 @@
+//! Pieces every icefold file shares: provenance attributes and the latitude coordinate.
+
+use super::{Attr, NcWriter};
+use super::OutputError;
+use crate::grid::Grid;
+
+/// Who made a file and from what.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Provenance {
+    /// The resolved configuration, TOML text.
+    pub config_toml: String,
+    /// The command line that made the file.
+    pub command_line: String,
+    /// The scenario title.
+    pub title: String,
+}
+
+/// icefold's version.
+pub const VERSION: &str = env!("CARGO_PKG_VERSION");
+
+/// Current UTC time as ISO 8601 (`YYYY-MM-DDTHH:MM:SSZ`), from the system clock.
+pub fn utc_now() -> String {
+    let secs = std::time::SystemTime::now()
+        .duration_since(std::time::UNIX_EPOCH)
+        .map(|d| d.as_secs() as i64)
+        .unwrap_or(0);
+    let (days, rem) = (secs.div_euclid(86400), secs.rem_euclid(86400));
+    // Civil date from days since 1970-01-01 (Hinnant's algorithm, common practice).
+    let z = days + 719_468;
+    let era = z.div_euclid(146_097);
+    let doe = z - era * 146_097;
+    let yoe = (doe - doe / 1460 + doe / 36_524 - doe / 146_096) / 365;
+    let doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
+    let mp = (5 * doy + 2) / 153;
+    let d = doy - (153 * mp + 2) / 5 + 1;
+    let m = if mp < 10 { mp + 3 } else { mp - 9 };
+    let y = yoe + era * 400 + i64::from(m <= 2);
+    format!("{y:04}-{m:02}-{d:02}T{:02}:{:02}:{:02}Z", rem / 3600, rem % 3600 / 60, rem % 60)
+}
+
+/// Global attributes: CF conventions, provenance, the kind of file, and `complete = 0`
+/// (set to 1 by `mark_complete` when the job finished).
+pub fn write_provenance(w: &mut NcWriter, prov: &Provenance, kind: &str) -> Result<(), OutputError> {
+    let now = utc_now();
+    w.set_attr_str("Conventions", "CF-1.8")?;
+    w.set_attr_str("title", &prov.title)?;
+    w.set_attr_str("institution", "icefold user")?;
+    w.set_attr_str("source", &format!("icefold {VERSION} (idealised energy-balance climate model)"))?;
+    w.set_attr_str("history", &format!("{now}: {}", prov.command_line))?;
+    w.set_attr_str("icefold_version", VERSION)?;
+    w.set_attr_str("icefold_kind", kind)?;
+    w.set_attr_str("creation_time", &now)?;
+    w.set_attr_str("command_line", &prov.command_line)?;
+    w.set_attr_str("config_toml", &prov.config_toml)?;
+    w.set_attr_str("time_units_note", "model time in years of 365.25 days")?;
+    w.set_attr_i64("complete", 0)?;
+    Ok(())
+}
+
+/// Set `complete = 1` and the model time (or step) reached.
+pub fn mark_complete(w: &mut NcWriter, complete: bool) -> Result<(), OutputError> {
+    w.set_attr_i64("complete", i64::from(complete))
+}
+
+/// The `lat` coordinate (band centres, degrees_north) with `lat_bnds`, and the area weights.
+pub fn write_latitude(w: &mut NcWriter, grid: &Grid) -> Result<(), OutputError> {
+    let faces = grid.lat_faces_deg();
+    w.add_coordinate(
+        "lat",
+        &grid.lat_centres_deg(),
+        &[
+            ("units", Attr::from("degrees_north")),
+            ("standard_name", Attr::from("latitude")),
+            ("long_name", Attr::from("latitude of band centre")),
+            ("axis", Attr::from("Y")),
+            ("bounds", Attr::from("lat_bnds")),
+        ],
+    )?;
+    w.add_dimension("bnds", 2)?;
+    w.add_variable_f64("lat_bnds", &["lat", "bnds"], &[("units", Attr::from("degrees_north"))])?;
+    let bnds: Vec<f64> = (0..grid.len()).flat_map(|i| [faces[i], faces[i + 1]]).collect();
+    w.write_f64("lat_bnds", &bnds)?;
+    w.add_variable_f64(
+        "area_weight",
+        &["lat"],
+        &[
+            ("units", Attr::from("1")),
+            ("long_name", Attr::from("fraction of the model domain's area in each band")),
+        ],
+    )?;
+    w.write_f64("area_weight", &grid.weights)?;
+    Ok(())
+}
+
+/// Shorthand for a variable's attribute list.
+pub fn attrs(units: &str, long_name: &str, standard_name: Option<&str>) -> Vec<(&'static str, Attr)> {
+    let mut v = vec![("units", Attr::from(units)), ("long_name", Attr::from(long_name))];
+    if let Some(s) = standard_name {
+        v.push(("standard_name", Attr::from(s)));
+    }
+    v
+}
