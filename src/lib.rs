@@ -1,19 +1,25 @@
 //! icefold: a latitude-resolved diffusive energy-balance climate model with ice-albedo
-//! feedback.
+//! feedback, integrated through time, solved for equilibria, swept and continued through
+//! tipping points, with netCDF-4/HDF5 output.
+//!
+//! Layers (see DEVELOPERS.md): `config` (TOML to typed specs) feeds `model` (grid plus one of
+//! each parameterisation: `insolation`, `albedo`, `longwave`, `transport`), which `integrate`
+//! and `equilibrium` solve; `jobs` put a model, a solver and an `output` file together for the
+//! commands in `cli`. Physics modules are pure functions over slices and do no I/O.
 
 pub mod albedo;
+pub mod cli;
 pub mod config;
+pub mod equilibrium;
+pub mod error;
+pub mod forcing;
 pub mod grid;
 pub mod insolation;
+pub mod integrate;
+pub mod jobs;
 pub mod linalg;
 pub mod longwave;
 pub mod model;
+pub mod output;
 pub mod quadrature;
 pub mod transport;
-pub mod integrate;
-pub mod equilibrium;
-pub mod cli;
-pub mod error;
-pub mod jobs;
-pub mod output;
-pub mod forcing;

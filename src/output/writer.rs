@@ -1,0 +1,1600 @@
+//! [`NcWriter`]: writes a netCDF-4-compatible HDF5 file through a temporary file that is renamed
+//! onto the target only when the writer finishes.
+//!
+//! Layout choices (netCDF-4 conventions, reference: netCDF-C "NetCDF-4 Format" specification,
+//! from memory; checked against xarray/h5netcdf, netCDF4-python and h5py, see the tests):
+//! - the file and every group track and index link and attribute creation order, which
+//!   netCDF-C needs to open a file for writing and which keeps the order variables were added;
+//! - library-version bounds start at 1.8, so attributes larger than 64 KiB are stored densely;
+//! - each dimension is a dimension scale: a coordinate variable, or a placeholder `f32` dataset
+//!   whose `NAME` is netCDF-C's "not a netCDF variable" text followed by the length;
+//! - variables along the unlimited dimension are chunked (whole rows) with shuffle and deflate
+//!   level 4, and appended records are buffered up to one chunk before they are written.
+
+use std::collections::HashMap;
+use std::ffi::CString;
+use std::path::{Path, PathBuf};
+use std::str::FromStr;
+use std::sync::atomic::{AtomicU64, Ordering};
+
+use hdf5::plist::file_create::{AttrCreationOrder, LinkCreationOrder};
+use hdf5::types::VarLenUnicode;
+use hdf5::{Dataset, Extent, Extents, File, H5Type, Hyperslab, Location, SliceOrIndex};
+use ndarray::{ArrayView, IxDyn};
+
+use super::{ds, OutputError, NOT_A_VARIABLE};
+
+/// Deflate level for compressed variables (common practice: 4 is the usual speed/size balance).
+const DEFLATE_LEVEL: u8 = 4;
+/// Fixed-size variables with at least this many values are chunked and compressed.
+const COMPRESS_MIN_VALUES: usize = 4096;
+/// Upper bound on the values in one chunk of a fixed-size variable (1 MiB of `f64`).
+const MAX_CHUNK_VALUES: usize = 1 << 17;
+/// Rows per chunk of a record variable, unless the rows are short (see [`record_chunk_rows`]).
+const RECORD_CHUNK_ROWS: usize = 64;
+/// Short records are grouped so that one chunk holds at least this many values.
+const RECORD_CHUNK_MIN_VALUES: usize = 1024;
+
+/// Distinguishes temporary files of several writers in one process.
+static TEMP_SEQ: AtomicU64 = AtomicU64::new(0);
+
+/// An attribute value: a variable-length UTF-8 string, a double or a 64-bit integer.
+#[derive(Clone, Debug, PartialEq)]
+pub enum Attr {
+    /// Text, stored as a scalar variable-length UTF-8 string.
+    Str(String),
+    /// A real number, stored as a scalar `f64`.
+    F64(f64),
+    /// An integer, stored as a scalar `i64`.
+    I64(i64),
+}
+
+impl From<&str> for Attr {
+    fn from(value: &str) -> Self {
+        Attr::Str(value.to_owned())
+    }
+}
+
+impl From<String> for Attr {
+    fn from(value: String) -> Self {
+        Attr::Str(value)
+    }
+}
+
+impl From<f64> for Attr {
+    fn from(value: f64) -> Self {
+        Attr::F64(value)
+    }
+}
+
+impl From<i64> for Attr {
+    fn from(value: i64) -> Self {
+        Attr::I64(value)
+    }
+}
+
+impl From<i32> for Attr {
+    fn from(value: i32) -> Self {
+        Attr::I64(i64::from(value))
+    }
+}
+
+/// Element type of a variable.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+enum Kind {
+    F64,
+    I32,
+}
+
+impl Kind {
+    fn name(self) -> &'static str {
+        match self {
+            Kind::F64 => "f64",
+            Kind::I32 => "i32",
+        }
+    }
+}
+
+/// Rows appended but not yet written.
+enum Rows {
+    F64(Vec<f64>),
+    I32(Vec<i32>),
+}
+
+impl Rows {
+    /// Number of buffered values (the tests check the buffer never exceeds one chunk).
+    #[cfg(test)]
+    fn len(&self) -> usize {
+        match self {
+            Rows::F64(v) => v.len(),
+            Rows::I32(v) => v.len(),
+        }
+    }
+}
+
+/// Element types the writer stores.
+trait Elem: H5Type + Copy {
+    const KIND: Kind;
+    fn rows(buf: &mut Rows) -> Option<&mut Vec<Self>>;
+}
+
+impl Elem for f64 {
+    const KIND: Kind = Kind::F64;
+    fn rows(buf: &mut Rows) -> Option<&mut Vec<Self>> {
+        match buf {
+            Rows::F64(v) => Some(v),
+            Rows::I32(_) => None,
+        }
+    }
+}
+
+impl Elem for i32 {
+    const KIND: Kind = Kind::I32;
+    fn rows(buf: &mut Rows) -> Option<&mut Vec<Self>> {
+        match buf {
+            Rows::I32(v) => Some(v),
+            Rows::F64(_) => None,
+        }
+    }
+}
+
+/// Append state of a variable along the unlimited dimension.
+struct Record {
+    /// Values per record (product of the fixed dimensions).
+    row_len: usize,
+    /// Records per chunk; the buffer is written when it holds this many.
+    chunk_rows: usize,
+    /// Buffered records, row-major.
+    buf: Rows,
+}
+
+struct Var {
+    dataset: Dataset,
+    kind: Kind,
+    /// Current shape in the file; for a record variable `shape[0]` counts written records.
+    shape: Vec<usize>,
+    record: Option<Record>,
+}
+
+impl Var {
+    /// Refuses values of the wrong element type.
+    fn check_kind<T: Elem>(&self, path: &Path, full: &str) -> Result<(), OutputError> {
+        if self.kind == T::KIND {
+            return Ok(());
+        }
+        Err(OutputError::Layout {
+            path: path.to_path_buf(),
+            variable: full.to_owned(),
+            reason: format!("holds {} values, not {}", self.kind.name(), T::KIND.name()),
+        })
+    }
+
+    /// Writes the buffered records, if any.
+    fn flush(&mut self) -> hdf5::Result<()> {
+        let Some(rec) = self.record.as_mut() else {
+            return Ok(());
+        };
+        match &mut rec.buf {
+            Rows::F64(b) => write_rows(&self.dataset, &mut self.shape, b).map(|()| b.clear()),
+            Rows::I32(b) => write_rows(&self.dataset, &mut self.shape, b).map(|()| b.clear()),
+        }
+    }
+}
+
+struct Dim {
+    dataset: Dataset,
+    len: usize,
+    unlimited: bool,
+}
+
+/// Open file and bookkeeping; shared by the writer and its group handles.
+struct Inner {
+    /// Variables by full path ("/lat", "/run/time").
+    vars: HashMap<String, Var>,
+    /// Dimensions by full path.
+    dims: HashMap<String, Dim>,
+    /// Declared after the dataset handles so that it is closed last.
+    file: File,
+    /// The target path, for messages.
+    path: PathBuf,
+}
+
+/// Deletes the temporary file when dropped, unless disarmed after the final rename.
+struct TempFile {
+    path: PathBuf,
+    armed: bool,
+}
+
+impl Drop for TempFile {
+    fn drop(&mut self) {
+        if self.armed {
+            // Best effort: the file may never have been created.
+            let _ = std::fs::remove_file(&self.path);
+        }
+    }
+}
+
+/// Writer of one netCDF-4-compatible HDF5 file.
+///
+/// Data go to a temporary file `.<name>.partial-<pid>-<n>` in the target's directory;
+/// [`finish`](Self::finish) renames it onto the target, while [`abandon`](Self::abandon) or
+/// dropping the writer deletes it. The methods that define and write content also exist on
+/// [`NcGroup`] for sub-groups.
+pub struct NcWriter {
+    inner: Inner,
+    temp: TempFile,
+}
+
+/// A group of an [`NcWriter`]'s file, with the same content methods as the writer. Dimensions
+/// defined in the group or any parent group can be used by its variables.
+pub struct NcGroup<'w> {
+    inner: &'w mut Inner,
+    path: String,
+}
+
+/// The definition and write methods shared by [`NcWriter`] (root group) and [`NcGroup`].
+macro_rules! content_methods {
+    () => {
+        /// Sets an attribute of this group (the file's global attributes for the writer) to a
+        /// variable-length UTF-8 string, replacing any earlier value.
+        pub fn set_attr_str(&mut self, name: &str, value: &str) -> Result<(), OutputError> {
+            let (inner, group) = self.scope();
+            inner.set_attr(group, None, name, &Attr::Str(value.to_owned()))
+        }
+
+        /// Sets a group attribute to a scalar `f64`.
+        pub fn set_attr_f64(&mut self, name: &str, value: f64) -> Result<(), OutputError> {
+            let (inner, group) = self.scope();
+            inner.set_attr(group, None, name, &Attr::F64(value))
+        }
+
+        /// Sets a group attribute to a scalar `i64`.
+        pub fn set_attr_i64(&mut self, name: &str, value: i64) -> Result<(), OutputError> {
+            let (inner, group) = self.scope();
+            inner.set_attr(group, None, name, &Attr::I64(value))
+        }
+
+        /// Sets a group attribute to any [`Attr`] value.
+        pub fn set_attr(&mut self, name: &str, value: &Attr) -> Result<(), OutputError> {
+            let (inner, group) = self.scope();
+            inner.set_attr(group, None, name, value)
+        }
+
+        /// Sets a string attribute of variable `var`.
+        pub fn set_var_attr_str(
+            &mut self,
+            var: &str,
+            name: &str,
+            value: &str,
+        ) -> Result<(), OutputError> {
+            let (inner, group) = self.scope();
+            inner.set_attr(group, Some(var), name, &Attr::Str(value.to_owned()))
+        }
+
+        /// Sets an `f64` attribute of variable `var`.
+        pub fn set_var_attr_f64(
+            &mut self,
+            var: &str,
+            name: &str,
+            value: f64,
+        ) -> Result<(), OutputError> {
+            let (inner, group) = self.scope();
+            inner.set_attr(group, Some(var), name, &Attr::F64(value))
+        }
+
+        /// Sets an `i64` attribute of variable `var`.
+        pub fn set_var_attr_i64(
+            &mut self,
+            var: &str,
+            name: &str,
+            value: i64,
+        ) -> Result<(), OutputError> {
+            let (inner, group) = self.scope();
+            inner.set_attr(group, Some(var), name, &Attr::I64(value))
+        }
+
+        /// Defines a fixed-size dimension `name` of length `values.len()` together with its
+        /// coordinate variable (`f64`, a dimension scale) holding `values`.
+        pub fn add_coordinate(
+            &mut self,
+            name: &str,
+            values: &[f64],
+            attrs: &[(&str, Attr)],
+        ) -> Result<(), OutputError> {
+            let (inner, group) = self.scope();
+            inner.add_coordinate(group, name, values, attrs)
+        }
+
+        /// Defines a fixed-size dimension without a coordinate variable (e.g. `bnds` of length
+        /// 2). Length 0 is allowed.
+        pub fn add_dimension(&mut self, name: &str, len: usize) -> Result<(), OutputError> {
+            let (inner, group) = self.scope();
+            inner.add_dimension(group, name, len)
+        }
+
+        /// Defines an unlimited dimension `name` with an `f64` coordinate variable that starts
+        /// empty and grows by [`append_coordinate`](Self::append_coordinate).
+        pub fn add_unlimited_coordinate(
+            &mut self,
+            name: &str,
+            attrs: &[(&str, Attr)],
+        ) -> Result<(), OutputError> {
+            let (inner, group) = self.scope();
+            inner.add_unlimited_coordinate(group, name, attrs)
+        }
+
+        /// Defines an `f64` variable over the named dimensions (first dimension may be
+        /// unlimited, making it a record variable). An empty `dims` makes a scalar.
+        pub fn add_variable_f64(
+            &mut self,
+            name: &str,
+            dims: &[&str],
+            attrs: &[(&str, Attr)],
+        ) -> Result<(), OutputError> {
+            let (inner, group) = self.scope();
+            inner.add_variable::<f64>(group, name, dims, attrs)
+        }
+
+        /// Defines an `i32` variable; see [`add_variable_f64`](Self::add_variable_f64).
+        pub fn add_variable_i32(
+            &mut self,
+            name: &str,
+            dims: &[&str],
+            attrs: &[(&str, Attr)],
+        ) -> Result<(), OutputError> {
+            let (inner, group) = self.scope();
+            inner.add_variable::<i32>(group, name, dims, attrs)
+        }
+
+        /// Writes all values of an `f64` variable, row-major. On a record variable the values
+        /// are appended as whole records (their count must be a multiple of the record length).
+        pub fn write_f64(&mut self, name: &str, values: &[f64]) -> Result<(), OutputError> {
+            let (inner, group) = self.scope();
+            inner.write(group, name, values)
+        }
+
+        /// Writes all values of an `i32` variable; see [`write_f64`](Self::write_f64).
+        pub fn write_i32(&mut self, name: &str, values: &[i32]) -> Result<(), OutputError> {
+            let (inner, group) = self.scope();
+            inner.write(group, name, values)
+        }
+
+        /// Appends one record (all values at one step of the unlimited dimension, row-major)
+        /// to an `f64` record variable. Records are buffered up to one chunk.
+        pub fn append_row_f64(&mut self, name: &str, row: &[f64]) -> Result<(), OutputError> {
+            let (inner, group) = self.scope();
+            inner.append(group, name, row)
+        }
+
+        /// Appends one record to an `i32` record variable.
+        pub fn append_row_i32(&mut self, name: &str, row: &[i32]) -> Result<(), OutputError> {
+            let (inner, group) = self.scope();
+            inner.append(group, name, row)
+        }
+
+        /// Appends one value to the coordinate variable of an unlimited dimension.
+        pub fn append_coordinate(&mut self, name: &str, value: f64) -> Result<(), OutputError> {
+            let (inner, group) = self.scope();
+            inner.append(group, name, &[value])
+        }
+
+        /// Opens the sub-group `name`, creating it on first use.
+        pub fn group(&mut self, name: &str) -> Result<NcGroup<'_>, OutputError> {
+            let (inner, parent) = self.scope();
+            let path = inner.open_group(parent, name)?;
+            Ok(NcGroup { inner, path })
+        }
+    };
+}
+
+impl NcWriter {
+    /// Starts writing `target`. The file appears at `target` only after [`finish`](Self::finish).
+    ///
+    /// # Errors
+    /// [`OutputError::NoDirectory`] if the target's directory does not exist,
+    /// [`OutputError::Create`] if HDF5 cannot create the temporary file (e.g. not writable).
+    pub fn create(target: &Path) -> Result<NcWriter, OutputError> {
+        let dir = match target.parent() {
+            Some(d) if !d.as_os_str().is_empty() => d,
+            _ => Path::new("."),
+        };
+        if !dir.is_dir() {
+            return Err(OutputError::NoDirectory {
+                path: target.to_path_buf(),
+                dir: dir.to_path_buf(),
+            });
+        }
+        let Some(file_name) = target.file_name() else {
+            return Err(OutputError::InvalidName {
+                path: target.to_path_buf(),
+                name: target.display().to_string(),
+                reason: "the output path has no file name",
+            });
+        };
+        let temp_path = dir.join(format!(
+            ".{}.partial-{}-{}",
+            file_name.to_string_lossy(),
+            std::process::id(),
+            TEMP_SEQ.fetch_add(1, Ordering::Relaxed)
+        ));
+        // Armed before creation so that anything HDF5 leaves behind on failure is removed.
+        let temp = TempFile {
+            path: temp_path,
+            armed: true,
+        };
+        let file = File::with_options()
+            .with_fapl(|p| p.libver_v18())
+            .with_fcpl(|p| {
+                p.link_creation_order(LinkCreationOrder::Indexed)
+                    .attr_creation_order(AttrCreationOrder::Indexed)
+            })
+            .create(&temp.path)
+            .map_err(|source| OutputError::Create {
+                path: target.to_path_buf(),
+                temp: temp.path.clone(),
+                source,
+            })?;
+        Ok(NcWriter {
+            inner: Inner {
+                vars: HashMap::new(),
+                dims: HashMap::new(),
+                file,
+                path: target.to_path_buf(),
+            },
+            temp,
+        })
+    }
+
+    /// The target path given to [`create`](Self::create).
+    pub fn target(&self) -> &Path {
+        &self.inner.path
+    }
+
+    /// The temporary file being written until [`finish`](Self::finish).
+    pub fn temp_path(&self) -> &Path {
+        &self.temp.path
+    }
+
+    /// Writes all buffered records and flushes the file to disk, so that the temporary file is a
+    /// complete, readable netCDF file at this point even if the process is killed afterwards.
+    ///
+    /// Each call rewrites the partly filled last chunk of every record variable; call it at
+    /// checkpoints, not after every record.
+    pub fn flush(&mut self) -> Result<(), OutputError> {
+        self.inner.flush_all()
+    }
+
+    /// Writes buffered records, closes the file and renames it onto the target (atomically
+    /// replacing an existing file). On error the temporary file is deleted.
+    pub fn finish(self) -> Result<(), OutputError> {
+        let NcWriter {
+            mut inner,
+            mut temp,
+        } = self;
+        inner.flush_all()?;
+        let Inner {
+            vars,
+            dims,
+            file,
+            path,
+        } = inner;
+        drop(vars);
+        drop(dims);
+        file.close().map_err(|source| OutputError::Hdf5 {
+            path: path.clone(),
+            object: "closing the file".to_owned(),
+            source,
+        })?;
+        std::fs::rename(&temp.path, &path).map_err(|source| OutputError::Rename {
+            path: path.clone(),
+            temp: temp.path.clone(),
+            source,
+        })?;
+        temp.armed = false;
+        Ok(())
+    }
+
+    /// Closes and deletes the temporary file; nothing is written at the target. Dropping the
+    /// writer without [`finish`](Self::finish) does the same.
+    pub fn abandon(self) {
+        drop(self);
+    }
+
+    /// The root group as seen by the shared content methods.
+    fn scope(&mut self) -> (&mut Inner, &str) {
+        (&mut self.inner, "/")
+    }
+
+    content_methods!();
+}
+
+impl NcGroup<'_> {
+    /// Full HDF5 path of this group, e.g. `/run`.
+    pub fn path(&self) -> &str {
+        &self.path
+    }
+
+    fn scope(&mut self) -> (&mut Inner, &str) {
+        (&mut *self.inner, self.path.as_str())
+    }
+
+    content_methods!();
+}
+
+/// `parent/name` as an absolute HDF5 path.
+fn join(parent: &str, name: &str) -> String {
+    if parent == "/" {
+        format!("/{name}")
+    } else {
+        format!("{parent}/{name}")
+    }
+}
+
+/// The group containing `path`, or `None` for the root.
+fn parent_of(path: &str) -> Option<&str> {
+    if path == "/" {
+        return None;
+    }
+    match path.rfind('/') {
+        Some(0) => Some("/"),
+        Some(i) => Some(&path[..i]),
+        None => None,
+    }
+}
+
+/// Records per chunk for records of `row_len` values: [`RECORD_CHUNK_ROWS`], or more for short
+/// records so that a chunk is not tiny.
+fn record_chunk_rows(row_len: usize) -> usize {
+    RECORD_CHUNK_ROWS.max(RECORD_CHUNK_MIN_VALUES / row_len.max(1))
+}
+
+/// Chunk shape for a fixed-size variable: the whole shape, with the first axis cut so that a
+/// chunk holds at most [`MAX_CHUNK_VALUES`].
+fn fixed_chunk(shape: &[usize]) -> Vec<usize> {
+    let mut chunk = shape.to_vec();
+    let rest: usize = shape[1..].iter().product();
+    chunk[0] = shape[0].min((MAX_CHUNK_VALUES / rest.max(1)).max(1));
+    chunk
+}
+
+/// Writes `rows` (row-major, whole records) after the `shape[0]` records already in `dataset`.
+fn write_rows<T: H5Type>(dataset: &Dataset, shape: &mut [usize], rows: &[T]) -> hdf5::Result<()> {
+    let row_len: usize = shape[1..].iter().product();
+    if rows.is_empty() || row_len == 0 {
+        return Ok(());
+    }
+    let n = rows.len() / row_len;
+    let start = shape[0];
+    let mut new_shape = shape.to_vec();
+    new_shape[0] = start + n;
+    dataset.resize(new_shape.clone())?;
+    let mut block_shape = new_shape.clone();
+    block_shape[0] = n;
+    let view = ArrayView::from_shape(IxDyn(&block_shape), rows)?;
+    let mut sel = vec![SliceOrIndex::from(start..start + n)];
+    sel.extend(shape[1..].iter().map(|&len| SliceOrIndex::from(0..len)));
+    dataset.write_slice(view, Hyperslab::from(sel))?;
+    shape[0] = start + n;
+    Ok(())
+}
+
+/// Writes a scalar attribute on `loc`, replacing an existing one of the same name.
+fn write_attr(loc: &Location, name: &str, value: &Attr) -> hdf5::Result<()> {
+    if loc.attr_names()?.iter().any(|n| n == name) {
+        loc.delete_attr(name)?;
+    }
+    match value {
+        Attr::Str(s) => {
+            let v = VarLenUnicode::from_str(s).map_err(|e| hdf5::Error::from(e.to_string()))?;
+            loc.new_attr::<VarLenUnicode>()
+                .shape(())
+                .create(name)?
+                .write_scalar(&v)
+        }
+        Attr::F64(x) => loc
+            .new_attr::<f64>()
+            .shape(())
+            .create(name)?
+            .write_scalar(x),
+        Attr::I64(x) => loc
+            .new_attr::<i64>()
+            .shape(())
+            .create(name)?
+            .write_scalar(x),
+    }
+}
+
+impl Inner {
+    fn h5err(&self, object: String) -> impl FnOnce(hdf5::Error) -> OutputError + '_ {
+        move |source| OutputError::Hdf5 {
+            path: self.path.clone(),
+            object,
+            source,
+        }
+    }
+
+    fn check_name(&self, name: &str) -> Result<(), OutputError> {
+        let reason = if name.is_empty() {
+            "names must not be empty"
+        } else if name.contains('/') {
+            "names must not contain '/'"
+        } else if name.contains('\0') {
+            "names must not contain NUL"
+        } else if name == "." || name == ".." {
+            "names must not be '.' or '..'"
+        } else {
+            return Ok(());
+        };
+        Err(OutputError::InvalidName {
+            path: self.path.clone(),
+            name: name.to_owned(),
+            reason,
+        })
+    }
+
+    /// Checks that `name` is a valid, unused name in `group` and returns its full path.
+    fn new_object(&self, group: &str, name: &str) -> Result<String, OutputError> {
+        self.check_name(name)?;
+        let full = join(group, name);
+        let g = self
+            .file
+            .group(group)
+            .map_err(self.h5err(format!("group `{group}`")))?;
+        if self.vars.contains_key(&full) || self.dims.contains_key(&full) || g.link_exists(name) {
+            return Err(OutputError::InvalidName {
+                path: self.path.clone(),
+                name: full,
+                reason: "the name is already used in this group",
+            });
+        }
+        Ok(full)
+    }
+
+    fn var_mut(&mut self, group: &str, name: &str) -> Result<&mut Var, OutputError> {
+        let full = join(group, name);
+        match self.vars.get_mut(&full) {
+            Some(v) => Ok(v),
+            None => Err(OutputError::UnknownVariable {
+                path: self.path.clone(),
+                variable: full,
+            }),
+        }
+    }
+
+    /// Finds dimension `name` in `group` or the nearest parent group that defines it.
+    fn find_dim(&self, group: &str, name: &str) -> Option<&Dim> {
+        let mut g = Some(group);
+        while let Some(cur) = g {
+            if let Some(d) = self.dims.get(&join(cur, name)) {
+                return Some(d);
+            }
+            g = parent_of(cur);
+        }
+        None
+    }
+
+    fn set_scale(&self, dataset: &Dataset, var: &str, scale_name: &str) -> Result<(), OutputError> {
+        let fail = || OutputError::Scale {
+            path: self.path.clone(),
+            variable: var.to_owned(),
+            dimension: var.to_owned(),
+            action: "create",
+        };
+        let c = CString::new(scale_name).map_err(|_| fail())?;
+        // SAFETY: a valid dataset id and a NUL-terminated name; the library lock is held.
+        let rc = hdf5::sync::sync(|| unsafe { ds::H5DSset_scale(dataset.id(), c.as_ptr()) });
+        if rc < 0 {
+            return Err(fail());
+        }
+        Ok(())
+    }
+
+    fn set_attr(
+        &mut self,
+        group: &str,
+        var: Option<&str>,
+        name: &str,
+        value: &Attr,
+    ) -> Result<(), OutputError> {
+        self.check_name(name)?;
+        let (object, loc): (String, Location) = match var {
+            Some(v) => {
+                let full = join(group, v);
+                let ds = self.var_mut(group, v)?.dataset.clone();
+                (format!("variable `{full}`"), (**ds).clone())
+            }
+            None => {
+                let g = self
+                    .file
+                    .group(group)
+                    .map_err(self.h5err(format!("group `{group}`")))?;
+                (format!("group `{group}`"), (*g).clone())
+            }
+        };
+        if let Attr::Str(s) = value {
+            if s.contains('\0') {
+                return Err(OutputError::NulInString {
+                    path: self.path.clone(),
+                    object,
+                    attribute: name.to_owned(),
+                });
+            }
+        }
+        write_attr(&loc, name, value).map_err(self.h5err(format!("{object}, attribute `{name}`")))
+    }
+
+    fn set_attrs(
+        &mut self,
+        group: &str,
+        var: &str,
+        attrs: &[(&str, Attr)],
+    ) -> Result<(), OutputError> {
+        for (name, value) in attrs {
+            self.set_attr(group, Some(var), name, value)?;
+        }
+        Ok(())
+    }
+
+    fn add_coordinate(
+        &mut self,
+        group: &str,
+        name: &str,
+        values: &[f64],
+        attrs: &[(&str, Attr)],
+    ) -> Result<(), OutputError> {
+        let full = self.new_object(group, name)?;
+        let err = self.h5err(format!("coordinate `{full}`"));
+        let create = || -> hdf5::Result<Dataset> {
+            let g = self.file.group(group)?;
+            let mut b = g
+                .new_dataset::<f64>()
+                .shape(values.len())
+                .attr_creation_order(AttrCreationOrder::Indexed);
+            if values.len() >= COMPRESS_MIN_VALUES {
+                b = b
+                    .chunk(fixed_chunk(&[values.len()]))
+                    .shuffle()
+                    .deflate(DEFLATE_LEVEL);
+            }
+            let d = b.create(name)?;
+            if !values.is_empty() {
+                d.write_raw(values)?;
+            }
+            Ok(d)
+        };
+        let dataset = create().map_err(err)?;
+        self.set_scale(&dataset, &full, name)?;
+        let dim = Dim {
+            dataset: dataset.clone(),
+            len: values.len(),
+            unlimited: false,
+        };
+        self.dims.insert(full.clone(), dim);
+        let var = Var {
+            dataset,
+            kind: Kind::F64,
+            shape: vec![values.len()],
+            record: None,
+        };
+        self.vars.insert(full, var);
+        self.set_attrs(group, name, attrs)
+    }
+
+    fn add_dimension(&mut self, group: &str, name: &str, len: usize) -> Result<(), OutputError> {
+        let full = self.new_object(group, name)?;
+        let err = self.h5err(format!("dimension `{full}`"));
+        let dataset = self
+            .file
+            .group(group)
+            .and_then(|g| {
+                g.new_dataset::<f32>()
+                    .shape(len)
+                    .attr_creation_order(AttrCreationOrder::Indexed)
+                    .create(name)
+            })
+            .map_err(err)?;
+        // netCDF-C's text for a dimension without a variable: the marker, then the length in
+        // a field of width 10 ("%s%10d").
+        self.set_scale(&dataset, &full, &format!("{NOT_A_VARIABLE}{len:10}"))?;
+        self.dims.insert(
+            full,
+            Dim {
+                dataset,
+                len,
+                unlimited: false,
+            },
+        );
+        Ok(())
+    }
+
+    fn add_unlimited_coordinate(
+        &mut self,
+        group: &str,
+        name: &str,
+        attrs: &[(&str, Attr)],
+    ) -> Result<(), OutputError> {
+        let full = self.new_object(group, name)?;
+        let err = self.h5err(format!("coordinate `{full}`"));
+        let chunk_rows = record_chunk_rows(1);
+        let dataset = self
+            .file
+            .group(group)
+            .and_then(|g| {
+                g.new_dataset::<f64>()
+                    .shape(Extents::from(vec![Extent::resizable(0)]))
+                    .chunk(vec![chunk_rows])
+                    .shuffle()
+                    .deflate(DEFLATE_LEVEL)
+                    .attr_creation_order(AttrCreationOrder::Indexed)
+                    .create(name)
+            })
+            .map_err(err)?;
+        self.set_scale(&dataset, &full, name)?;
+        self.dims.insert(
+            full.clone(),
+            Dim {
+                dataset: dataset.clone(),
+                len: 0,
+                unlimited: true,
+            },
+        );
+        let record = Record {
+            row_len: 1,
+            chunk_rows,
+            buf: Rows::F64(Vec::with_capacity(chunk_rows)),
+        };
+        let var = Var {
+            dataset,
+            kind: Kind::F64,
+            shape: vec![0],
+            record: Some(record),
+        };
+        self.vars.insert(full, var);
+        self.set_attrs(group, name, attrs)
+    }
+
+    fn add_variable<T: Elem>(
+        &mut self,
+        group: &str,
+        name: &str,
+        dims: &[&str],
+        attrs: &[(&str, Attr)],
+    ) -> Result<(), OutputError> {
+        let full = self.new_object(group, name)?;
+        let mut shape = Vec::with_capacity(dims.len());
+        let mut scales = Vec::with_capacity(dims.len());
+        let mut record = false;
+        for (axis, dim_name) in dims.iter().enumerate() {
+            let Some(dim) = self.find_dim(group, dim_name) else {
+                return Err(OutputError::UnknownDimension {
+                    path: self.path.clone(),
+                    variable: full,
+                    dimension: (*dim_name).to_owned(),
+                });
+            };
+            if dim.unlimited {
+                if axis != 0 {
+                    return Err(OutputError::Layout {
+                        path: self.path.clone(),
+                        variable: full,
+                        reason: format!(
+                            "the unlimited dimension `{dim_name}` must be the first dimension"
+                        ),
+                    });
+                }
+                record = true;
+                shape.push(0);
+            } else {
+                shape.push(dim.len);
+            }
+            scales.push(dim.dataset.clone());
+        }
+        let row_len: usize = shape.iter().skip(1).product();
+        if record && row_len == 0 {
+            return Err(OutputError::Layout {
+                path: self.path.clone(),
+                variable: full,
+                reason: "a record variable cannot have a fixed dimension of length 0".to_owned(),
+            });
+        }
+        let chunk_rows = record_chunk_rows(row_len);
+        let err = self.h5err(format!("variable `{full}`"));
+        let dataset = self
+            .file
+            .group(group)
+            .and_then(|g| {
+                let b = g
+                    .new_dataset::<T>()
+                    .attr_creation_order(AttrCreationOrder::Indexed);
+                let b = if shape.is_empty() {
+                    b.shape(Extents::scalar())
+                } else if record {
+                    let mut ext = vec![Extent::resizable(0)];
+                    ext.extend(shape[1..].iter().map(|&n| Extent::fixed(n)));
+                    let mut chunk = shape.clone();
+                    chunk[0] = chunk_rows;
+                    b.shape(Extents::from(ext))
+                        .chunk(chunk)
+                        .shuffle()
+                        .deflate(DEFLATE_LEVEL)
+                } else {
+                    let size: usize = shape.iter().product();
+                    let b = b.shape(shape.clone());
+                    if size >= COMPRESS_MIN_VALUES {
+                        b.chunk(fixed_chunk(&shape))
+                            .shuffle()
+                            .deflate(DEFLATE_LEVEL)
+                    } else {
+                        b
+                    }
+                };
+                b.create(name)
+            })
+            .map_err(err)?;
+        for (axis, (scale, dim_name)) in scales.iter().zip(dims).enumerate() {
+            // SAFETY: valid dataset ids; `axis` < rank; the library lock is held.
+            let rc = hdf5::sync::sync(|| unsafe {
+                ds::H5DSattach_scale(dataset.id(), scale.id(), axis as std::os::raw::c_uint)
+            });
+            if rc < 0 {
+                return Err(OutputError::Scale {
+                    path: self.path.clone(),
+                    variable: full,
+                    dimension: (*dim_name).to_owned(),
+                    action: "attach",
+                });
+            }
+        }
+        let record = record.then(|| Record {
+            row_len,
+            chunk_rows,
+            buf: match T::KIND {
+                Kind::F64 => Rows::F64(Vec::with_capacity(chunk_rows * row_len)),
+                Kind::I32 => Rows::I32(Vec::with_capacity(chunk_rows * row_len)),
+            },
+        });
+        self.vars.insert(
+            full,
+            Var {
+                dataset,
+                kind: T::KIND,
+                shape,
+                record,
+            },
+        );
+        self.set_attrs(group, name, attrs)
+    }
+
+    fn write<T: Elem>(&mut self, group: &str, name: &str, values: &[T]) -> Result<(), OutputError> {
+        let path = self.path.clone();
+        let var = self.var_mut(group, name)?;
+        let full = join(group, name);
+        let fail = |source| OutputError::Hdf5 {
+            path: path.clone(),
+            object: format!("variable `{full}`"),
+            source,
+        };
+        var.check_kind::<T>(&path, &full)?;
+        if let Some(rec) = &var.record {
+            if values.len() % rec.row_len != 0 {
+                return Err(OutputError::LengthMismatch {
+                    path: path.clone(),
+                    variable: full.clone(),
+                    expected: rec.row_len * values.len().div_ceil(rec.row_len),
+                    actual: values.len(),
+                });
+            }
+            // Keep record order: buffered records go first.
+            var.flush().map_err(fail)?;
+            return write_rows(&var.dataset, &mut var.shape, values).map_err(fail);
+        }
+        let expected: usize = var.shape.iter().product();
+        if values.len() != expected {
+            return Err(OutputError::LengthMismatch {
+                path: path.clone(),
+                variable: full.clone(),
+                expected,
+                actual: values.len(),
+            });
+        }
+        if expected == 0 {
+            return Ok(());
+        }
+        var.dataset.write_raw(values).map_err(fail)
+    }
+
+    fn append<T: Elem>(&mut self, group: &str, name: &str, row: &[T]) -> Result<(), OutputError> {
+        let path = self.path.clone();
+        let var = self.var_mut(group, name)?;
+        let full = join(group, name);
+        var.check_kind::<T>(&path, &full)?;
+        let Some(rec) = var.record.as_mut() else {
+            return Err(OutputError::Layout {
+                path,
+                variable: full,
+                reason: "is not along an unlimited dimension; write it whole".to_owned(),
+            });
+        };
+        if row.len() != rec.row_len {
+            return Err(OutputError::LengthMismatch {
+                path,
+                variable: full,
+                expected: rec.row_len,
+                actual: row.len(),
+            });
+        }
+        let full_chunk = rec.chunk_rows * rec.row_len;
+        let buffered = match T::rows(&mut rec.buf) {
+            Some(buf) => {
+                buf.extend_from_slice(row);
+                buf.len()
+            }
+            None => 0, // unreachable: the kind was checked above
+        };
+        if buffered >= full_chunk {
+            var.flush().map_err(|source| OutputError::Hdf5 {
+                path,
+                object: format!("variable `{full}`"),
+                source,
+            })?;
+        }
+        Ok(())
+    }
+
+    fn flush_all(&mut self) -> Result<(), OutputError> {
+        for (full, var) in &mut self.vars {
+            var.flush().map_err(|source| OutputError::Hdf5 {
+                path: self.path.clone(),
+                object: format!("variable `{full}`"),
+                source,
+            })?;
+        }
+        self.file
+            .flush()
+            .map_err(self.h5err("flushing the file".to_owned()))
+    }
+
+    /// Opens (or creates, with creation-order tracking) group `name` under `parent`.
+    fn open_group(&mut self, parent: &str, name: &str) -> Result<String, OutputError> {
+        self.check_name(name)?;
+        let full = join(parent, name);
+        if self.vars.contains_key(&full) || self.dims.contains_key(&full) {
+            return Err(OutputError::InvalidName {
+                path: self.path.clone(),
+                name: full,
+                reason: "the name is already used by a variable or dimension",
+            });
+        }
+        let err = self.h5err(format!("group `{full}`"));
+        self.file
+            .group(parent)
+            .and_then(|p| {
+                if p.link_exists(name) {
+                    p.group(name)
+                } else {
+                    p.create_group_builder()
+                        .with_gcpl(|g| {
+                            g.link_creation_order(LinkCreationOrder::Indexed)
+                                .attr_creation_order(AttrCreationOrder::Indexed)
+                        })
+                        .create(name)
+                }
+            })
+            .map_err(err)?;
+        Ok(full)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    //! Round trips through [`NcReader`]; the outside checks (xarray, h5py, netCDF4) are in
+    //! `tests/python/test_netcdf_writer_smoke.py`.
+
+    use super::*;
+    use crate::output::NcReader;
+
+    static DIR_SEQ: AtomicU64 = AtomicU64::new(0);
+
+    /// A fresh directory under the system temp dir, removed when dropped.
+    struct TestDir(PathBuf);
+
+    impl TestDir {
+        fn new(tag: &str) -> TestDir {
+            let seq = DIR_SEQ.fetch_add(1, Ordering::Relaxed);
+            let dir = std::env::temp_dir()
+                .join(format!("icefold-output-{tag}-{}-{seq}", std::process::id()));
+            let _ = std::fs::remove_dir_all(&dir);
+            std::fs::create_dir_all(&dir).unwrap();
+            TestDir(dir)
+        }
+
+        fn file(&self, name: &str) -> PathBuf {
+            self.0.join(name)
+        }
+
+        /// Names of all entries in the directory.
+        fn entries(&self) -> Vec<String> {
+            let mut v: Vec<String> = std::fs::read_dir(&self.0)
+                .unwrap()
+                .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+                .collect();
+            v.sort();
+            v
+        }
+    }
+
+    impl Drop for TestDir {
+        fn drop(&mut self) {
+            let _ = std::fs::remove_dir_all(&self.0);
+        }
+    }
+
+    fn units(u: &str) -> (&'static str, Attr) {
+        ("units", Attr::from(u))
+    }
+
+    /// A small run-like file: fixed `lat` with bounds, unlimited `time`, a record variable and
+    /// an `i32` variable.
+    fn write_sample(path: &Path, records: usize) -> Result<(), OutputError> {
+        let mut w = NcWriter::create(path)?;
+        w.set_attr_str("title", "sample °C")?;
+        w.set_attr_f64("solar_constant", 1361.5)?;
+        w.set_attr_i64("seed", -42)?;
+        let lat = [-60.0, 0.0, 60.0];
+        w.add_coordinate(
+            "lat",
+            &lat,
+            &[units("degrees_north"), ("axis", Attr::from("Y"))],
+        )?;
+        w.add_dimension("bnds", 2)?;
+        w.add_variable_f64("lat_bnds", &["lat", "bnds"], &[])?;
+        w.write_f64("lat_bnds", &[-90.0, -30.0, -30.0, 30.0, 30.0, 90.0])?;
+        w.set_var_attr_str("lat", "bounds", "lat_bnds")?;
+        w.add_unlimited_coordinate("time", &[units("year")])?;
+        w.add_variable_f64("surface_temperature", &["time", "lat"], &[units("K")])?;
+        w.add_variable_i32("flag", &["lat"], &[("flag_values", Attr::from("0 1"))])?;
+        w.write_i32("flag", &[1, 0, 1])?;
+        for i in 0..records {
+            w.append_coordinate("time", i as f64 * 0.5)?;
+            let t = 250.0 + i as f64;
+            w.append_row_f64("surface_temperature", &[t, t + 20.0, t + 1.0])?;
+        }
+        w.set_var_attr_f64("surface_temperature", "valid_min", 100.0)?;
+        w.set_var_attr_i64("flag", "count", 3)?;
+        w.finish()
+    }
+
+    #[test]
+    fn round_trip_of_coordinates_variables_and_attributes() {
+        let dir = TestDir::new("roundtrip");
+        let path = dir.file("run.nc");
+        write_sample(&path, 5).unwrap();
+        let r = NcReader::open(&path).unwrap();
+
+        assert_eq!(r.attr_str("title").unwrap().as_deref(), Some("sample °C"));
+        assert_eq!(r.attr_f64("solar_constant").unwrap(), Some(1361.5));
+        assert_eq!(r.attr_i64("seed").unwrap(), Some(-42));
+        assert_eq!(r.attr_f64("seed").unwrap(), Some(-42.0));
+        assert_eq!(r.attr_str("missing").unwrap(), None);
+        assert!(matches!(
+            r.attr_i64("title"),
+            Err(OutputError::AttrType { .. })
+        ));
+        assert_eq!(r.attr_names().unwrap(), ["title", "solar_constant", "seed"]);
+
+        // Creation order, placeholder `bnds` left out.
+        assert_eq!(
+            r.var_names().unwrap(),
+            ["lat", "lat_bnds", "time", "surface_temperature", "flag"]
+        );
+        assert_eq!(r.dim_names().unwrap(), ["lat", "bnds", "time"]);
+        assert_eq!(r.var_dims("lat").unwrap(), ["lat"]);
+        assert_eq!(r.var_dims("lat_bnds").unwrap(), ["lat", "bnds"]);
+        assert_eq!(r.var_dims("surface_temperature").unwrap(), ["time", "lat"]);
+        assert_eq!(r.var_shape("surface_temperature").unwrap(), [5, 3]);
+        assert_eq!(r.dim_len("bnds").unwrap(), 2);
+        assert_eq!(r.dim_len("time").unwrap(), 5);
+        assert!(r.dim_unlimited("time").unwrap());
+        assert!(!r.dim_unlimited("lat").unwrap());
+
+        assert_eq!(r.read_f64("lat").unwrap(), [-60.0, 0.0, 60.0]);
+        assert_eq!(
+            r.read_f64("lat_bnds").unwrap(),
+            [-90.0, -30.0, -30.0, 30.0, 30.0, 90.0]
+        );
+        assert_eq!(r.read_f64("time").unwrap(), [0.0, 0.5, 1.0, 1.5, 2.0]);
+        let st = r.read_f64("surface_temperature").unwrap();
+        assert_eq!(&st[..6], &[250.0, 270.0, 251.0, 251.0, 271.0, 252.0]);
+        assert_eq!(st[14], 255.0);
+        assert_eq!(r.read_f64("flag").unwrap(), [1.0, 0.0, 1.0]);
+
+        assert_eq!(
+            r.var_attr_str("lat", "units").unwrap().as_deref(),
+            Some("degrees_north")
+        );
+        assert_eq!(
+            r.var_attr_names("lat").unwrap(),
+            ["units", "axis", "bounds"]
+        );
+        assert_eq!(
+            r.var_attr_f64("surface_temperature", "valid_min").unwrap(),
+            Some(100.0)
+        );
+        assert_eq!(r.var_attr_i64("flag", "count").unwrap(), Some(3));
+        // The placeholder's NAME is netCDF-C's marker plus the length in 10 columns.
+        let name = r.var_attr_str("bnds", "NAME").unwrap().unwrap();
+        assert_eq!(name, format!("{NOT_A_VARIABLE}         2"));
+        assert!(matches!(
+            r.read_f64("nope"),
+            Err(OutputError::UnknownVariable { .. })
+        ));
+    }
+
+    #[test]
+    fn appending_ten_thousand_records_reads_back_exactly() {
+        let dir = TestDir::new("append");
+        let path = dir.file("long.nc");
+        let cols = 90;
+        let lat: Vec<f64> = (0..cols).map(|j| -89.0 + 2.0 * j as f64).collect();
+        let mut w = NcWriter::create(&path).unwrap();
+        w.add_coordinate("lat", &lat, &[]).unwrap();
+        w.add_unlimited_coordinate("time", &[]).unwrap();
+        w.add_variable_f64("field", &["time", "lat"], &[]).unwrap();
+        w.add_variable_i32("count", &["time"], &[]).unwrap();
+        let mut row = vec![0.0; cols];
+        for i in 0..10_000 {
+            w.append_coordinate("time", i as f64).unwrap();
+            for (j, v) in row.iter_mut().enumerate() {
+                *v = (i * 1000 + j) as f64;
+            }
+            w.append_row_f64("field", &row).unwrap();
+            w.append_row_i32("count", &[i as i32]).unwrap();
+            // Memory stays flat: never more than one chunk is buffered.
+            let rec = w.inner.vars["/field"].record.as_ref().unwrap();
+            assert!(rec.buf.len() < rec.chunk_rows * cols);
+        }
+        w.finish().unwrap();
+
+        let r = NcReader::open(&path).unwrap();
+        assert_eq!(r.var_shape("field").unwrap(), [10_000, cols]);
+        let field = r.read_f64("field").unwrap();
+        // Integers below 2^53 are exact in f64, so equality is the right check.
+        for (k, v) in field.iter().enumerate() {
+            assert_eq!(*v, ((k / cols) * 1000 + k % cols) as f64, "value {k}");
+        }
+        let count = r.read_f64("count").unwrap();
+        assert!(count.iter().enumerate().all(|(i, &c)| c == i as f64));
+        assert_eq!(r.dim_len("time").unwrap(), 10_000);
+
+        // Chunked as whole rows with shuffle + deflate.
+        let f = File::open(&path).unwrap();
+        let ds = f.dataset("field").unwrap();
+        assert_eq!(ds.chunk(), Some(vec![RECORD_CHUNK_ROWS, cols]));
+        let filters = ds.filters();
+        assert!(
+            filters.contains(&hdf5::filters::Filter::Shuffle),
+            "{filters:?}"
+        );
+        assert!(
+            filters.contains(&hdf5::filters::Filter::Deflate(4)),
+            "{filters:?}"
+        );
+    }
+
+    #[test]
+    fn partial_file_stays_beside_target_until_finish() {
+        let dir = TestDir::new("partial");
+        let target = dir.file("out.nc");
+        let mut w = NcWriter::create(&target).unwrap();
+        w.add_coordinate("lat", &[1.0, 2.0], &[]).unwrap();
+        let temp = w.temp_path().to_path_buf();
+        assert_eq!(temp.parent(), target.parent());
+        let temp_name = temp.file_name().unwrap().to_string_lossy().into_owned();
+        assert!(temp_name.starts_with(".out.nc.partial-"), "{temp_name}");
+        assert!(temp.exists());
+        assert!(!target.exists());
+        w.finish().unwrap();
+        assert!(target.exists());
+        assert_eq!(dir.entries(), ["out.nc"]);
+    }
+
+    #[test]
+    fn abandon_and_drop_delete_the_partial_file() {
+        let dir = TestDir::new("abandon");
+        let w = NcWriter::create(&dir.file("a.nc")).unwrap();
+        assert_eq!(dir.entries().len(), 1);
+        w.abandon();
+        assert!(dir.entries().is_empty());
+
+        {
+            let mut w = NcWriter::create(&dir.file("b.nc")).unwrap();
+            w.add_unlimited_coordinate("time", &[]).unwrap();
+            w.append_coordinate("time", 1.0).unwrap();
+            assert_eq!(dir.entries().len(), 1);
+        }
+        assert!(dir.entries().is_empty());
+    }
+
+    #[test]
+    fn missing_directory_error_names_the_path() {
+        let dir = TestDir::new("missing");
+        let target = dir.file("no-such-dir").join("out.nc");
+        let err = NcWriter::create(&target).err().expect("must fail");
+        assert!(matches!(err, OutputError::NoDirectory { .. }), "{err:?}");
+        let msg = err.to_string();
+        assert!(msg.contains(&target.display().to_string()), "{msg}");
+        assert!(msg.contains("does not exist"), "{msg}");
+    }
+
+    #[test]
+    fn attribute_of_200_kb_round_trips() {
+        let dir = TestDir::new("bigattr");
+        let path = dir.file("big.nc");
+        // Above the 64 KiB object-header limit of the default (pre-1.8) file format.
+        let text: String = (0..200 * 1024)
+            .map(|i| char::from(b'a' + (i % 26) as u8))
+            .collect();
+        let mut w = NcWriter::create(&path).unwrap();
+        w.set_attr_str("config", &text).unwrap();
+        w.add_coordinate("x", &[0.0], &[]).unwrap();
+        w.set_var_attr_str("x", "note", &text).unwrap();
+        w.finish().unwrap();
+        let r = NcReader::open(&path).unwrap();
+        assert_eq!(r.attr_str("config").unwrap().unwrap(), text);
+        assert_eq!(r.var_attr_str("x", "note").unwrap().unwrap(), text);
+    }
+
+    #[test]
+    fn zero_length_dimension() {
+        let dir = TestDir::new("zero");
+        let path = dir.file("zero.nc");
+        let mut w = NcWriter::create(&path).unwrap();
+        w.add_dimension("tipping", 0).unwrap();
+        w.add_variable_f64("tipping_control", &["tipping"], &[units("1")])
+            .unwrap();
+        w.add_variable_i32("tipping_direction", &["tipping"], &[])
+            .unwrap();
+        w.write_f64("tipping_control", &[]).unwrap();
+        w.finish().unwrap();
+        let r = NcReader::open(&path).unwrap();
+        assert_eq!(r.dim_len("tipping").unwrap(), 0);
+        assert_eq!(r.var_shape("tipping_control").unwrap(), [0]);
+        assert_eq!(r.var_dims("tipping_direction").unwrap(), ["tipping"]);
+        assert!(r.read_f64("tipping_control").unwrap().is_empty());
+    }
+
+    #[test]
+    fn flushed_partial_file_is_readable_as_left_by_a_killed_writer() {
+        let dir = TestDir::new("flush");
+        let mut w = NcWriter::create(&dir.file("f.nc")).unwrap();
+        w.add_coordinate("lat", &[0.0, 1.0], &[]).unwrap();
+        w.add_unlimited_coordinate("time", &[]).unwrap();
+        w.add_variable_f64("t", &["time", "lat"], &[]).unwrap();
+        for i in 0..7 {
+            w.append_coordinate("time", f64::from(i)).unwrap();
+            w.append_row_f64("t", &[f64::from(i), -f64::from(i)])
+                .unwrap();
+        }
+        w.flush().unwrap();
+        // A copy taken now is what a SIGKILL would leave behind.
+        let snapshot = dir.file("snapshot.nc");
+        std::fs::copy(w.temp_path(), &snapshot).unwrap();
+        w.append_coordinate("time", 7.0).unwrap();
+        let r = NcReader::open(&snapshot).unwrap();
+        assert_eq!(r.var_shape("t").unwrap(), [7, 2]);
+        assert_eq!(
+            r.read_f64("time").unwrap(),
+            [0.0, 1.0, 2.0, 3.0, 4.0, 5.0, 6.0]
+        );
+        assert_eq!(r.read_f64("t").unwrap()[12..], [6.0, -6.0]);
+        drop(r);
+        w.abandon();
+    }
+
+    #[test]
+    fn write_in_blocks_on_a_record_variable_appends() {
+        let dir = TestDir::new("block");
+        let path = dir.file("b.nc");
+        let mut w = NcWriter::create(&path).unwrap();
+        w.add_coordinate("x", &[0.0, 1.0], &[]).unwrap();
+        w.add_unlimited_coordinate("time", &[]).unwrap();
+        w.add_variable_f64("v", &["time", "x"], &[]).unwrap();
+        w.append_row_f64("v", &[1.0, 2.0]).unwrap();
+        w.write_f64("v", &[3.0, 4.0, 5.0, 6.0]).unwrap();
+        w.append_row_f64("v", &[7.0, 8.0]).unwrap();
+        w.write_f64("time", &[0.0, 1.0, 2.0, 3.0]).unwrap();
+        w.finish().unwrap();
+        let r = NcReader::open(&path).unwrap();
+        assert_eq!(
+            r.read_f64("v").unwrap(),
+            [1.0, 2.0, 3.0, 4.0, 5.0, 6.0, 7.0, 8.0]
+        );
+        assert_eq!(r.dim_len("time").unwrap(), 4);
+    }
+
+    #[test]
+    fn bad_calls_give_errors_naming_the_variable() {
+        let dir = TestDir::new("bad");
+        let mut w = NcWriter::create(&dir.file("bad.nc")).unwrap();
+        w.add_coordinate("lat", &[1.0, 2.0, 3.0], &[]).unwrap();
+        w.add_unlimited_coordinate("time", &[]).unwrap();
+        w.add_variable_f64("t", &["time", "lat"], &[]).unwrap();
+
+        let e = w.append_row_f64("t", &[1.0]).unwrap_err();
+        assert!(
+            matches!(
+                e,
+                OutputError::LengthMismatch {
+                    expected: 3,
+                    actual: 1,
+                    ..
+                }
+            ),
+            "{e}"
+        );
+        assert!(e.to_string().contains("`/t`"), "{e}");
+        let e = w.write_f64("lat", &[1.0]).unwrap_err();
+        assert!(
+            matches!(
+                e,
+                OutputError::LengthMismatch {
+                    expected: 3,
+                    actual: 1,
+                    ..
+                }
+            ),
+            "{e}"
+        );
+        let e = w.append_row_i32("t", &[1, 2, 3]).unwrap_err();
+        assert!(e.to_string().contains("holds f64 values, not i32"), "{e}");
+        let e = w.append_row_f64("lat", &[1.0]).unwrap_err();
+        assert!(
+            e.to_string().contains("not along an unlimited dimension"),
+            "{e}"
+        );
+        let e = w.add_variable_f64("u", &["lat", "depth"], &[]).unwrap_err();
+        assert!(e.to_string().contains("unknown dimension `depth`"), "{e}");
+        let e = w.add_variable_f64("u", &["lat", "time"], &[]).unwrap_err();
+        assert!(e.to_string().contains("must be the first dimension"), "{e}");
+        let e = w.add_variable_f64("lat", &["lat"], &[]).unwrap_err();
+        assert!(e.to_string().contains("already used"), "{e}");
+        let e = w.add_variable_f64("a/b", &["lat"], &[]).unwrap_err();
+        assert!(matches!(e, OutputError::InvalidName { .. }), "{e}");
+        let e = w.set_var_attr_str("nope", "units", "K").unwrap_err();
+        assert!(matches!(e, OutputError::UnknownVariable { .. }), "{e}");
+        let e = w.set_attr_str("bad", "a\0b").unwrap_err();
+        assert!(matches!(e, OutputError::NulInString { .. }), "{e}");
+        w.abandon();
+    }
+
+    #[test]
+    fn groups_use_parent_dimensions() {
+        let dir = TestDir::new("groups");
+        let path = dir.file("g.nc");
+        let mut w = NcWriter::create(&path).unwrap();
+        w.add_coordinate("lat", &[0.0, 10.0], &[]).unwrap();
+        {
+            let mut run = w.group("run").unwrap();
+            assert_eq!(run.path(), "/run");
+            run.set_attr_str("member", "0").unwrap();
+            run.add_unlimited_coordinate("time", &[]).unwrap();
+            run.add_variable_f64("t", &["time", "lat"], &[]).unwrap();
+            run.append_coordinate("time", 0.0).unwrap();
+            run.append_row_f64("t", &[1.0, 2.0]).unwrap();
+        }
+        // Re-opening the group finds its variables again.
+        w.group("run")
+            .unwrap()
+            .append_row_f64("t", &[3.0, 4.0])
+            .unwrap();
+        w.group("run")
+            .unwrap()
+            .append_coordinate("time", 1.0)
+            .unwrap();
+        w.finish().unwrap();
+
+        let r = NcReader::open(&path).unwrap();
+        assert_eq!(r.group_names().unwrap(), ["run"]);
+        assert_eq!(r.var_names().unwrap(), ["lat"]);
+        let run = r.group("run").unwrap();
+        assert_eq!(run.attr_str("member").unwrap().as_deref(), Some("0"));
+        assert_eq!(run.var_names().unwrap(), ["time", "t"]);
+        assert_eq!(run.var_dims("t").unwrap(), ["time", "lat"]);
+        assert_eq!(run.dim_len("lat").unwrap(), 2);
+        assert_eq!(run.read_f64("t").unwrap(), [1.0, 2.0, 3.0, 4.0]);
+    }
+
+    #[test]
+    fn reader_errors_name_the_file() {
+        let dir = TestDir::new("reader");
+        let missing = dir.file("missing.nc");
+        let e = NcReader::open(&missing).err().expect("must fail");
+        assert!(matches!(e, OutputError::NotFound { .. }), "{e}");
+        assert!(
+            e.to_string().contains(&missing.display().to_string()),
+            "{e}"
+        );
+        let text = dir.file("text.nc");
+        std::fs::write(&text, "not hdf5").unwrap();
+        let e = NcReader::open(&text).err().expect("must fail");
+        assert!(matches!(e, OutputError::Open { .. }), "{e}");
+        assert!(e.to_string().contains(&text.display().to_string()), "{e}");
+    }
+}
+
+#[cfg(test)]
+mod smoke {
+    //! Writes the sample file that `tests/python/test_netcdf_writer_smoke.py` opens with
+    //! xarray (h5netcdf and netcdf4 engines) and h5py.
+
+    use super::*;
+
+    /// Run by the Python smoke test with `ICEFOLD_NC_SMOKE` set to the output path.
+    #[test]
+    #[ignore = "writes a file for the Python smoke test"]
+    fn write_smoke_sample() {
+        let path = PathBuf::from(std::env::var("ICEFOLD_NC_SMOKE").expect("ICEFOLD_NC_SMOKE"));
+        let config = format!(
+            "# resolved config\ntitle = \"smoke °C\"\n# {}\n",
+            "x".repeat(200_000)
+        );
+        let mut w = NcWriter::create(&path).unwrap();
+        w.set_attr_str("Conventions", "CF-1.8").unwrap();
+        w.set_attr_str("config", &config).unwrap();
+        w.set_attr_f64("solar_constant", 1361.0).unwrap();
+        w.set_attr_i64("seed", 7).unwrap();
+        let lat = [-67.5, -22.5, 22.5, 67.5];
+        let units = |u: &str| ("units", Attr::from(u));
+        w.add_coordinate(
+            "lat",
+            &lat,
+            &[units("degrees_north"), ("bounds", "lat_bnds".into())],
+        )
+        .unwrap();
+        w.add_dimension("bnds", 2).unwrap();
+        w.add_variable_f64("lat_bnds", &["lat", "bnds"], &[units("degrees_north")])
+            .unwrap();
+        w.write_f64(
+            "lat_bnds",
+            &[-90.0, -45.0, -45.0, 0.0, 0.0, 45.0, 45.0, 90.0],
+        )
+        .unwrap();
+        w.add_unlimited_coordinate("time", &[units("year")])
+            .unwrap();
+        w.add_variable_f64(
+            "surface_temperature",
+            &["time", "lat"],
+            &[units("K"), ("standard_name", "surface_temperature".into())],
+        )
+        .unwrap();
+        w.add_variable_i32("stable", &["time"], &[]).unwrap();
+        w.add_dimension("tipping", 0).unwrap();
+        w.add_variable_f64("tipping_control", &["tipping"], &[])
+            .unwrap();
+        for i in 0..100 {
+            w.append_coordinate("time", f64::from(i)).unwrap();
+            let row: Vec<f64> = lat
+                .iter()
+                .map(|l| 288.0 - 0.5 * l.abs() + f64::from(i))
+                .collect();
+            w.append_row_f64("surface_temperature", &row).unwrap();
+            w.append_row_i32("stable", &[i % 2]).unwrap();
+            if i == 49 {
+                // What a writer killed right after this flush leaves behind.
+                w.flush().unwrap();
+                std::fs::copy(w.temp_path(), path.with_extension("killed.nc")).unwrap();
+            }
+        }
+        {
+            let mut g = w.group("sweep").unwrap();
+            g.set_attr_str("control_key", "solar.scale").unwrap();
+            g.add_coordinate("step", &[0.0, 1.0, 2.0], &[]).unwrap();
+            g.add_variable_f64("control", &["step"], &[]).unwrap();
+            g.write_f64("control", &[0.9, 1.0, 1.1]).unwrap();
+            g.add_variable_f64("profile", &["step", "lat"], &[])
+                .unwrap();
+            g.write_f64("profile", &[0.0; 12]).unwrap();
+        }
+        w.finish().unwrap();
+    }
+}
