@@ -41,7 +41,7 @@ pub struct Albedo {
     /// Freezing temperature in K.
     pub freeze: f64,
     /// Per band: distance from centre to lower face, and to the lower neighbour's centre
-    /// (0 where there is no neighbour).
+    /// (for the first band: to the upper neighbour's, whose line is extended; 0 for one band).
     half_lo: Vec<(f64, f64)>,
     /// Per band: distance from centre to upper face, and to the upper neighbour's centre.
     half_hi: Vec<(f64, f64)>,
@@ -52,16 +52,14 @@ fn half_bands(grid: &Grid) -> (Vec<(f64, f64)>, Vec<(f64, f64)>) {
     let n = grid.len();
     let xc = &grid.x_centres;
     let xf = &grid.x_faces;
+    // Outer half bands extend the line through the nearest two centres (so the ice fraction
+    // stays continuous when the outermost band crosses freezing).
+    let gap = |i: usize| if n > 1 { xc[i + 1] - xc[i] } else { 0.0 };
     let lo = (0..n)
-        .map(|i| (xc[i] - xf[i], if i > 0 { xc[i] - xc[i - 1] } else { 0.0 }))
+        .map(|i| (xc[i] - xf[i], if i > 0 { gap(i - 1) } else { gap(0) }))
         .collect();
     let hi = (0..n)
-        .map(|i| {
-            (
-                xf[i + 1] - xc[i],
-                if i + 1 < n { xc[i + 1] - xc[i] } else { 0.0 },
-            )
-        })
+        .map(|i| (xf[i + 1] - xc[i], if i + 1 < n { gap(i) } else if n > 1 { gap(n - 2) } else { 0.0 }))
         .collect();
     (lo, hi)
 }
@@ -126,12 +124,27 @@ impl Albedo {
         let ti = temps[i];
         let (hl, ll) = self.half_lo[i];
         let (hh, lh) = self.half_hi[i];
-        let tl = if i > 0 { temps[i - 1] } else { ti };
-        let th = if i + 1 < n { temps[i + 1] } else { ti };
+        if n == 1 {
+            let f = if ti < self.freeze { 1.0 } else { 0.0 };
+            return (f, [0.0; 3]);
+        }
+        // At an outer face the half band sees a virtual neighbour 2 T_i - T_other on the line
+        // through the two nearest centres.
+        let (tl, th) = match (i > 0, i + 1 < n) {
+            (true, true) => (temps[i - 1], temps[i + 1]),
+            (false, _) => (2.0 * ti - temps[1], temps[1]),
+            (true, false) => (temps[i - 1], 2.0 * ti - temps[i - 1]),
+        };
         let (ml, dl_i, dl_j) = half_cold(ti, tl, hl, ll, self.freeze);
         let (mh, dh_i, dh_j) = half_cold(ti, th, hh, lh, self.freeze);
         let w = hl + hh;
-        ((ml + mh) / w, [dl_j / w, (dl_i + dh_i) / w, dh_j / w])
+        // Chain rule through the virtual neighbour.
+        let (d_lo, d_mid, d_hi) = match (i > 0, i + 1 < n) {
+            (true, true) => (dl_j, dl_i + dh_i, dh_j),
+            (false, _) => (0.0, dl_i + dh_i + 2.0 * dl_j, dh_j - dl_j),
+            (true, false) => (dl_j - dh_j, dl_i + dh_i + 2.0 * dh_j, 0.0),
+        };
+        ((ml + mh) / w, [d_lo / w, d_mid / w, d_hi / w])
     }
 
     /// Albedo of every band, written into `out`.
@@ -181,15 +194,11 @@ impl Albedo {
         for i in 0..n {
             let xc = grid.x_centres[i];
             // The two half bands as (start x, end x, T at start, slope).
-            let slope_lo = if i > 0 {
-                (temps[i] - temps[i - 1]) / (xc - grid.x_centres[i - 1])
+            let seg = |k: usize| (temps[k + 1] - temps[k]) / (grid.x_centres[k + 1] - grid.x_centres[k]);
+            let (slope_lo, slope_hi) = if n == 1 {
+                (0.0, 0.0)
             } else {
-                0.0
-            };
-            let slope_hi = if i + 1 < n {
-                (temps[i + 1] - temps[i]) / (grid.x_centres[i + 1] - xc)
-            } else {
-                0.0
+                (seg(i.max(1) - 1), seg(i.min(n - 2)))
             };
             for (a, b, slope) in [
                 (grid.x_faces[i], xc, slope_lo),

@@ -52,6 +52,30 @@ pub enum Command {
         #[command(flatten)]
         output: OutputArgs,
     },
+    /// Solve for a steady state and its stability spectrum.
+    Equilibrium {
+        #[command(flatten)]
+        config: ConfigArgs,
+        #[command(flatten)]
+        output: OutputArgs,
+        /// Starting climate: the config's initial state, or a named one.
+        #[arg(long, value_enum, default_value = "config")]
+        start: equilibrium::Start,
+    },
+    /// Quasi-static two-way sweep of a control parameter with refined tipping points.
+    Sweep {
+        #[command(flatten)]
+        config: ConfigArgs,
+        #[command(flatten)]
+        output: OutputArgs,
+    },
+    /// Pseudo-arclength continuation of all equilibrium branches through folds.
+    Branches {
+        #[command(flatten)]
+        config: ConfigArgs,
+        #[command(flatten)]
+        output: OutputArgs,
+    },
     /// Validate a config and print it with every default filled in.
     Check {
         #[command(flatten)]
@@ -97,6 +121,9 @@ pub fn command_line() -> String {
 fn dispatch(cli: Cli) -> Result<(), Error> {
     match cli.command {
         Command::Run { config, output } => run::main(&config, &output),
+        Command::Equilibrium { config, output, start } => equilibrium::main(&config, &output, start),
+        Command::Sweep { config, output } => sweep::main(&config, &output),
+        Command::Branches { config, output } => branches::main(&config, &output),
         Command::Check { config } => check::main(&config),
         Command::Inspect { file } => inspect::main(&file),
         Command::Demo { out_dir } => Err(Error::Other(format!("demo not built yet: {}", out_dir.display()))),

@@ -37,6 +37,8 @@
 
 mod reader;
 mod writer;
+pub mod common;
+pub mod run_file;
 
 pub use reader::NcReader;
 pub use writer::{Attr, NcGroup, NcWriter};

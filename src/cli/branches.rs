@@ -1,0 +1,9 @@
+//! `icefold branches CONFIG`.
+
+use super::{ConfigArgs, OutputArgs};
+use crate::error::Error;
+
+/// Not yet wired (in progress on the tipping-point branch).
+pub fn main(_args: &ConfigArgs, _out: &OutputArgs) -> Result<(), Error> {
+    Err(Error::Other("icefold branches: in progress".into()))
+}

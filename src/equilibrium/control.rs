@@ -1,0 +1,135 @@
+//! A model as a function of one numeric config key (the control of sweeps and continuation).
+//!
+//! Common controls are applied to a built model directly (insolation, CO2, additive forcing,
+//! linear OLR, diffusivity); any other numeric key rebuilds the model from the re-validated
+//! config, which is slower but exact.
+
+use crate::config::{ConfigError, Loaded};
+use crate::longwave::{co2_forcing, Longwave};
+use crate::model::{Model, Sunlight};
+use crate::transport::Transport;
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum Fast {
+    SolarConstant,
+    Co2,
+    ConstantForcing,
+    SolarScale,
+    LinearA,
+    LinearB,
+    Diffusivity,
+}
+
+/// The model family `p -> Model` for one control key.
+#[derive(Debug, Clone)]
+pub struct Controlled {
+    /// The loaded config (its value of the key is the reference).
+    pub base: Loaded,
+    /// The dotted key.
+    pub key: String,
+    base_model: Model,
+    base_value: f64,
+    fast: Option<Fast>,
+}
+
+impl Controlled {
+    /// Set up for `key`; fails if the key is not numeric in the resolved config.
+    pub fn new(base: &Loaded, key: &str) -> Result<Controlled, ConfigError> {
+        let base_value = base.number(key).ok_or_else(|| ConfigError::Key {
+            path: base.source.clone(),
+            key: key.to_string(),
+            message: "not a numeric key of this configuration (is its section's kind using it?)".into(),
+        })?;
+        let base_model = Model::from_spec(&base.spec.model);
+        let fast = match key {
+            "insolation.solar_constant" if matches!(base_model.sunlight, Sunlight::Fixed(_)) && base_value > 0.0 => Some(Fast::SolarConstant),
+            "greenhouse.co2_ppm" => Some(Fast::Co2),
+            "forcing.constant_wm2" => Some(Fast::ConstantForcing),
+            "forcing.solar_scale" => Some(Fast::SolarScale),
+            "longwave.a" if matches!(base_model.longwave, Longwave::Linear { .. }) => Some(Fast::LinearA),
+            "longwave.b" if matches!(base_model.longwave, Longwave::Linear { .. }) => Some(Fast::LinearB),
+            "transport.diffusivity" if matches!(base_model.transport, Transport::Diffusive { .. }) && base_value > 0.0 => {
+                Some(Fast::Diffusivity)
+            }
+            _ => None,
+        };
+        // A forcing history overrides the constant drivers: vary those through a rebuild.
+        let fast = if base_model.forcing.is_some() { None } else { fast };
+        Ok(Controlled { base: base.clone(), key: key.to_string(), base_model, base_value, fast })
+    }
+
+    /// The reference value of the control.
+    pub fn base_value(&self) -> f64 {
+        self.base_value
+    }
+
+    /// The model at reference value.
+    pub fn base_model(&self) -> &Model {
+        &self.base_model
+    }
+
+    /// The model at control value `p`.
+    pub fn model_at(&self, p: f64) -> Result<Model, ConfigError> {
+        let mut m = self.base_model.clone();
+        self.apply(&mut m, p)?;
+        Ok(m)
+    }
+
+    /// Set `model` (built from this family) to control value `p`.
+    pub fn apply(&self, model: &mut Model, p: f64) -> Result<(), ConfigError> {
+        let b = &self.base_model;
+        match self.fast {
+            Some(Fast::SolarConstant) => {
+                if let (Sunlight::Fixed(dst), Sunlight::Fixed(src)) = (&mut model.sunlight, &b.sunlight) {
+                    let f = p / self.base_value;
+                    for (d, s) in dst.iter_mut().zip(src) {
+                        *d = s * f;
+                    }
+                }
+            }
+            Some(Fast::Co2) => {
+                let (_, reference, k) = self.base.spec.model.co2;
+                if p.is_nan() || p <= 0.0 {
+                    return Err(self.range(p, "allowed: CO2 above 0 ppm"));
+                }
+                model.drivers.greenhouse_wm2 = co2_forcing(k, p, reference);
+            }
+            Some(Fast::ConstantForcing) => model.drivers.extra_wm2 = p,
+            Some(Fast::SolarScale) => model.drivers.solar_scale = p,
+            Some(Fast::LinearA) => {
+                if let Longwave::Linear { a, .. } = &mut model.longwave {
+                    *a = p;
+                }
+            }
+            Some(Fast::LinearB) => {
+                if let Longwave::Linear { b, .. } = &mut model.longwave {
+                    *b = p;
+                }
+            }
+            Some(Fast::Diffusivity) => {
+                if let (Transport::Diffusive { face_k: dst, .. }, Transport::Diffusive { face_k: src, .. }) =
+                    (&mut model.transport, &b.transport)
+                {
+                    let f = p / self.base_value;
+                    for (d, s) in dst.iter_mut().zip(src) {
+                        *d = s * f;
+                    }
+                }
+            }
+            None => {
+                let cfg = self.base.with_value(&self.key, p)?;
+                *model = Model::from_spec(&cfg.spec.model);
+            }
+        }
+        Ok(())
+    }
+
+    fn range(&self, p: f64, allowed: &str) -> ConfigError {
+        ConfigError::Range {
+            path: self.base.source.clone(),
+            key: self.key.clone(),
+            value: p.to_string(),
+            allowed: allowed.to_string(),
+        }
+    }
+}
