@@ -1,7 +1,10 @@
 //! Command-line interface: clap definitions and one module per subcommand (DESIGN section 4).
 //! `main.rs` only calls `cli::main` and exits with its status.
 
+mod branches;
 mod check;
+mod equilibrium;
+mod sweep;
 
 mod inspect;
 pub mod progress;
