@@ -129,20 +129,32 @@ pub fn load(path: &Path, sets: &[String]) -> Result<Loaded, ConfigError> {
 pub fn load_str(text: &str, source: &str, base_dir: &Path, sets: &[String]) -> Result<Loaded, ConfigError> {
     let mut tree: toml::Value = toml::from_str(text).map_err(|e| ConfigError::Syntax {
         path: source.to_string(),
-        message: e.message().to_string()
+        message: e.message().trim().replace('\n', "; ")
             + &e
                 .span()
                 .map(|s| format!(" (at line {})", line_of(text, s.start)))
                 .unwrap_or_default(),
     })?;
+    let mut set_keys = Vec::new();
     for arg in sets {
         let (key, value) = parse_set(arg)?;
         set_dotted(&mut tree, &key, value).map_err(|message| ConfigError::Set {
             arg: arg.clone(),
             message,
         })?;
+        set_keys.push((key, arg.clone()));
     }
-    from_tree(tree, source, base_dir)
+    from_tree(tree, source, base_dir).map_err(|e| {
+        // Blame the --set argument when the failing key came from it.
+        let key = match &e {
+            ConfigError::Key { key, .. } | ConfigError::Range { key, .. } => Some(key.clone()),
+            _ => None,
+        };
+        match key.and_then(|k| set_keys.iter().find(|(s, _)| *s == k || k.starts_with(&format!("{s}.")) || s.starts_with(&format!("{k}.")))) {
+            Some((_, arg)) => ConfigError::Set { arg: arg.clone(), message: e.to_string() },
+            None => e,
+        }
+    })
 }
 
 fn line_of(text: &str, offset: usize) -> usize {

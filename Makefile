@@ -1,0 +1,46 @@
+# icefold: one-word entry points. `make demo` and `make test` do all set-up on a fresh machine.
+
+CARGO ?= cargo
+VENV := .venv
+PY := $(VENV)/bin/python
+BIN := target/release/icefold
+
+.PHONY: demo test test-rust test-python deps pyenv build bench gallery clippy fmt clean
+
+## Install what is missing (HDF5 C library, pkg-config), build, run the built-in demo.
+demo: deps
+	$(CARGO) run --release -- demo --out-dir outputs-demo
+
+## Every test: Rust unit and integration tests, then the Python reference checks.
+test: deps pyenv
+	$(CARGO) build --release
+	$(CARGO) test --release
+	ICEFOLD_BIN=$(CURDIR)/$(BIN) $(PY) -m pytest -q tests/python
+
+test-rust: deps
+	$(CARGO) test --release
+
+test-python: deps pyenv build
+	ICEFOLD_BIN=$(CURDIR)/$(BIN) $(PY) -m pytest -q tests/python
+
+deps:
+	@scripts/ensure-system-deps.sh
+
+pyenv:
+	@scripts/ensure-python-env.sh
+
+build: deps
+	$(CARGO) build --release
+
+bench: deps
+	$(CARGO) bench
+
+clippy:
+	$(CARGO) clippy --all-targets -- -D warnings
+
+fmt:
+	$(CARGO) fmt --all
+
+clean:
+	$(CARGO) clean
+	rm -rf $(VENV)
