@@ -24,7 +24,11 @@ fn classic(sets: &[String]) -> config::Loaded {
 fn per_band_step(c: &mut Criterion) {
     let mut g = c.benchmark_group("band_step");
     for bands in [45usize, 90, 180, 360] {
-        let cfg = classic(&[format!("grid.bands={bands}"), "initial.temperature_p2_k=0".into(), "initial.temperature_c=15".into()]);
+        let cfg = classic(&[
+            format!("grid.bands={bands}"),
+            "initial.temperature_p2_k=0".into(),
+            "initial.temperature_c=15".into(),
+        ]);
         let model = Model::from_spec(&cfg.spec.model);
         let y0 = model.initial_state(&cfg.spec.initial);
         let steps = 1000u64;
@@ -46,15 +50,22 @@ fn per_band_step(c: &mut Criterion) {
                 let mut out = vec![0.0; bands];
                 e.advance_to(0.05, &mut out).unwrap();
                 let s = e.stats();
-                eprintln!("{name} at {bands} bands: {} steps, {} evaluations per 0.05 model years", s.steps, s.rhs_evals);
+                eprintln!(
+                    "{name} at {bands} bands: {} steps, {} evaluations per 0.05 model years",
+                    s.steps, s.rhs_evals
+                );
                 g.throughput(Throughput::Elements(s.steps * bands as u64));
-                g.bench_with_input(BenchmarkId::new(format!("{name}_0.05yr"), bands), &bands, |b, _| {
-                    b.iter(|| {
-                        let mut e = Explicit::new(&model, scheme, 0.0, &y0, 1e-3, 1.0, false, u64::MAX);
-                        e.advance_to(0.05, &mut out).unwrap();
-                        black_box(out[0])
-                    })
-                });
+                g.bench_with_input(
+                    BenchmarkId::new(format!("{name}_0.05yr"), bands),
+                    &bands,
+                    |b, _| {
+                        b.iter(|| {
+                            let mut e = Explicit::new(&model, scheme, 0.0, &y0, 1e-3, 1.0, false, u64::MAX);
+                            e.advance_to(0.05, &mut out).unwrap();
+                            black_box(out[0])
+                        })
+                    },
+                );
             }
         }
     }
@@ -62,13 +73,21 @@ fn per_band_step(c: &mut Criterion) {
 }
 
 fn thousand_years(c: &mut Criterion) {
-    let cfg = classic(&["initial.temperature_p2_k=0".into(), "initial.temperature_c=15".into(), "time.years=1000".into()]);
+    let cfg = classic(&[
+        "initial.temperature_p2_k=0".into(),
+        "initial.temperature_c=15".into(),
+        "time.years=1000".into(),
+    ]);
     let model = Model::from_spec(&cfg.spec.model);
     let y0 = model.initial_state(&cfg.spec.initial);
     let mut integ = driver::integrator(&model, &cfg.spec.time, 0.0, &y0, 1000.0);
     let mut out = vec![0.0; model.len()];
     integ.advance_to(1000.0, &mut out).unwrap();
-    eprintln!("1000-year run, tolerance {} K: {:?}", cfg.spec.time.tolerance, integ.stats());
+    eprintln!(
+        "1000-year run, tolerance {} K: {:?}",
+        cfg.spec.time.tolerance,
+        integ.stats()
+    );
     c.bench_function("run_1000yr_90bands_to_equilibrium", |b| {
         b.iter(|| {
             let mut integ = driver::integrator(&model, &cfg.spec.time, 0.0, &y0, 1000.0);

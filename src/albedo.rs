@@ -59,7 +59,18 @@ fn half_bands(grid: &Grid) -> (Vec<(f64, f64)>, Vec<(f64, f64)>) {
         .map(|i| (xc[i] - xf[i], if i > 0 { gap(i - 1) } else { gap(0) }))
         .collect();
     let hi = (0..n)
-        .map(|i| (xf[i + 1] - xc[i], if i + 1 < n { gap(i) } else if n > 1 { gap(n - 2) } else { 0.0 }))
+        .map(|i| {
+            (
+                xf[i + 1] - xc[i],
+                if i + 1 < n {
+                    gap(i)
+                } else if n > 1 {
+                    gap(n - 2)
+                } else {
+                    0.0
+                },
+            )
+        })
         .collect();
     (lo, hi)
 }
@@ -235,8 +246,7 @@ mod tests {
         let fr: f64 = (0..10).map(|i| alb.ice_fraction(&t, i).0 * g.dx[i]).sum();
         // Find the crossing between centres.
         let k = (0..9).find(|&k| t[k] >= 263.0 && t[k + 1] < 263.0).unwrap();
-        let xs = g.x_centres[k]
-            + (263.0 - t[k]) / (t[k + 1] - t[k]) * (g.x_centres[k + 1] - g.x_centres[k]);
+        let xs = g.x_centres[k] + (263.0 - t[k]) / (t[k + 1] - t[k]) * (g.x_centres[k + 1] - g.x_centres[k]);
         assert_relative_eq!(fr, 1.0 - xs, epsilon = 1e-13);
         assert_relative_eq!(alb.ice_measure_in(&g, &t, 0.0, 1.0), 1.0 - xs, epsilon = 1e-13);
     }
@@ -251,7 +261,11 @@ mod tests {
             AlbedoForm::Smooth { width: 3.0 },
             AlbedoForm::Ramp { width: 8.0 },
         ] {
-            let t: Vec<f64> = g.x_centres.iter().map(|x| 290.0 - 40.0 * x * x + 3.0 * x).collect();
+            let t: Vec<f64> = g
+                .x_centres
+                .iter()
+                .map(|x| 290.0 - 40.0 * x * x + 3.0 * x)
+                .collect();
             let alb = Albedo::new(&g, form, vec![0.3; 12], 0.62, 263.15);
             for i in 0..12 {
                 let (_, d) = alb.band(&t, i);
@@ -265,7 +279,11 @@ mod tests {
                     let mut tm = t.clone();
                     tm[j as usize] -= h;
                     let fd = (alb.band(&tp, i).0 - alb.band(&tm, i).0) / (2.0 * h);
-                    assert!((fd - d[k]).abs() < 1e-7, "{form:?} band {i} k {k}: {fd} vs {}", d[k]);
+                    assert!(
+                        (fd - d[k]).abs() < 1e-7,
+                        "{form:?} band {i} k {k}: {fd} vs {}",
+                        d[k]
+                    );
                 }
             }
         }

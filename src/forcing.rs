@@ -48,20 +48,45 @@ pub struct ForcingSeries {
 
 impl ForcingSeries {
     /// Parse CSV text.
-    pub fn parse(text: &str, interpolation: Interpolation, hold: bool) -> Result<ForcingSeries, ForcingError> {
+    pub fn parse(
+        text: &str,
+        interpolation: Interpolation,
+        hold: bool,
+    ) -> Result<ForcingSeries, ForcingError> {
         let err = |line: usize, m: String| ForcingError { line, message: m };
-        let mut lines = text.lines().enumerate().map(|(i, l)| (i + 1, l.trim())).filter(|(_, l)| !l.is_empty() && !l.starts_with('#'));
-        let (hl, header) = lines.next().ok_or_else(|| err(0, "empty forcing file; expected a header such as `year,co2_ppm`".into()))?;
+        let mut lines = text
+            .lines()
+            .enumerate()
+            .map(|(i, l)| (i + 1, l.trim()))
+            .filter(|(_, l)| !l.is_empty() && !l.starts_with('#'));
+        let (hl, header) = lines.next().ok_or_else(|| {
+            err(
+                0,
+                "empty forcing file; expected a header such as `year,co2_ppm`".into(),
+            )
+        })?;
         let names: Vec<&str> = header.split(',').map(str::trim).collect();
         if names.first() != Some(&"year") {
-            return Err(err(hl, format!("the first column must be `year`, found `{}`", names.first().unwrap_or(&""))));
+            return Err(err(
+                hl,
+                format!(
+                    "the first column must be `year`, found `{}`",
+                    names.first().unwrap_or(&"")
+                ),
+            ));
         }
         if names.len() < 2 {
-            return Err(err(hl, format!("no forcing columns; allowed: {}", COLUMNS.join(", "))));
+            return Err(err(
+                hl,
+                format!("no forcing columns; allowed: {}", COLUMNS.join(", ")),
+            ));
         }
         for (k, n) in names.iter().enumerate().skip(1) {
             if !COLUMNS.contains(n) {
-                return Err(err(hl, format!("unknown column `{n}`; allowed: {}", COLUMNS.join(", "))));
+                return Err(err(
+                    hl,
+                    format!("unknown column `{n}`; allowed: {}", COLUMNS.join(", ")),
+                ));
             }
             if names[1..k].contains(n) {
                 return Err(err(hl, format!("column `{n}` appears twice")));
@@ -76,17 +101,25 @@ impl ForcingSeries {
             }
             let fields: Vec<&str> = line.split(',').map(str::trim).collect();
             if fields.len() != ncol {
-                return Err(err(ln, format!("expected {ncol} fields ({header}), found {}", fields.len())));
+                return Err(err(
+                    ln,
+                    format!("expected {ncol} fields ({header}), found {}", fields.len()),
+                ));
             }
             for (k, f) in fields.iter().enumerate() {
-                let v: f64 = f.parse().map_err(|_| err(ln, format!("`{f}` in column `{}` is not a number", names[k])))?;
+                let v: f64 = f
+                    .parse()
+                    .map_err(|_| err(ln, format!("`{f}` in column `{}` is not a number", names[k])))?;
                 if !v.is_finite() {
                     return Err(err(ln, format!("`{f}` in column `{}` is not finite", names[k])));
                 }
                 if k == 0 {
                     if let Some(&prev) = years.last() {
                         if v <= prev {
-                            return Err(err(ln, format!("years must increase strictly: {v} follows {prev}")));
+                            return Err(err(
+                                ln,
+                                format!("years must increase strictly: {v} follows {prev}"),
+                            ));
                         }
                     }
                     years.push(v);
@@ -102,7 +135,13 @@ impl ForcingSeries {
                             "solar_scale" => "0 or more",
                             _ => "from -10000 to 10000",
                         };
-                        return Err(err(ln, format!("{v} in column `{}` is out of range (allowed: {allowed})", names[k])));
+                        return Err(err(
+                            ln,
+                            format!(
+                                "{v} in column `{}` is out of range (allowed: {allowed})",
+                                names[k]
+                            ),
+                        ));
                     }
                     cols[k - 1].push(v);
                 }
@@ -176,7 +215,13 @@ pub struct SeriesDrivers {
 
 impl SeriesDrivers {
     /// Combine a series with the configured drivers.
-    pub fn new(series: ForcingSeries, base: Drivers, co2_ppm: f64, reference_ppm: f64, log_coefficient: f64) -> SeriesDrivers {
+    pub fn new(
+        series: ForcingSeries,
+        base: Drivers,
+        co2_ppm: f64,
+        reference_ppm: f64,
+        log_coefficient: f64,
+    ) -> SeriesDrivers {
         SeriesDrivers {
             co2_col: series.column("co2_ppm"),
             solar_col: series.column("solar_scale"),

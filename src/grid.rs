@@ -90,9 +90,7 @@ impl Grid {
         let dx: Vec<f64> = (0..n).map(|i| x_faces[i + 1] - x_faces[i]).collect();
         let total = hi - lo;
         let weights = dx.iter().map(|d| d / total).collect();
-        let p2_mean = (0..n)
-            .map(|i| p2_band_mean(x_faces[i], x_faces[i + 1]))
-            .collect();
+        let p2_mean = (0..n).map(|i| p2_band_mean(x_faces[i], x_faces[i + 1])).collect();
         Grid {
             domain,
             spacing,

@@ -131,13 +131,7 @@ pub fn orbit_at(t_years: f64, obliquity: f64, ecc: f64, perihelion: f64) -> Orbi
 }
 
 /// Band means of the daily-mean insolation (W m-2) at one orbit position.
-pub fn daily_mean_bands(
-    grid: &Grid,
-    rule: &ClusteredRule,
-    s0: f64,
-    at: OrbitPoint,
-    out: &mut [f64],
-) {
+pub fn daily_mean_bands(grid: &Grid, rule: &ClusteredRule, s0: f64, at: OrbitPoint, out: &mut [f64]) {
     let cd = (1.0 - at.sin_delta * at.sin_delta).sqrt();
     for (i, o) in out.iter_mut().enumerate() {
         let (a, b) = (grid.x_faces[i], grid.x_faces[i + 1]);
@@ -188,7 +182,11 @@ mod tests {
         // orbit); at an equinox the equator gets S0/pi.
         let eps = 23.44_f64.to_radians();
         let sd = eps.sin();
-        assert_relative_eq!(1361.0 * daily_mean_shape(1.0, sd, eps.cos()), 1361.0 * sd, epsilon = 1e-9);
+        assert_relative_eq!(
+            1361.0 * daily_mean_shape(1.0, sd, eps.cos()),
+            1361.0 * sd,
+            epsilon = 1e-9
+        );
         assert_relative_eq!(daily_mean_shape(0.0, 0.0, 1.0), 1.0 / PI, epsilon = 1e-15);
         let at = orbit_at(0.25, eps, 0.0, 0.0);
         assert_relative_eq!(at.sin_delta, sd, epsilon = 1e-12);

@@ -148,7 +148,10 @@ impl TridiagLu {
             self.z = z;
             self.denom = 1.0 + dot(&self.weights, &self.z);
             if self.denom.abs() < 1e-300 {
-                return Err(SingularMatrix { row: n, pivot: self.denom });
+                return Err(SingularMatrix {
+                    row: n,
+                    pivot: self.denom,
+                });
             }
             self.has_rank_one = true;
         }

@@ -181,7 +181,10 @@ mod tests {
         // Common practice: dry adiabatic lapse rate g/cp = 9.80665/1004 = 9.77 K/km ~ 9.8 K/km.
         let g_over_cp = 9.80665 / 1004.0 * 1000.0;
         assert_relative_eq!(g_over_cp, 9.8, epsilon = 0.05);
-        let lw = Longwave::EmissionLevel { lapse_rate: 6.5, height: 5.0 };
+        let lw = Longwave::EmissionLevel {
+            lapse_rate: 6.5,
+            height: 5.0,
+        };
         let (v, _) = lw.eval(288.0);
         assert_relative_eq!(v, STEFAN_BOLTZMANN * (288.0_f64 - 32.5).powi(4), epsilon = 1e-9);
     }

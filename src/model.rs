@@ -164,9 +164,7 @@ impl Model {
         for i in 0..temps.len() {
             let (alb, _) = self.albedo.band(temps, i);
             let (olr, _) = self.longwave.eval(temps[i]);
-            out[i] = d.solar_scale * sun[i] * (1.0 - alb) - (olr - d.greenhouse_wm2)
-                + conv[i]
-                + d.extra_wm2;
+            out[i] = d.solar_scale * sun[i] * (1.0 - alb) - (olr - d.greenhouse_wm2) + conv[i] + d.extra_wm2;
         }
         ws.conv = conv;
     }
@@ -274,7 +272,13 @@ impl Model {
             }
             InsolationForm::AnnualMean => {
                 let mut s = vec![0.0; n];
-                insolation::annual_mean_bands(&grid, ins.solar_constant, ins.obliquity, ins.eccentricity, &mut s);
+                insolation::annual_mean_bands(
+                    &grid,
+                    ins.solar_constant,
+                    ins.obliquity,
+                    ins.eccentricity,
+                    &mut s,
+                );
                 Sunlight::Fixed(s)
             }
             InsolationForm::Seasonal => Sunlight::Seasonal {
@@ -286,7 +290,11 @@ impl Model {
             },
         };
         let a = &spec.albedo;
-        let ice_free = grid.p2_mean.iter().map(|p| a.ice_free + a.ice_free_p2 * p).collect();
+        let ice_free = grid
+            .p2_mean
+            .iter()
+            .map(|p| a.ice_free + a.ice_free_p2 * p)
+            .collect();
         let albedo = Albedo::new(&grid, a.form, ice_free, a.ice, a.freeze_k);
         let transport = match spec.transport {
             TransportSpec::Diffusive { d0, d2 } => Transport::diffusive(&grid, d0, d2),
@@ -318,7 +326,13 @@ impl Model {
                     extra_wm2: spec.extra_wm2,
                 };
                 let (co2, reference, k) = spec.co2;
-                std::sync::Arc::new(crate::forcing::SeriesDrivers::new((**series).clone(), base, co2, reference, k)) as _
+                std::sync::Arc::new(crate::forcing::SeriesDrivers::new(
+                    (**series).clone(),
+                    base,
+                    co2,
+                    reference,
+                    k,
+                )) as _
             }),
         }
     }

@@ -46,31 +46,151 @@ fn files_in(dir: &Path) -> Vec<String> {
 fn bad_inputs_exit_2_with_a_clear_message_and_no_output() {
     let table_bad = "temperature_k,olr_wm2\n200,100\n250,150\n240,160\n";
     let mut cases = vec![
-        case("unknown key", "[albedo]\nicee = 0.6\n", &[], &["albedo.icee", "unknown field", "expected one of"]),
-        case("unknown section", "[gird]\nbands = 3\n", &[], &["gird", "unknown field"]),
-        case("wrong type", "[grid]\nbands = \"ninety\"\n", &[], &["grid.bands", "invalid type"]),
-        case("negative bands", "[grid]\nbands = -3\n", &[], &["grid.bands", "-3", "from 1 to"]),
-        case("albedo above 1", "[albedo]\nice = 1.3\n", &[], &["albedo.ice", "1.3", "from 0 to 1"]),
-        case("NaN value", "[longwave]\nb = nan\n", &[], &["longwave.b", "NaN", "finite"]),
-        case("infinite value", "[insolation]\nsolar_constant = inf\n", &[], &["insolation.solar_constant", "inf"]),
-        case("freezing temperature as text", "[albedo]\nfreeze_temperature_c = \"cold\"\n", &[], &["albedo.freeze_temperature_c", "invalid type"]),
-        case("unknown kind", "[albedo]\nkind = \"stepp\"\n", &[], &["albedo.kind", "\"stepp\"", "\"step\", \"smooth\", \"ramp\""]),
-        case("TOML syntax", "[grid\nbands = 3\n", &[], &["TOML syntax error", "line 1"]),
-        case("missing table file", "[longwave]\nkind = \"table\"\ntable = \"missing.csv\"\n", &[], &["missing.csv", "cannot read OLR table"]),
-        case("table without path", "[longwave]\nkind = \"table\"\n", &[], &["longwave.table", "required"]),
-        case("explicit with fixed step", "[time]\nmethod = \"dopri5\"\nstep_days = 1\n", &[], &["time.step_days", "implicit"]),
-        case("two heat capacities", "[heat_capacity]\nvalue = 1e8\nmixed_layer_depth_m = 50\n", &[], &["heat_capacity", "not both"]),
-        case("ice-free albedo above 1 at the pole", "[albedo]\nice_free = 0.6\nice_free_p2 = 0.5\n", &[], &["albedo.ice_free_p2", "pole"]),
-        case("land fraction list length", "[grid]\nbands = 4\n[heat_capacity]\nland_fraction = [0.1, 0.2]\n", &[], &["heat_capacity.land_fraction", "grid.bands = 4"]),
-        case("--set unknown key", "", &["--set", "transport.diffusivityy=1"], &["--set transport.diffusivityy=1", "unknown field"]),
-        case("--set malformed", "", &["--set", "transport.diffusivity"], &["--set transport.diffusivity", "KEY=VALUE"]),
-        case("--set out of range", "", &["--set", "grid.bands=0"], &["--set grid.bands=0", "grid.bands"]),
-        case("--set NaN", "", &["--set", "transport.diffusivity=nan"], &["transport.diffusivity", "NaN"]),
-        case("unwritable output path", "", &["-o", "/nonexistent-icefold-dir/out.nc"], &["/nonexistent-icefold-dir", "does not exist"]),
-        case("forcing file text in a number", "[forcing]\nfile = \"f.csv\"\n", &[], &["f.csv:3", "not a number"]),
-        case("forcing file not covering the run", "[forcing]\nfile = \"short.csv\"\n", &[], &["short.csv", "covers years 0 to 1", "hold"]),
+        case(
+            "unknown key",
+            "[albedo]\nicee = 0.6\n",
+            &[],
+            &["albedo.icee", "unknown field", "expected one of"],
+        ),
+        case(
+            "unknown section",
+            "[gird]\nbands = 3\n",
+            &[],
+            &["gird", "unknown field"],
+        ),
+        case(
+            "wrong type",
+            "[grid]\nbands = \"ninety\"\n",
+            &[],
+            &["grid.bands", "invalid type"],
+        ),
+        case(
+            "negative bands",
+            "[grid]\nbands = -3\n",
+            &[],
+            &["grid.bands", "-3", "from 1 to"],
+        ),
+        case(
+            "albedo above 1",
+            "[albedo]\nice = 1.3\n",
+            &[],
+            &["albedo.ice", "1.3", "from 0 to 1"],
+        ),
+        case(
+            "NaN value",
+            "[longwave]\nb = nan\n",
+            &[],
+            &["longwave.b", "NaN", "finite"],
+        ),
+        case(
+            "infinite value",
+            "[insolation]\nsolar_constant = inf\n",
+            &[],
+            &["insolation.solar_constant", "inf"],
+        ),
+        case(
+            "freezing temperature as text",
+            "[albedo]\nfreeze_temperature_c = \"cold\"\n",
+            &[],
+            &["albedo.freeze_temperature_c", "invalid type"],
+        ),
+        case(
+            "unknown kind",
+            "[albedo]\nkind = \"stepp\"\n",
+            &[],
+            &["albedo.kind", "\"stepp\"", "\"step\", \"smooth\", \"ramp\""],
+        ),
+        case(
+            "TOML syntax",
+            "[grid\nbands = 3\n",
+            &[],
+            &["TOML syntax error", "line 1"],
+        ),
+        case(
+            "missing table file",
+            "[longwave]\nkind = \"table\"\ntable = \"missing.csv\"\n",
+            &[],
+            &["missing.csv", "cannot read OLR table"],
+        ),
+        case(
+            "table without path",
+            "[longwave]\nkind = \"table\"\n",
+            &[],
+            &["longwave.table", "required"],
+        ),
+        case(
+            "explicit with fixed step",
+            "[time]\nmethod = \"dopri5\"\nstep_days = 1\n",
+            &[],
+            &["time.step_days", "implicit"],
+        ),
+        case(
+            "two heat capacities",
+            "[heat_capacity]\nvalue = 1e8\nmixed_layer_depth_m = 50\n",
+            &[],
+            &["heat_capacity", "not both"],
+        ),
+        case(
+            "ice-free albedo above 1 at the pole",
+            "[albedo]\nice_free = 0.6\nice_free_p2 = 0.5\n",
+            &[],
+            &["albedo.ice_free_p2", "pole"],
+        ),
+        case(
+            "land fraction list length",
+            "[grid]\nbands = 4\n[heat_capacity]\nland_fraction = [0.1, 0.2]\n",
+            &[],
+            &["heat_capacity.land_fraction", "grid.bands = 4"],
+        ),
+        case(
+            "--set unknown key",
+            "",
+            &["--set", "transport.diffusivityy=1"],
+            &["--set transport.diffusivityy=1", "unknown field"],
+        ),
+        case(
+            "--set malformed",
+            "",
+            &["--set", "transport.diffusivity"],
+            &["--set transport.diffusivity", "KEY=VALUE"],
+        ),
+        case(
+            "--set out of range",
+            "",
+            &["--set", "grid.bands=0"],
+            &["--set grid.bands=0", "grid.bands"],
+        ),
+        case(
+            "--set NaN",
+            "",
+            &["--set", "transport.diffusivity=nan"],
+            &["transport.diffusivity", "NaN"],
+        ),
+        case(
+            "unwritable output path",
+            "",
+            &["-o", "/nonexistent-icefold-dir/out.nc"],
+            &["/nonexistent-icefold-dir", "does not exist"],
+        ),
+        case(
+            "forcing file text in a number",
+            "[forcing]\nfile = \"f.csv\"\n",
+            &[],
+            &["f.csv:3", "not a number"],
+        ),
+        case(
+            "forcing file not covering the run",
+            "[forcing]\nfile = \"short.csv\"\n",
+            &[],
+            &["short.csv", "covers years 0 to 1", "hold"],
+        ),
     ];
-    let mut t = case("non-monotonic OLR table", "[longwave]\nkind = \"table\"\ntable = \"olr.csv\"\n", &[], &["olr.csv:4", "increase strictly"]);
+    let mut t = case(
+        "non-monotonic OLR table",
+        "[longwave]\nkind = \"table\"\ntable = \"olr.csv\"\n",
+        &[],
+        &["olr.csv:4", "increase strictly"],
+    );
     t.files.push(("olr.csv", table_bad));
     cases.push(t);
     for c in cases.iter_mut() {
@@ -85,19 +205,52 @@ fn bad_inputs_exit_2_with_a_clear_message_and_no_output() {
     for (k, c) in cases.iter().enumerate() {
         let dir = tempdir(&format!("{k}"));
         let cfg = dir.join("case.toml");
-        let text = if c.config.is_empty() { BASE.to_string() } else { format!("{}\n{}", c.config, if c.config.contains("[grid]") { "" } else { "[grid]\nbands = 6\n" }) };
+        let text = if c.config.is_empty() {
+            BASE.to_string()
+        } else {
+            format!(
+                "{}\n{}",
+                c.config,
+                if c.config.contains("[grid]") {
+                    ""
+                } else {
+                    "[grid]\nbands = 6\n"
+                }
+            )
+        };
         std::fs::write(&cfg, text).unwrap();
         for (name, body) in &c.files {
             std::fs::write(dir.join(name), body).unwrap();
         }
         let before = files_in(&dir);
-        let out = Command::new(BIN).current_dir(&dir).arg("run").arg(&cfg).args(&c.args).output().unwrap();
+        let out = Command::new(BIN)
+            .current_dir(&dir)
+            .arg("run")
+            .arg(&cfg)
+            .args(&c.args)
+            .output()
+            .unwrap();
         let stderr = String::from_utf8_lossy(&out.stderr);
-        assert_eq!(out.status.code(), Some(2), "{}: exit {:?}, stderr: {stderr}", c.name, out.status.code());
+        assert_eq!(
+            out.status.code(),
+            Some(2),
+            "{}: exit {:?}, stderr: {stderr}",
+            c.name,
+            out.status.code()
+        );
         for frag in &c.expect {
-            assert!(stderr.contains(frag), "{}: message lacks `{frag}`: {stderr}", c.name);
+            assert!(
+                stderr.contains(frag),
+                "{}: message lacks `{frag}`: {stderr}",
+                c.name
+            );
         }
-        assert_eq!(stderr.trim().lines().count(), 1, "{}: one message line expected: {stderr}", c.name);
+        assert_eq!(
+            stderr.trim().lines().count(),
+            1,
+            "{}: one message line expected: {stderr}",
+            c.name
+        );
         assert_eq!(files_in(&dir), before, "{}: files left behind", c.name);
         let _ = std::fs::remove_dir_all(&dir);
     }
@@ -106,18 +259,35 @@ fn bad_inputs_exit_2_with_a_clear_message_and_no_output() {
 #[test]
 fn missing_config_and_existing_output() {
     let dir = tempdir("misc");
-    let out = Command::new(BIN).current_dir(&dir).args(["run", "nope.toml"]).output().unwrap();
+    let out = Command::new(BIN)
+        .current_dir(&dir)
+        .args(["run", "nope.toml"])
+        .output()
+        .unwrap();
     assert_eq!(out.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&out.stderr).contains("cannot read config file nope.toml"));
     // An existing output is kept unless --overwrite is given.
     std::fs::write(dir.join("c.toml"), BASE).unwrap();
     std::fs::write(dir.join("o.nc"), b"precious").unwrap();
-    let out = Command::new(BIN).current_dir(&dir).args(["run", "c.toml", "-o", "o.nc"]).output().unwrap();
+    let out = Command::new(BIN)
+        .current_dir(&dir)
+        .args(["run", "c.toml", "-o", "o.nc"])
+        .output()
+        .unwrap();
     assert_eq!(out.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&out.stderr).contains("--overwrite"));
     assert_eq!(std::fs::read(dir.join("o.nc")).unwrap(), b"precious");
-    let out = Command::new(BIN).current_dir(&dir).args(["run", "c.toml", "-o", "o.nc", "--overwrite"]).output().unwrap();
-    assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+    let out = Command::new(BIN)
+        .current_dir(&dir)
+        .args(["run", "c.toml", "-o", "o.nc", "--overwrite"])
+        .output()
+        .unwrap();
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
     assert_ne!(std::fs::read(dir.join("o.nc")).unwrap(), b"precious");
     assert_eq!(files_in(&dir), vec!["c.toml".to_string(), "o.nc".to_string()]);
     let _ = std::fs::remove_dir_all(&dir);
@@ -135,10 +305,17 @@ fn blow_up_exits_3_naming_time_and_latitude() {
         "[grid]\nbands = 6\n[longwave]\nkind = \"table\"\ntable = \"olr.csv\"\n[time]\nyears = 200\n",
     )
     .unwrap();
-    let out = Command::new(BIN).current_dir(&dir).args(["run", "c.toml", "-o", "b.nc"]).output().unwrap();
+    let out = Command::new(BIN)
+        .current_dir(&dir)
+        .args(["run", "c.toml", "-o", "b.nc"])
+        .output()
+        .unwrap();
     let stderr = String::from_utf8_lossy(&out.stderr);
     assert_eq!(out.status.code(), Some(3), "{stderr}");
-    assert!(stderr.contains("model year") && stderr.contains("latitude"), "{stderr}");
+    assert!(
+        stderr.contains("model year") && stderr.contains("latitude"),
+        "{stderr}"
+    );
     let r = icefold::output::NcReader::open(&dir.join("b.nc")).unwrap();
     assert_eq!(r.attr_i64("complete").unwrap(), Some(0));
     assert!(r.attr_str("failure").unwrap().unwrap().contains("latitude"));

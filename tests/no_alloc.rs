@@ -26,17 +26,41 @@ static A: Counting = Counting;
 
 #[test]
 fn implicit_steps_do_not_allocate() {
-    let text = std::fs::read_to_string(concat!(env!("CARGO_MANIFEST_DIR"), "/configs/classic-step-albedo.toml")).unwrap();
-    for sets in [vec![], vec!["transport.kind=\"relaxation\"".to_string(), "albedo.kind=\"smooth\"".to_string()]] {
+    let text = std::fs::read_to_string(concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/configs/classic-step-albedo.toml"
+    ))
+    .unwrap();
+    for sets in [
+        vec![],
+        vec![
+            "transport.kind=\"relaxation\"".to_string(),
+            "albedo.kind=\"smooth\"".to_string(),
+        ],
+    ] {
         let cfg = config::load_str(&text, "t", Path::new("."), &sets).unwrap();
         let model = Model::from_spec(&cfg.spec.model);
         let y0 = model.initial_state(&cfg.spec.initial);
-        let mut r = Ros2::new(&model, 0.0, &y0, 1e6, StepPolicy::Adaptive { tolerance: 1e-3, max_step: 10.0 }, u64::MAX);
+        let mut r = Ros2::new(
+            &model,
+            0.0,
+            &y0,
+            1e6,
+            StepPolicy::Adaptive {
+                tolerance: 1e-3,
+                max_step: 10.0,
+            },
+            u64::MAX,
+        );
         r.step().unwrap();
         let before = ALLOCS.load(Ordering::Relaxed);
         for _ in 0..200 {
             r.step().unwrap();
         }
-        assert_eq!(ALLOCS.load(Ordering::Relaxed) - before, 0, "{sets:?}: allocations in 200 steps");
+        assert_eq!(
+            ALLOCS.load(Ordering::Relaxed) - before,
+            0,
+            "{sets:?}: allocations in 200 steps"
+        );
     }
 }

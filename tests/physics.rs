@@ -14,12 +14,18 @@ fn load(text: &str, sets: &[&str]) -> Loaded {
 }
 
 fn classic() -> String {
-    std::fs::read_to_string(concat!(env!("CARGO_MANIFEST_DIR"), "/configs/classic-step-albedo.toml")).unwrap()
+    std::fs::read_to_string(concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/configs/classic-step-albedo.toml"
+    ))
+    .unwrap()
 }
 
 fn equilibrium(model: &Model, start_k: f64) -> Vec<f64> {
     let y0 = vec![start_k; model.len()];
-    newton(model, 0.0, &y0, NewtonOptions::default()).expect("Newton converges").state
+    newton(model, 0.0, &y0, NewtonOptions::default())
+        .expect("Newton converges")
+        .state
 }
 
 /// Ice-free exact solution (North 1975, J. Atmos. Sci. 32): with constant D, ice-free albedo
@@ -60,7 +66,10 @@ fn ice_free_exact_solution_and_second_order_convergence() {
     // Second order: halving dx divides the error by 4 (3.5..4.5 allows the higher-order terms).
     for (coarse, fine) in [(e45, e90), (e90, e180)] {
         let ratio = coarse / fine;
-        assert!((3.5..4.5).contains(&ratio), "convergence ratio {ratio} ({coarse} / {fine})");
+        assert!(
+            (3.5..4.5).contains(&ratio),
+            "convergence ratio {ratio} ({coarse} / {fine})"
+        );
     }
 }
 
@@ -71,7 +80,11 @@ fn equilibrium_closes_the_global_energy_budget() {
     // budget closes to that level plus round-off.
     for sets in [
         vec![],
-        vec!["grid.domain=\"globe\"", "grid.spacing=\"equal_angle\"", "albedo.kind=\"smooth\""],
+        vec![
+            "grid.domain=\"globe\"",
+            "grid.spacing=\"equal_angle\"",
+            "albedo.kind=\"smooth\"",
+        ],
         vec!["transport.kind=\"relaxation\"", "insolation.kind=\"annual_mean\""],
     ] {
         let cfg = load(&classic(), &sets);
@@ -117,7 +130,10 @@ fn one_band_gray_body_planet_is_at_254_6_kelvin() {
 #[test]
 fn co2_doubling_forcing_is_3_71() {
     // Myhre et al. (1998): 5.35 ln 2 = 3.708 W m-2; through the config and the model drivers.
-    let cfg = load(&classic(), &["greenhouse.co2_ppm=560", "greenhouse.reference_co2_ppm=280"]);
+    let cfg = load(
+        &classic(),
+        &["greenhouse.co2_ppm=560", "greenhouse.reference_co2_ppm=280"],
+    );
     let model = Model::from_spec(&cfg.spec.model);
     assert!((model.drivers.greenhouse_wm2 - 3.708).abs() < 1e-3);
 }
@@ -141,13 +157,30 @@ fn run_to(cfg: &Loaded, sets: &[&str], years: f64) -> Vec<f64> {
 fn dopri5_dop853_and_implicit_agree_after_100_years() {
     // Common practice: independent schemes on the same discrete equations agree to within
     // their tolerances. Tolerances 1e-6 K per step give global errors well below 0.01 K.
-    let cfg = load(&classic(), &["grid.bands=18", "time.tolerance=1e-6", "time.stiffness_check=false"]);
+    let cfg = load(
+        &classic(),
+        &[
+            "grid.bands=18",
+            "time.tolerance=1e-6",
+            "time.stiffness_check=false",
+        ],
+    );
     let imp = run_to(&cfg, &["time.method=\"implicit\""], 100.0);
     let d5 = run_to(&cfg, &["time.method=\"dopri5\""], 100.0);
     let d8 = run_to(&cfg, &["time.method=\"dop853\""], 100.0);
     for i in 0..imp.len() {
-        assert!((imp[i] - d5[i]).abs() < 0.01, "band {i}: implicit {} dopri5 {}", imp[i], d5[i]);
-        assert!((imp[i] - d8[i]).abs() < 0.01, "band {i}: implicit {} dop853 {}", imp[i], d8[i]);
+        assert!(
+            (imp[i] - d5[i]).abs() < 0.01,
+            "band {i}: implicit {} dopri5 {}",
+            imp[i],
+            d5[i]
+        );
+        assert!(
+            (imp[i] - d8[i]).abs() < 0.01,
+            "band {i}: implicit {} dop853 {}",
+            imp[i],
+            d8[i]
+        );
     }
 }
 
@@ -156,10 +189,22 @@ fn implicit_scheme_is_second_order() {
     // ROS2 is second order (Verwer et al. 1999): halving the fixed step divides the error at a
     // fixed time by ~4. Smooth albedo keeps the right-hand side smooth; the reference is a run
     // with a 16x shorter step (its own error is 256x smaller than the coarsest).
-    let cfg = load(&classic(), &["grid.bands=30", "albedo.kind=\"smooth\"", "heat_capacity.value=2e7"]);
+    let cfg = load(
+        &classic(),
+        &[
+            "grid.bands=30",
+            "albedo.kind=\"smooth\"",
+            "heat_capacity.value=2e7",
+        ],
+    );
     let at = |days: f64| run_to(&cfg, &[&format!("time.step_days={days}")], 5.0);
     let reference = at(365.25 / 64.0);
-    let err = |y: &[f64]| y.iter().zip(&reference).map(|(a, b)| (a - b).abs()).fold(0.0, f64::max);
+    let err = |y: &[f64]| {
+        y.iter()
+            .zip(&reference)
+            .map(|(a, b)| (a - b).abs())
+            .fold(0.0, f64::max)
+    };
     let e1 = err(&at(365.25 / 4.0));
     let e2 = err(&at(365.25 / 8.0));
     let e3 = err(&at(365.25 / 16.0));

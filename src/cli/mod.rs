@@ -118,13 +118,20 @@ pub fn main() -> i32 {
 
 /// The command line as one string, for provenance.
 pub fn command_line() -> String {
-    std::env::args().map(|a| if a.contains(' ') { format!("'{a}'") } else { a }).collect::<Vec<_>>().join(" ")
+    std::env::args()
+        .map(|a| if a.contains(' ') { format!("'{a}'") } else { a })
+        .collect::<Vec<_>>()
+        .join(" ")
 }
 
 fn dispatch(cli: Cli) -> Result<(), Error> {
     match cli.command {
         Command::Run { config, output } => run::main(&config, &output),
-        Command::Equilibrium { config, output, start } => equilibrium::main(&config, &output, start),
+        Command::Equilibrium {
+            config,
+            output,
+            start,
+        } => equilibrium::main(&config, &output, start),
         Command::Sweep { config, output } => sweep::main(&config, &output),
         Command::Branches { config, output } => branches::main(&config, &output),
         Command::Check { config } => check::main(&config),
@@ -141,7 +148,10 @@ pub fn load(args: &ConfigArgs) -> Result<Loaded, Error> {
 /// Decide the output path and refuse to replace an existing file without `--overwrite`.
 pub fn output_path(args: &OutputArgs, config: &Path, command: &str) -> Result<PathBuf, Error> {
     let path = args.output.clone().unwrap_or_else(|| {
-        let stem = config.file_stem().map(|s| s.to_string_lossy().into_owned()).unwrap_or_else(|| "icefold".into());
+        let stem = config
+            .file_stem()
+            .map(|s| s.to_string_lossy().into_owned())
+            .unwrap_or_else(|| "icefold".into());
         PathBuf::from(format!("{stem}-{command}.nc"))
     });
     if path.exists() && !args.overwrite {
@@ -151,7 +161,10 @@ pub fn output_path(args: &OutputArgs, config: &Path, command: &str) -> Result<Pa
         )));
     }
     if path.is_dir() {
-        return Err(Error::Usage(format!("output path {} is a directory; give a file name with -o", path.display())));
+        return Err(Error::Usage(format!(
+            "output path {} is a directory; give a file name with -o",
+            path.display()
+        )));
     }
     Ok(path)
 }

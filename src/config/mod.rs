@@ -130,8 +130,7 @@ pub fn load_str(text: &str, source: &str, base_dir: &Path, sets: &[String]) -> R
     let mut tree: toml::Value = toml::from_str(text).map_err(|e| ConfigError::Syntax {
         path: source.to_string(),
         message: e.message().trim().replace('\n', "; ")
-            + &e
-                .span()
+            + &e.span()
                 .map(|s| format!(" (at line {})", line_of(text, s.start)))
                 .unwrap_or_default(),
     })?;
@@ -150,8 +149,15 @@ pub fn load_str(text: &str, source: &str, base_dir: &Path, sets: &[String]) -> R
             ConfigError::Key { key, .. } | ConfigError::Range { key, .. } => Some(key.clone()),
             _ => None,
         };
-        match key.and_then(|k| set_keys.iter().find(|(s, _)| *s == k || k.starts_with(&format!("{s}.")) || s.starts_with(&format!("{k}.")))) {
-            Some((_, arg)) => ConfigError::Set { arg: arg.clone(), message: e.to_string() },
+        match key.and_then(|k| {
+            set_keys
+                .iter()
+                .find(|(s, _)| *s == k || k.starts_with(&format!("{s}.")) || s.starts_with(&format!("{k}.")))
+        }) {
+            Some((_, arg)) => ConfigError::Set {
+                arg: arg.clone(),
+                message: e.to_string(),
+            },
             None => e,
         }
     })
@@ -191,7 +197,11 @@ fn floats_except_integer_keys(v: &mut toml::Value, prefix: &str) {
     match v {
         toml::Value::Table(t) => {
             for (k, child) in t.iter_mut() {
-                let key = if prefix.is_empty() { k.clone() } else { format!("{prefix}.{k}") };
+                let key = if prefix.is_empty() {
+                    k.clone()
+                } else {
+                    format!("{prefix}.{k}")
+                };
                 if let toml::Value::Integer(i) = child {
                     if !raw::INTEGER_KEYS.contains(&key.as_str()) {
                         *child = toml::Value::Float(*i as f64);
@@ -225,7 +235,11 @@ fn parse_set(arg: &str) -> Result<(String, toml::Value), ConfigError> {
         .split_once('=')
         .ok_or_else(|| err("expected KEY=VALUE, e.g. transport.diffusivity=0.5"))?;
     let key = key.trim();
-    if key.is_empty() || key.split('.').any(|p| p.is_empty() || !p.chars().all(|c| c.is_ascii_alphanumeric() || c == '_')) {
+    if key.is_empty()
+        || key
+            .split('.')
+            .any(|p| p.is_empty() || !p.chars().all(|c| c.is_ascii_alphanumeric() || c == '_'))
+    {
         return Err(err("the key must be a dotted name like albedo.ice"));
     }
     let value = value.trim();

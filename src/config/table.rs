@@ -39,17 +39,26 @@ pub fn parse_olr_table(text: &str, shown: &str) -> Result<OlrTable, ConfigError>
         .enumerate()
         .map(|(i, l)| (i + 1, l.trim()))
         .filter(|(_, l)| !l.is_empty() && !l.starts_with('#'));
-    let (hl, header) = lines
-        .next()
-        .ok_or_else(|| err(1, "empty OLR table; expected the header `temperature_k,olr_wm2`".into()))?;
+    let (hl, header) = lines.next().ok_or_else(|| {
+        err(
+            1,
+            "empty OLR table; expected the header `temperature_k,olr_wm2`".into(),
+        )
+    })?;
     let cols: Vec<&str> = header.split(',').map(str::trim).collect();
     if cols != ["temperature_k", "olr_wm2"] {
-        return Err(err(hl, format!("header is `{header}`; expected `temperature_k,olr_wm2`")));
+        return Err(err(
+            hl,
+            format!("header is `{header}`; expected `temperature_k,olr_wm2`"),
+        ));
     }
     let (mut temps, mut olr) = (Vec::new(), Vec::new());
     for (ln, line) in lines {
         if temps.len() >= MAX_TABLE_ROWS {
-            return Err(err(ln, format!("more than {MAX_TABLE_ROWS} rows; that is the limit")));
+            return Err(err(
+                ln,
+                format!("more than {MAX_TABLE_ROWS} rows; that is the limit"),
+            ));
         }
         let fields: Vec<&str> = line.split(',').map(str::trim).collect();
         if fields.len() != 2 {
@@ -72,7 +81,10 @@ pub fn parse_olr_table(text: &str, shown: &str) -> Result<OlrTable, ConfigError>
             if vals[0] <= prev {
                 return Err(err(
                     ln,
-                    format!("temperatures must increase strictly: {} K follows {prev} K", vals[0]),
+                    format!(
+                        "temperatures must increase strictly: {} K follows {prev} K",
+                        vals[0]
+                    ),
                 ));
             }
         }

@@ -70,7 +70,13 @@ impl Checker<'_> {
     }
 
     /// A string choice with a default.
-    fn choice<'c>(&self, key: &str, slot: &mut Option<String>, default: &str, allowed: &[&'c str]) -> Result<&'c str, ConfigError> {
+    fn choice<'c>(
+        &self,
+        key: &str,
+        slot: &mut Option<String>,
+        default: &str,
+        allowed: &[&'c str],
+    ) -> Result<&'c str, ConfigError> {
         let v = slot.clone().unwrap_or_else(|| default.to_string());
         match allowed.iter().find(|a| **a == v) {
             Some(a) => {
@@ -80,7 +86,14 @@ impl Checker<'_> {
             None => Err(self.range_err(
                 key,
                 format!("\"{v}\""),
-                format!("allowed: {}", allowed.iter().map(|a| format!("\"{a}\"")).collect::<Vec<_>>().join(", ")),
+                format!(
+                    "allowed: {}",
+                    allowed
+                        .iter()
+                        .map(|a| format!("\"{a}\""))
+                        .collect::<Vec<_>>()
+                        .join(", ")
+                ),
             )),
         }
     }
@@ -92,28 +105,67 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
 
     // [grid]
     let g = &mut raw.grid;
-    let domain = match c.choice("grid.domain", &mut g.domain, "hemisphere", &["hemisphere", "globe"])? {
+    let domain = match c.choice(
+        "grid.domain",
+        &mut g.domain,
+        "hemisphere",
+        &["hemisphere", "globe"],
+    )? {
         "globe" => Domain::Globe,
         _ => Domain::Hemisphere,
     };
-    let spacing = match c.choice("grid.spacing", &mut g.spacing, "equal_area", &["equal_area", "equal_angle"])? {
+    let spacing = match c.choice(
+        "grid.spacing",
+        &mut g.spacing,
+        "equal_area",
+        &["equal_area", "equal_angle"],
+    )? {
         "equal_angle" => Spacing::EqualAngle,
         _ => Spacing::EqualArea,
     };
     let bands = g.bands.unwrap_or(90);
     if !(1..=MAX_BANDS).contains(&bands) {
-        return Err(c.range_err("grid.bands", bands.to_string(), format!("allowed: a whole number from 1 to {MAX_BANDS}")));
+        return Err(c.range_err(
+            "grid.bands",
+            bands.to_string(),
+            format!("allowed: a whole number from 1 to {MAX_BANDS}"),
+        ));
     }
     g.bands = Some(bands);
     let bands = bands as usize;
 
     // [insolation]
     let ins = &mut raw.insolation;
-    let kind = c.choice("insolation.kind", &mut ins.kind, "legendre", &["legendre", "annual_mean", "seasonal"])?;
-    let s0 = c.num("insolation.solar_constant", &mut ins.solar_constant, 1361.0, Range::Above(0.0))?;
-    let obl = c.num("insolation.obliquity_deg", &mut ins.obliquity_deg, 23.44, Range::Closed(0.0, 180.0))?;
-    let ecc = c.num("insolation.eccentricity", &mut ins.eccentricity, 0.0, Range::Closed(0.0, 0.9))?;
-    let peri = c.num("insolation.perihelion_deg", &mut ins.perihelion_deg, 0.0, Range::Closed(-360.0, 360.0))?;
+    let kind = c.choice(
+        "insolation.kind",
+        &mut ins.kind,
+        "legendre",
+        &["legendre", "annual_mean", "seasonal"],
+    )?;
+    let s0 = c.num(
+        "insolation.solar_constant",
+        &mut ins.solar_constant,
+        1361.0,
+        Range::Above(0.0),
+    )?;
+    let obl = c.num(
+        "insolation.obliquity_deg",
+        &mut ins.obliquity_deg,
+        23.44,
+        Range::Closed(0.0, 180.0),
+    )?;
+    let ecc = c.num(
+        "insolation.eccentricity",
+        &mut ins.eccentricity,
+        0.0,
+        Range::Closed(0.0, 0.9),
+    )?;
+    let peri = c.num(
+        "insolation.perihelion_deg",
+        &mut ins.perihelion_deg,
+        0.0,
+        Range::Closed(-360.0, 360.0),
+    )?;
     let form = match kind {
         "legendre" => {
             let default_s2 = crate::insolation::s2_from_obliquity(obl.to_radians());
@@ -136,7 +188,12 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
     let a = &mut raw.albedo;
     let akind = c.choice("albedo.kind", &mut a.kind, "step", &["step", "smooth", "ramp"])?;
     let ice_free = c.num("albedo.ice_free", &mut a.ice_free, 0.3, Range::Closed(0.0, 1.0))?;
-    let ice_free_p2 = c.num("albedo.ice_free_p2", &mut a.ice_free_p2, 0.0, Range::Closed(-1.0, 1.0))?;
+    let ice_free_p2 = c.num(
+        "albedo.ice_free_p2",
+        &mut a.ice_free_p2,
+        0.0,
+        Range::Closed(-1.0, 1.0),
+    )?;
     // Albedo must stay in [0, 1] where P2 runs over [-1/2, 1].
     for (p, name) in [(-0.5, "equator"), (1.0, "pole")] {
         let v = ice_free + ice_free_p2 * p;
@@ -149,7 +206,12 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
         }
     }
     let ice = c.num("albedo.ice", &mut a.ice, 0.62, Range::Closed(0.0, 1.0))?;
-    let freeze_c = c.num("albedo.freeze_temperature_c", &mut a.freeze_temperature_c, -10.0, Range::Closed(-273.0, 1000.0))?;
+    let freeze_c = c.num(
+        "albedo.freeze_temperature_c",
+        &mut a.freeze_temperature_c,
+        -10.0,
+        Range::Closed(-273.0, 1000.0),
+    )?;
     let width = c.num("albedo.width_k", &mut a.width_k, 5.0, Range::Above(0.0))?;
     let aform = match akind {
         "smooth" => AlbedoForm::Smooth { width },
@@ -166,22 +228,46 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
 
     // [longwave]
     let l = &mut raw.longwave;
-    let lkind = c.choice("longwave.kind", &mut l.kind, "linear", &["linear", "gray_body", "emission_level", "table"])?;
+    let lkind = c.choice(
+        "longwave.kind",
+        &mut l.kind,
+        "linear",
+        &["linear", "gray_body", "emission_level", "table"],
+    )?;
     let longwave = match lkind {
         "linear" => Longwave::Linear {
             a: c.num("longwave.a", &mut l.a, 203.3, Range::Any)?,
             b: c.num("longwave.b", &mut l.b, 2.09, Range::Above(0.0))?,
         },
         "gray_body" => Longwave::GrayBody {
-            emissivity: c.num("longwave.emissivity", &mut l.emissivity, 0.61, Range::AboveUpTo(0.0, 1.0))?,
+            emissivity: c.num(
+                "longwave.emissivity",
+                &mut l.emissivity,
+                0.61,
+                Range::AboveUpTo(0.0, 1.0),
+            )?,
         },
         "emission_level" => Longwave::EmissionLevel {
-            lapse_rate: c.num("longwave.lapse_rate_k_per_km", &mut l.lapse_rate_k_per_km, 6.5, Range::Closed(0.0, 15.0))?,
-            height: c.num("longwave.emission_height_km", &mut l.emission_height_km, 5.0, Range::Closed(0.0, 30.0))?,
+            lapse_rate: c.num(
+                "longwave.lapse_rate_k_per_km",
+                &mut l.lapse_rate_k_per_km,
+                6.5,
+                Range::Closed(0.0, 15.0),
+            )?,
+            height: c.num(
+                "longwave.emission_height_km",
+                &mut l.emission_height_km,
+                5.0,
+                Range::Closed(0.0, 30.0),
+            )?,
         },
         _ => {
             let rel = l.table.clone().ok_or_else(|| {
-                c.range_err("longwave.table", "(missing)".into(), "required with longwave.kind = \"table\": a CSV path".into())
+                c.range_err(
+                    "longwave.table",
+                    "(missing)".into(),
+                    "required with longwave.kind = \"table\": a CSV path".into(),
+                )
             })?;
             let path = base_dir.join(&rel);
             Longwave::Table(read_olr_table(&path)?)
@@ -191,23 +277,52 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
     // [greenhouse]
     let gh = &mut raw.greenhouse;
     let co2 = c.num("greenhouse.co2_ppm", &mut gh.co2_ppm, 280.0, Range::Above(0.0))?;
-    let co2_ref = c.num("greenhouse.reference_co2_ppm", &mut gh.reference_co2_ppm, 280.0, Range::Above(0.0))?;
-    let k = c.num("greenhouse.log_coefficient_wm2", &mut gh.log_coefficient_wm2, 5.35, Range::Any)?;
+    let co2_ref = c.num(
+        "greenhouse.reference_co2_ppm",
+        &mut gh.reference_co2_ppm,
+        280.0,
+        Range::Above(0.0),
+    )?;
+    let k = c.num(
+        "greenhouse.log_coefficient_wm2",
+        &mut gh.log_coefficient_wm2,
+        5.35,
+        Range::Any,
+    )?;
     let greenhouse_wm2 = co2_forcing(k, co2, co2_ref);
 
     // [transport]
     let t = &mut raw.transport;
-    let tkind = c.choice("transport.kind", &mut t.kind, "diffusive", &["diffusive", "relaxation"])?;
+    let tkind = c.choice(
+        "transport.kind",
+        &mut t.kind,
+        "diffusive",
+        &["diffusive", "relaxation"],
+    )?;
     let transport = match tkind {
         "relaxation" => TransportSpec::Relaxation {
-            rate: c.num("transport.relaxation_rate", &mut t.relaxation_rate, 3.8, Range::Closed(0.0, 1e6))?,
+            rate: c.num(
+                "transport.relaxation_rate",
+                &mut t.relaxation_rate,
+                3.8,
+                Range::Closed(0.0, 1e6),
+            )?,
         },
         _ => {
-            let d0 = c.num("transport.diffusivity", &mut t.diffusivity, 0.55, Range::Closed(0.0, 1e6))?;
+            let d0 = c.num(
+                "transport.diffusivity",
+                &mut t.diffusivity,
+                0.55,
+                Range::Closed(0.0, 1e6),
+            )?;
             let d2 = c.num("transport.diffusivity_p2", &mut t.diffusivity_p2, 0.0, Range::Any)?;
             // D(x) >= 0 for P2 in [-1/2, 1].
             if 1.0 + d2 < 0.0 || 1.0 - 0.5 * d2 < 0.0 {
-                return Err(c.range_err("transport.diffusivity_p2", d2.to_string(), "allowed: -1 to 2 (keeps D(x) >= 0)".into()));
+                return Err(c.range_err(
+                    "transport.diffusivity_p2",
+                    d2.to_string(),
+                    "allowed: -1 to 2 (keeps D(x) >= 0)".into(),
+                ));
             }
             TransportSpec::Diffusive { d0, d2 }
         }
@@ -224,18 +339,37 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
             ))
         }
         (None, Some(_)) => {
-            let d = c.num("heat_capacity.mixed_layer_depth_m", &mut h.mixed_layer_depth_m, 0.0, Range::AboveUpTo(0.0, 1e4))?;
+            let d = c.num(
+                "heat_capacity.mixed_layer_depth_m",
+                &mut h.mixed_layer_depth_m,
+                0.0,
+                Range::AboveUpTo(0.0, 1e4),
+            )?;
             // Sea water: rho = 1025 kg m-3, c_p = 3985 J kg-1 K-1 (common practice).
             1025.0 * 3985.0 * d
         }
-        _ => c.num("heat_capacity.value", &mut h.value, 4.0e8, Range::AboveUpTo(0.0, 1e12))?,
+        _ => c.num(
+            "heat_capacity.value",
+            &mut h.value,
+            4.0e8,
+            Range::AboveUpTo(0.0, 1e12),
+        )?,
     };
-    let land = c.num("heat_capacity.land_value", &mut h.land_value, 1.0e7, Range::AboveUpTo(0.0, 1e12))?;
+    let land = c.num(
+        "heat_capacity.land_value",
+        &mut h.land_value,
+        1.0e7,
+        Range::AboveUpTo(0.0, 1e12),
+    )?;
     let land_fraction = match &h.land_fraction {
         None => vec![],
         Some(RawLandFraction::Uniform(f)) => {
             if !(0.0..=1.0).contains(f) {
-                return Err(c.range_err("heat_capacity.land_fraction", f.to_string(), Range::Closed(0.0, 1.0).describe()));
+                return Err(c.range_err(
+                    "heat_capacity.land_fraction",
+                    f.to_string(),
+                    Range::Closed(0.0, 1.0).describe(),
+                ));
             }
             vec![*f; bands]
         }
@@ -248,18 +382,41 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
                 ));
             }
             if let Some(bad) = v.iter().find(|f| !(0.0..=1.0).contains(*f)) {
-                return Err(c.range_err("heat_capacity.land_fraction", bad.to_string(), Range::Closed(0.0, 1.0).describe()));
+                return Err(c.range_err(
+                    "heat_capacity.land_fraction",
+                    bad.to_string(),
+                    Range::Closed(0.0, 1.0).describe(),
+                ));
             }
             v.clone()
         }
     };
-    let heat_capacity = HeatCapacitySpec { ocean, land, land_fraction };
+    let heat_capacity = HeatCapacitySpec {
+        ocean,
+        land,
+        land_fraction,
+    };
 
     // [forcing]
     let f = &mut raw.forcing;
-    let extra_wm2 = c.num("forcing.constant_wm2", &mut f.constant_wm2, 0.0, Range::Closed(-1e4, 1e4))?;
-    let solar_scale = c.num("forcing.solar_scale", &mut f.solar_scale, 1.0, Range::Closed(0.0, 100.0))?;
-    let interp = match c.choice("forcing.interpolation", &mut f.interpolation, "linear", &["linear", "step"])? {
+    let extra_wm2 = c.num(
+        "forcing.constant_wm2",
+        &mut f.constant_wm2,
+        0.0,
+        Range::Closed(-1e4, 1e4),
+    )?;
+    let solar_scale = c.num(
+        "forcing.solar_scale",
+        &mut f.solar_scale,
+        1.0,
+        Range::Closed(0.0, 100.0),
+    )?;
+    let interp = match c.choice(
+        "forcing.interpolation",
+        &mut f.interpolation,
+        "linear",
+        &["linear", "step"],
+    )? {
         "step" => crate::forcing::Interpolation::Step,
         _ => crate::forcing::Interpolation::Linear,
     };
@@ -268,14 +425,32 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
 
     // [initial]
     let i = &mut raw.initial;
-    let t0 = c.num("initial.temperature_c", &mut i.temperature_c, 15.0, Range::Closed(-272.0, 1500.0))?;
-    let p2k = c.num("initial.temperature_p2_k", &mut i.temperature_p2_k, 0.0, Range::Closed(-500.0, 500.0))?;
-    let initial = InitialSpec { temperature_k: t0 + ZERO_CELSIUS, p2_k: p2k };
+    let t0 = c.num(
+        "initial.temperature_c",
+        &mut i.temperature_c,
+        15.0,
+        Range::Closed(-272.0, 1500.0),
+    )?;
+    let p2k = c.num(
+        "initial.temperature_p2_k",
+        &mut i.temperature_p2_k,
+        0.0,
+        Range::Closed(-500.0, 500.0),
+    )?;
+    let initial = InitialSpec {
+        temperature_k: t0 + ZERO_CELSIUS,
+        p2_k: p2k,
+    };
 
     // [time]
     let tm = &mut raw.time;
     let years = c.num("time.years", &mut tm.years, 100.0, Range::AboveUpTo(0.0, 1e9))?;
-    let output_every = c.num("time.output_every_years", &mut tm.output_every_years, 1.0_f64.min(years), Range::AboveUpTo(0.0, 1e9))?;
+    let output_every = c.num(
+        "time.output_every_years",
+        &mut tm.output_every_years,
+        1.0_f64.min(years),
+        Range::AboveUpTo(0.0, 1e9),
+    )?;
     if years / output_every > 1e8 {
         return Err(c.range_err(
             "time.output_every_years",
@@ -283,7 +458,12 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
             "allowed: at most 1e8 output times in a run (time.years / time.output_every_years)".into(),
         ));
     }
-    let method = match c.choice("time.method", &mut tm.method, "implicit", &["implicit", "dopri5", "dop853"])? {
+    let method = match c.choice(
+        "time.method",
+        &mut tm.method,
+        "implicit",
+        &["implicit", "dopri5", "dop853"],
+    )? {
         "dopri5" => Method::Dopri5,
         "dop853" => Method::Dop853,
         _ => Method::Implicit,
@@ -298,12 +478,26 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
         }
         None => None,
     };
-    let tolerance = c.num("time.tolerance", &mut tm.tolerance, 1e-2, Range::AboveUpTo(0.0, 100.0))?;
-    let max_step = c.num("time.max_step_years", &mut tm.max_step_years, years.min(1000.0), Range::Above(0.0))?;
+    let tolerance = c.num(
+        "time.tolerance",
+        &mut tm.tolerance,
+        1e-2,
+        Range::AboveUpTo(0.0, 100.0),
+    )?;
+    let max_step = c.num(
+        "time.max_step_years",
+        &mut tm.max_step_years,
+        years.min(1000.0),
+        Range::Above(0.0),
+    )?;
     let stiffness_check = *tm.stiffness_check.get_or_insert(true);
     let max_steps = tm.max_steps.unwrap_or(50_000_000);
     if max_steps < 1 {
-        return Err(c.range_err("time.max_steps", max_steps.to_string(), "allowed: a whole number of at least 1".into()));
+        return Err(c.range_err(
+            "time.max_steps",
+            max_steps.to_string(),
+            "allowed: a whole number of at least 1".into(),
+        ));
     }
     tm.max_steps = Some(max_steps);
     let forcing = match forcing_file {
@@ -311,15 +505,28 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
         Some(rel) => {
             let path = base_dir.join(&rel);
             let shown = path.display().to_string();
-            let meta = std::fs::metadata(&path).map_err(|e| ConfigError::DataFile { path: shown.clone(), message: format!("cannot read forcing file (forcing.file): {e}") })?;
+            let meta = std::fs::metadata(&path).map_err(|e| ConfigError::DataFile {
+                path: shown.clone(),
+                message: format!("cannot read forcing file (forcing.file): {e}"),
+            })?;
             if meta.len() > 2 * 1024 * 1024 * 1024 {
-                return Err(ConfigError::DataFile { path: shown, message: format!("forcing file is {} bytes; the limit is 2 GiB", meta.len()) });
+                return Err(ConfigError::DataFile {
+                    path: shown,
+                    message: format!("forcing file is {} bytes; the limit is 2 GiB", meta.len()),
+                });
             }
-            let text = std::fs::read_to_string(&path).map_err(|e| ConfigError::DataFile { path: shown.clone(), message: format!("cannot read forcing file (forcing.file): {e}") })?;
+            let text = std::fs::read_to_string(&path).map_err(|e| ConfigError::DataFile {
+                path: shown.clone(),
+                message: format!("cannot read forcing file (forcing.file): {e}"),
+            })?;
             let series = crate::forcing::ForcingSeries::parse(&text, interp, hold)
                 .and_then(|s| s.check_covers(years).map(|_| s))
                 .map_err(|e| ConfigError::DataFile {
-                    path: if e.line > 0 { format!("{shown}:{}", e.line) } else { shown.clone() },
+                    path: if e.line > 0 {
+                        format!("{shown}:{}", e.line)
+                    } else {
+                        shown.clone()
+                    },
                     message: e.message,
                 })?;
             Some(std::sync::Arc::new(series))
@@ -338,13 +545,25 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
 
     // [equilibrium]
     let e = &mut raw.equilibrium;
-    let eq_tol = c.num("equilibrium.tolerance_wm2", &mut e.tolerance_wm2, 1e-9, Range::Above(0.0))?;
+    let eq_tol = c.num(
+        "equilibrium.tolerance_wm2",
+        &mut e.tolerance_wm2,
+        1e-9,
+        Range::Above(0.0),
+    )?;
     let eq_it = e.max_iterations.unwrap_or(100);
     if !(1..=100_000).contains(&eq_it) {
-        return Err(c.range_err("equilibrium.max_iterations", eq_it.to_string(), "allowed: 1 to 100000".into()));
+        return Err(c.range_err(
+            "equilibrium.max_iterations",
+            eq_it.to_string(),
+            "allowed: 1 to 100000".into(),
+        ));
     }
     e.max_iterations = Some(eq_it);
-    let equilibrium = EquilibriumSpec { tolerance_wm2: eq_tol, max_iterations: eq_it as usize };
+    let equilibrium = EquilibriumSpec {
+        tolerance_wm2: eq_tol,
+        max_iterations: eq_it as usize,
+    };
 
     // [sweep]
     let sweep = match raw.sweep.as_mut() {
@@ -354,7 +573,11 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
             let from = c.num("sweep.from", &mut s.from, f64::NAN, Range::Any)?;
             let to = c.num("sweep.to", &mut s.to, f64::NAN, Range::Any)?;
             if from == to {
-                return Err(c.range_err("sweep.to", to.to_string(), "allowed: a value different from sweep.from".into()));
+                return Err(c.range_err(
+                    "sweep.to",
+                    to.to_string(),
+                    "allowed: a value different from sweep.from".into(),
+                ));
             }
             let steps = s.steps.unwrap_or(61);
             if !(2..=100_000).contains(&steps) {
@@ -366,9 +589,24 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
                 from,
                 to,
                 steps: steps as usize,
-                settle_k_per_year: c.num("sweep.settle_k_per_year", &mut s.settle_k_per_year, 1e-4, Range::Above(0.0))?,
-                settle_max_years: c.num("sweep.settle_max_years", &mut s.settle_max_years, 20_000.0, Range::Above(0.0))?,
-                refine_relative: c.num("sweep.refine_relative", &mut s.refine_relative, 1e-4, Range::AboveUpTo(0.0, 0.5))?,
+                settle_k_per_year: c.num(
+                    "sweep.settle_k_per_year",
+                    &mut s.settle_k_per_year,
+                    1e-4,
+                    Range::Above(0.0),
+                )?,
+                settle_max_years: c.num(
+                    "sweep.settle_max_years",
+                    &mut s.settle_max_years,
+                    20_000.0,
+                    Range::Above(0.0),
+                )?,
+                refine_relative: c.num(
+                    "sweep.refine_relative",
+                    &mut s.refine_relative,
+                    1e-4,
+                    Range::AboveUpTo(0.0, 0.5),
+                )?,
             })
         }
     };
@@ -381,16 +619,31 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
             let from = c.num("branches.from", &mut b.from, f64::NAN, Range::Any)?;
             let to = c.num("branches.to", &mut b.to, f64::NAN, Range::Any)?;
             if from >= to {
-                return Err(c.range_err("branches.to", to.to_string(), format!("allowed: a value above branches.from = {from}")));
+                return Err(c.range_err(
+                    "branches.to",
+                    to.to_string(),
+                    format!("allowed: a value above branches.from = {from}"),
+                ));
             }
             let step = c.num("branches.step", &mut b.step, 0.02, Range::Above(0.0))?;
             let max_step = c.num("branches.max_step", &mut b.max_step, 0.1, Range::Above(0.0))?;
             let mp = b.max_points.unwrap_or(5000);
             if !(10..=1_000_000).contains(&mp) {
-                return Err(c.range_err("branches.max_points", mp.to_string(), "allowed: 10 to 1000000".into()));
+                return Err(c.range_err(
+                    "branches.max_points",
+                    mp.to_string(),
+                    "allowed: 10 to 1000000".into(),
+                ));
             }
             b.max_points = Some(mp);
-            Some(BranchesSpec { control, from, to, step, max_step, max_points: mp as usize })
+            Some(BranchesSpec {
+                control,
+                from,
+                to,
+                step,
+                max_step,
+                max_points: mp as usize,
+            })
         }
     };
 
@@ -451,8 +704,14 @@ fn control_key(c: &Checker, key: &str, v: &Option<String>) -> Result<String, Con
         Some(k) if CONTROL_KEYS.contains(&k.as_str()) => Ok(k.clone()),
         other => Err(c.range_err(
             key,
-            other.clone().map(|s| format!("\"{s}\"")).unwrap_or_else(|| "(missing)".into()),
-            format!("allowed: one of the numeric model keys {}", CONTROL_KEYS.join(", ")),
+            other
+                .clone()
+                .map(|s| format!("\"{s}\""))
+                .unwrap_or_else(|| "(missing)".into()),
+            format!(
+                "allowed: one of the numeric model keys {}",
+                CONTROL_KEYS.join(", ")
+            ),
         )),
     }
 }

@@ -25,7 +25,11 @@ pub fn seeds(model: &Model, tolerance_wm2: f64) -> Vec<Vec<f64>> {
             .iter()
             .map(|&x| mean_c + 273.15 + p2k * crate::grid::p2(x))
             .collect();
-        let opts = NewtonOptions { tolerance_wm2, max_iterations: 200, max_change: 20.0 };
+        let opts = NewtonOptions {
+            tolerance_wm2,
+            max_iterations: 200,
+            max_change: 20.0,
+        };
         if let Ok(r) = newton(model, 0.0, &start, opts) {
             if !found.iter().any(|f| max_diff(f, &r.state) < 1e-3) {
                 found.push(r.state);
@@ -47,9 +51,9 @@ pub fn all_branches(fam: &Controlled, opts: ContinuationOptions) -> Result<Vec<B
         let model = fam.model_at(p)?;
         for s in seeds(&model, opts.tolerance_wm2) {
             let known = branches.iter().any(|b| {
-                b.points
-                    .iter()
-                    .any(|pt| (pt.control - p).abs() <= 1e-9 * (1.0 + p.abs()) && max_diff(&pt.state, &s) < 1e-3)
+                b.points.iter().any(|pt| {
+                    (pt.control - p).abs() <= 1e-9 * (1.0 + p.abs()) && max_diff(&pt.state, &s) < 1e-3
+                })
             });
             if !known {
                 branches.push(trace_branch(fam, &s, p, opts)?);

@@ -156,7 +156,12 @@ impl<'a> Tracer<'a> {
         Ok(self.lu.factor(&self.jac).is_ok())
     }
 
-    fn tangent(&mut self, t: &[f64], p: f64, orient: Option<&Tangent>) -> Result<Option<Tangent>, ConfigError> {
+    fn tangent(
+        &mut self,
+        t: &[f64],
+        p: f64,
+        orient: Option<&Tangent>,
+    ) -> Result<Option<Tangent>, ConfigError> {
         if !self.linearise(t, p)? {
             return Ok(None);
         }
@@ -168,7 +173,10 @@ impl<'a> Tracer<'a> {
         let ps = self.p_scale;
         let zz = dot(&self.b, &self.b);
         let w = 1.0 / (1.0 + ps * ps * zz / (self.n as f64 * T_SCALE * T_SCALE)).sqrt();
-        let mut tan = Tangent { dt: self.b.iter().map(|z| z * ps * w).collect(), dp: w * ps };
+        let mut tan = Tangent {
+            dt: self.b.iter().map(|z| z * ps * w).collect(),
+            dp: w * ps,
+        };
         if let Some(o) = orient {
             if self.inner(&tan, o) < 0.0 {
                 tan.dt.iter_mut().for_each(|v| *v = -*v);
@@ -183,7 +191,12 @@ impl<'a> Tracer<'a> {
     }
 
     /// Newton on `G = 0` and the hyperplane through `(t_pred, p_pred)` normal to `tan`.
-    fn correct(&mut self, t_pred: &[f64], p_pred: f64, tan: &Tangent) -> Result<Option<(Vec<f64>, f64, usize)>, ConfigError> {
+    fn correct(
+        &mut self,
+        t_pred: &[f64],
+        p_pred: f64,
+        tan: &Tangent,
+    ) -> Result<Option<(Vec<f64>, f64, usize)>, ConfigError> {
         let mut t = t_pred.to_vec();
         let mut p = p_pred;
         let (lo, hi) = self.model.valid_range();
@@ -234,18 +247,32 @@ impl<'a> Tracer<'a> {
 
     fn point(&mut self, t: Vec<f64>, p: f64, tan: &Tangent) -> Result<BranchPoint, ConfigError> {
         let leading = self.leading(&t, p)?;
-        Ok(BranchPoint { control: p, state: t, dpds: tan.dp / self.p_scale, leading })
+        Ok(BranchPoint {
+            control: p,
+            state: t,
+            dpds: tan.dp / self.p_scale,
+            leading,
+        })
     }
 
     /// Newton in `T` at fixed `p` (to land on the range ends).
     fn fixed_p(&mut self, t0: &[f64], p: f64) -> Result<Option<Vec<f64>>, ConfigError> {
         self.set_p(p)?;
-        let opts = super::NewtonOptions { tolerance_wm2: self.opts.tolerance_wm2, max_iterations: 30, max_change: 20.0 };
+        let opts = super::NewtonOptions {
+            tolerance_wm2: self.opts.tolerance_wm2,
+            max_iterations: 30,
+            max_change: 20.0,
+        };
         Ok(super::newton(&self.model, 0.0, t0, opts).ok().map(|r| r.state))
     }
 
     /// Locate a fold between `x0` (tangent `tan0`) and the next point at arclength `ds`.
-    fn locate_fold(&mut self, x0: &BranchPoint, tan0: &Tangent, ds: f64) -> Result<Option<FoldPoint>, ConfigError> {
+    fn locate_fold(
+        &mut self,
+        x0: &BranchPoint,
+        tan0: &Tangent,
+        ds: f64,
+    ) -> Result<Option<FoldPoint>, ConfigError> {
         let sign0 = tan0.dp.signum();
         let (mut lo, mut hi) = (0.0, ds);
         let mut best: Option<(Vec<f64>, f64)> = None;
@@ -254,7 +281,9 @@ impl<'a> Tracer<'a> {
             let mid = 0.5 * (lo + hi);
             let t_pred: Vec<f64> = x0.state.iter().zip(&tan0.dt).map(|(t, d)| t + mid * d).collect();
             let p_pred = x0.control + mid * tan0.dp;
-            let Some((t, p, _)) = self.correct(&t_pred, p_pred, tan0)? else { break };
+            let Some((t, p, _)) = self.correct(&t_pred, p_pred, tan0)? else {
+                break;
+            };
             let Some(tan) = self.tangent(&t, p, Some(tan0))? else {
                 best = Some((t, p));
                 break;
@@ -264,23 +293,34 @@ impl<'a> Tracer<'a> {
             } else {
                 hi = mid;
             }
-            let done = (p - p_prev).abs() <= self.opts.fold_tolerance * 0.1 * p.abs().max(self.p_scale * 1e-3);
+            let done =
+                (p - p_prev).abs() <= self.opts.fold_tolerance * 0.1 * p.abs().max(self.p_scale * 1e-3);
             p_prev = p;
             best = Some((t, p));
             if done && hi - lo < 1e-6 * ds {
                 break;
             }
         }
-        Ok(best.map(|(state, control)| FoldPoint { control, state, after_point: 0 }))
+        Ok(best.map(|(state, control)| FoldPoint {
+            control,
+            state,
+            after_point: 0,
+        }))
     }
 
     /// Trace from an equilibrium in one direction (+1: increasing control first) until the
     /// branch leaves the range. Returns the points after the start, and folds.
-    fn trace_one_way(&mut self, start: &BranchPoint, dir: f64) -> Result<(Vec<BranchPoint>, Vec<FoldPoint>), ConfigError> {
+    fn trace_one_way(
+        &mut self,
+        start: &BranchPoint,
+        dir: f64,
+    ) -> Result<(Vec<BranchPoint>, Vec<FoldPoint>), ConfigError> {
         let (pmin, pmax) = (self.opts.from.min(self.opts.to), self.opts.from.max(self.opts.to));
         let mut pts: Vec<BranchPoint> = Vec::new();
         let mut folds = Vec::new();
-        let Some(mut tan) = self.tangent(&start.state, start.control, None)? else { return Ok((pts, folds)) };
+        let Some(mut tan) = self.tangent(&start.state, start.control, None)? else {
+            return Ok((pts, folds));
+        };
         if tan.dp.signum() != dir.signum() {
             tan.dt.iter_mut().for_each(|v| *v = -*v);
             tan.dp = -tan.dp;
@@ -331,21 +371,37 @@ impl<'a> Tracer<'a> {
             pts.push(pt.clone());
             cur = pt;
             tan = new_tan;
-            ds = if iters <= 2 { (ds * 1.6).min(self.opts.max_step) } else if iters >= 6 { ds * 0.6 } else { ds };
+            ds = if iters <= 2 {
+                (ds * 1.6).min(self.opts.max_step)
+            } else if iters >= 6 {
+                ds * 0.6
+            } else {
+                ds
+            };
         }
         Ok((pts, folds))
     }
 }
 
 /// Trace the whole branch through an equilibrium `start` at control `p`, both ways.
-pub fn trace_branch(fam: &Controlled, start: &[f64], p: f64, opts: ContinuationOptions) -> Result<Branch, ContinuationError> {
+pub fn trace_branch(
+    fam: &Controlled,
+    start: &[f64],
+    p: f64,
+    opts: ContinuationOptions,
+) -> Result<Branch, ContinuationError> {
     let mut tr = Tracer::new(fam, opts);
     tr.set_p(p)?;
     let Some(tan) = tr.tangent(start, p, None)? else {
         return Err(ContinuationError::Start("singular Jacobian at the start".into()));
     };
     let lead = tr.leading(start, p)?;
-    let first = BranchPoint { control: p, state: start.to_vec(), dpds: tan.dp / tr.p_scale, leading: lead };
+    let first = BranchPoint {
+        control: p,
+        state: start.to_vec(),
+        dpds: tan.dp / tr.p_scale,
+        leading: lead,
+    };
     let (down, fdown) = tr.trace_one_way(&first, -1.0)?;
     let (up, fup) = tr.trace_one_way(&first, 1.0)?;
     // Assemble in one arclength order: reversed "down" leg, start, "up" leg.

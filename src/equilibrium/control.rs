@@ -42,20 +42,32 @@ impl Controlled {
         })?;
         let base_model = Model::from_spec(&base.spec.model);
         let fast = match key {
-            "insolation.solar_constant" if matches!(base_model.sunlight, Sunlight::Fixed(_)) && base_value > 0.0 => Some(Fast::SolarConstant),
+            "insolation.solar_constant"
+                if matches!(base_model.sunlight, Sunlight::Fixed(_)) && base_value > 0.0 =>
+            {
+                Some(Fast::SolarConstant)
+            }
             "greenhouse.co2_ppm" => Some(Fast::Co2),
             "forcing.constant_wm2" => Some(Fast::ConstantForcing),
             "forcing.solar_scale" => Some(Fast::SolarScale),
             "longwave.a" if matches!(base_model.longwave, Longwave::Linear { .. }) => Some(Fast::LinearA),
             "longwave.b" if matches!(base_model.longwave, Longwave::Linear { .. }) => Some(Fast::LinearB),
-            "transport.diffusivity" if matches!(base_model.transport, Transport::Diffusive { .. }) && base_value > 0.0 => {
+            "transport.diffusivity"
+                if matches!(base_model.transport, Transport::Diffusive { .. }) && base_value > 0.0 =>
+            {
                 Some(Fast::Diffusivity)
             }
             _ => None,
         };
         // A forcing history overrides the constant drivers: vary those through a rebuild.
         let fast = if base_model.forcing.is_some() { None } else { fast };
-        Ok(Controlled { base: base.clone(), key: key.to_string(), base_model, base_value, fast })
+        Ok(Controlled {
+            base: base.clone(),
+            key: key.to_string(),
+            base_model,
+            base_value,
+            fast,
+        })
     }
 
     /// The reference value of the control.

@@ -48,7 +48,12 @@ fn max_abs(v: &[f64]) -> f64 {
 }
 
 /// Solve `G(T) = 0` at model time `t_years` from `start`.
-pub fn newton(model: &Model, t_years: f64, start: &[f64], opts: NewtonOptions) -> Result<NewtonResult, SolverError> {
+pub fn newton(
+    model: &Model,
+    t_years: f64,
+    start: &[f64],
+    opts: NewtonOptions,
+) -> Result<NewtonResult, SolverError> {
     let n = model.len();
     let mut ws = Workspace::new(n);
     let mut y = start.to_vec();
@@ -61,19 +66,34 @@ pub fn newton(model: &Model, t_years: f64, start: &[f64], opts: NewtonOptions) -
     let (lo, hi) = model.valid_range();
     model.heating(t_years, &y, &mut ws, &mut g);
     let mut r = max_abs(&g);
-    let fail = |detail: String| SolverError::NoConvergence { what: "Newton's method".into(), detail };
+    let fail = |detail: String| SolverError::NoConvergence {
+        what: "Newton's method".into(),
+        detail,
+    };
     for it in 0..opts.max_iterations {
         if r <= opts.tolerance_wm2 {
-            return Ok(NewtonResult { state: y, residual_wm2: r, iterations: it });
+            return Ok(NewtonResult {
+                state: y,
+                residual_wm2: r,
+                iterations: it,
+            });
         }
         model.heating_jacobian(t_years, &y, &mut ws, &mut jac);
-        lu.factor(&jac).map_err(|e| fail(format!("singular Jacobian at iteration {it} ({e}); the state may sit on a fold")))?;
+        lu.factor(&jac).map_err(|e| {
+            fail(format!(
+                "singular Jacobian at iteration {it} ({e}); the state may sit on a fold"
+            ))
+        })?;
         for i in 0..n {
             delta[i] = -g[i];
         }
         lu.solve(&mut delta);
         let big = max_abs(&delta);
-        let mut lambda = if big > opts.max_change { opts.max_change / big } else { 1.0 };
+        let mut lambda = if big > opts.max_change {
+            opts.max_change / big
+        } else {
+            1.0
+        };
         let mut accepted = false;
         for _ in 0..40 {
             for i in 0..n {
@@ -94,14 +114,27 @@ pub fn newton(model: &Model, t_years: f64, start: &[f64], opts: NewtonOptions) -
             // Round-off floor: accept a residual near machine precision of the terms.
             let scale = 1e-12 * (1.0 + max_abs(&model.budget(t_years, &y, &mut ws).absorbed));
             if r <= scale.max(opts.tolerance_wm2 * 10.0) {
-                return Ok(NewtonResult { state: y, residual_wm2: r, iterations: it });
+                return Ok(NewtonResult {
+                    state: y,
+                    residual_wm2: r,
+                    iterations: it,
+                });
             }
-            return Err(fail(format!("no descent at iteration {it}; largest residual {r:.3e} W m-2")));
+            return Err(fail(format!(
+                "no descent at iteration {it}; largest residual {r:.3e} W m-2"
+            )));
         }
     }
     if r <= opts.tolerance_wm2 {
         check_state(model, t_years, &y)?;
-        return Ok(NewtonResult { state: y, residual_wm2: r, iterations: opts.max_iterations });
+        return Ok(NewtonResult {
+            state: y,
+            residual_wm2: r,
+            iterations: opts.max_iterations,
+        });
     }
-    Err(fail(format!("{} iterations left the largest residual at {r:.3e} W m-2 (equilibrium.max_iterations)", opts.max_iterations)))
+    Err(fail(format!(
+        "{} iterations left the largest residual at {r:.3e} W m-2 (equilibrium.max_iterations)",
+        opts.max_iterations
+    )))
 }

@@ -20,11 +20,25 @@ pub struct Settled {
 
 /// Integrate from `start` with the adaptive implicit scheme until the largest |dT/dt| is below
 /// `rate` (K per year) or `max_years` have passed. `tolerance` is the local error per step (K).
-pub fn settle(model: &Model, start: &[f64], rate: f64, max_years: f64, tolerance: f64) -> Result<Settled, SolverError> {
-    let policy = StepPolicy::Adaptive { tolerance, max_step: max_years.min(1000.0) };
+pub fn settle(
+    model: &Model,
+    start: &[f64],
+    rate: f64,
+    max_years: f64,
+    tolerance: f64,
+) -> Result<Settled, SolverError> {
+    let policy = StepPolicy::Adaptive {
+        tolerance,
+        max_step: max_years.min(1000.0),
+    };
     let mut r = Ros2::new(model, 0.0, start, max_years, policy, 10_000_000);
     while r.max_rate() >= rate && r.time() < max_years {
         r.step()?;
     }
-    Ok(Settled { state: r.state().to_vec(), years: r.time(), max_rate: r.max_rate(), settled: r.max_rate() < rate })
+    Ok(Settled {
+        state: r.state().to_vec(),
+        years: r.time(),
+        max_rate: r.max_rate(),
+        settled: r.max_rate() < rate,
+    })
 }

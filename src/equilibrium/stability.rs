@@ -145,10 +145,16 @@ pub fn spectrum(model: &Model, t_years: f64, temps: &[f64]) -> (Vec<f64>, Spectr
                 0.0
             }
         });
-        (m.symmetric_eigenvalues().iter().copied().collect::<Vec<f64>>(), SpectrumMethod::SymmetricTridiagonal)
+        (
+            m.symmetric_eigenvalues().iter().copied().collect::<Vec<f64>>(),
+            SpectrumMethod::SymmetricTridiagonal,
+        )
     } else {
         let m = dense(model, t_years, temps);
-        (m.complex_eigenvalues().iter().map(|c| c.re).collect(), SpectrumMethod::GeneralDense)
+        (
+            m.complex_eigenvalues().iter().map(|c| c.re).collect(),
+            SpectrumMethod::GeneralDense,
+        )
     };
     ev.sort_by(|a, b| b.total_cmp(a));
     (ev, method)

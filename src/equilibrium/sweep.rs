@@ -80,12 +80,17 @@ pub enum SweepError {
 }
 
 fn same_branch(model: &Model, a: &[f64], b: &[f64]) -> bool {
-    (model.ice_edges(a).0 - model.ice_edges(b).0).abs() < JUMP_EDGE_DEG && (model.global_mean(a) - model.global_mean(b)).abs() < JUMP_MEAN_K
+    (model.ice_edges(a).0 - model.ice_edges(b).0).abs() < JUMP_EDGE_DEG
+        && (model.global_mean(a) - model.global_mean(b)).abs() < JUMP_MEAN_K
 }
 
 /// Newton from `prev` accepted only if stable and on the same branch.
 fn follow(model: &Model, prev: &[f64], tol: f64) -> Option<Vec<f64>> {
-    let opts = NewtonOptions { tolerance_wm2: tol, max_iterations: 60, max_change: 10.0 };
+    let opts = NewtonOptions {
+        tolerance_wm2: tol,
+        max_iterations: 60,
+        max_change: 10.0,
+    };
     let r = newton(model, 0.0, prev, opts).ok()?;
     if leading_eigenvalue(model, 0.0, &r.state).0 < 0.0 && same_branch(model, prev, &r.state) {
         Some(r.state)
@@ -95,9 +100,16 @@ fn follow(model: &Model, prev: &[f64], tol: f64) -> Option<Vec<f64>> {
 }
 
 /// Run the sweep from `start` (a state at `spec.from`, settled first).
-pub fn sweep(fam: &Controlled, spec: &SweepSpec, start: &[f64], progress: &mut dyn FnMut(usize)) -> Result<SweepResult, SweepError> {
+pub fn sweep(
+    fam: &Controlled,
+    spec: &SweepSpec,
+    start: &[f64],
+    progress: &mut dyn FnMut(usize),
+) -> Result<SweepResult, SweepError> {
     let tol = 1e-8;
-    let values: Vec<f64> = (0..spec.steps).map(|k| spec.from + (spec.to - spec.from) * k as f64 / (spec.steps - 1) as f64).collect();
+    let values: Vec<f64> = (0..spec.steps)
+        .map(|k| spec.from + (spec.to - spec.from) * k as f64 / (spec.steps - 1) as f64)
+        .collect();
     let mut steps = Vec::with_capacity(2 * spec.steps);
     let mut tipping = Vec::new();
     let mut prev = start.to_vec();
@@ -147,7 +159,16 @@ pub fn sweep(fam: &Controlled, spec: &SweepSpec, start: &[f64], progress: &mut d
 /// Bisection between `p_ok` (state `s_ok` on the old branch) and `p_jump` until the bracket is
 /// `rel` relative: the old branch persists below the tipping point and not beyond.
 #[allow(clippy::too_many_arguments)]
-fn refine(fam: &Controlled, p_ok: f64, p_jump: f64, s_ok: &[f64], rel: f64, tol: f64, dir: i32, after: &[f64]) -> Result<Tipping, SweepError> {
+fn refine(
+    fam: &Controlled,
+    p_ok: f64,
+    p_jump: f64,
+    s_ok: &[f64],
+    rel: f64,
+    tol: f64,
+    dir: i32,
+    after: &[f64],
+) -> Result<Tipping, SweepError> {
     let base = fam.model_at(p_ok)?;
     let (mut a, mut b) = (p_ok, p_jump);
     let mut sa = s_ok.to_vec();

@@ -41,7 +41,9 @@ pub struct RunSummary {
 pub fn output_times(years: f64, every: f64) -> impl Iterator<Item = f64> {
     let n = (years / every * (1.0 + 1e-12)).floor() as u64;
     let end_extra = years - n as f64 * every > 1e-9 * every;
-    (0..=n).map(move |k| k as f64 * every).chain(end_extra.then_some(years))
+    (0..=n)
+        .map(move |k| k as f64 * every)
+        .chain(end_extra.then_some(years))
 }
 
 /// Number of output times of a run.
@@ -50,18 +52,40 @@ pub fn output_count(years: f64, every: f64) -> u64 {
 }
 
 /// Build the integrator a time spec asks for.
-pub fn integrator<'m>(model: &'m Model, time: &TimeSpec, t0: f64, y0: &[f64], t_end: f64) -> Box<dyn Integrator + 'm> {
+pub fn integrator<'m>(
+    model: &'m Model,
+    time: &TimeSpec,
+    t0: f64,
+    y0: &[f64],
+    t_end: f64,
+) -> Box<dyn Integrator + 'm> {
     match time.method {
         Method::Implicit => {
             let policy = match time.fixed_step {
                 Some(h) => StepPolicy::Fixed(h),
-                None => StepPolicy::Adaptive { tolerance: time.tolerance, max_step: time.max_step },
+                None => StepPolicy::Adaptive {
+                    tolerance: time.tolerance,
+                    max_step: time.max_step,
+                },
             };
             Box::new(Ros2::new(model, t0, y0, t_end, policy, time.max_steps))
         }
         Method::Dopri5 | Method::Dop853 => {
-            let scheme = if time.method == Method::Dopri5 { Scheme::Dopri5 } else { Scheme::Dop853 };
-            Box::new(Explicit::new(model, scheme, t0, y0, time.tolerance, time.max_step, time.stiffness_check, time.max_steps))
+            let scheme = if time.method == Method::Dopri5 {
+                Scheme::Dopri5
+            } else {
+                Scheme::Dop853
+            };
+            Box::new(Explicit::new(
+                model,
+                scheme,
+                t0,
+                y0,
+                time.tolerance,
+                time.max_step,
+                time.stiffness_check,
+                time.max_steps,
+            ))
         }
     }
 }

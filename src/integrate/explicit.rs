@@ -89,15 +89,32 @@ impl<'m> Explicit<'m> {
             ws: RefCell::new(Workspace::new(self.model.len())),
         };
         let n_stiff = if self.stiffness_check { 1000 } else { u32::MAX };
-        let left = self.max_steps.saturating_sub(self.stats.steps).min(u32::MAX as u64) as u32;
+        let left = self
+            .max_steps
+            .saturating_sub(self.stats.steps)
+            .min(u32::MAX as u64) as u32;
         let span = t_end - self.t;
         let h_max = self.max_step.min(span);
         // rtol 0 and atol = tolerance: an absolute error control in K, as for the implicit scheme.
         macro_rules! go {
             ($solver:ident) => {{
                 let mut s = $solver::from_param(
-                    rhs, self.t, t_end, span, self.y.clone(), 0.0, self.tolerance, 0.9, 0.04, 0.2,
-                    10.0, h_max, 0.0, left.max(1), n_stiff, OutputType::Sparse,
+                    rhs,
+                    self.t,
+                    t_end,
+                    span,
+                    self.y.clone(),
+                    0.0,
+                    self.tolerance,
+                    0.9,
+                    0.04,
+                    0.2,
+                    10.0,
+                    h_max,
+                    0.0,
+                    left.max(1),
+                    n_stiff,
+                    OutputType::Sparse,
                 );
                 let res = s.integrate();
                 let y = s.y_out().last().cloned();
@@ -115,10 +132,16 @@ impl<'m> Explicit<'m> {
                 self.stats.rhs_evals += st.num_eval as u64;
             }
             Err(IntegrationError::StiffnessDetected { x }) => {
-                return Err(SolverError::Stiff { method: self.scheme.name(), t: x })
+                return Err(SolverError::Stiff {
+                    method: self.scheme.name(),
+                    t: x,
+                })
             }
             Err(IntegrationError::MaxNumStepReached { x, .. }) => {
-                return Err(SolverError::TooManySteps { t: x, limit: self.max_steps })
+                return Err(SolverError::TooManySteps {
+                    t: x,
+                    limit: self.max_steps,
+                })
             }
             Err(IntegrationError::StepSizeUnderflow { x }) => {
                 return Err(SolverError::StepCollapsed { t: x, h: 0.0 })

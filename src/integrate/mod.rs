@@ -59,7 +59,9 @@ pub enum SolverError {
         hint: String,
     },
     /// The adaptive step size collapsed.
-    #[error("step size collapsed to {h:e} years at model year {t:.6}; the problem may be ill-posed or unstable")]
+    #[error(
+        "step size collapsed to {h:e} years at model year {t:.6}; the problem may be ill-posed or unstable"
+    )]
     StepCollapsed {
         /// Model time, years.
         t: f64,
@@ -99,14 +101,27 @@ pub fn check_state(model: &Model, t: f64, temps: &[f64]) -> Result<(), SolverErr
         if !v.is_finite() || v < lo || v > hi {
             let lat = model.grid.x_centres[band].asin().to_degrees();
             if !v.is_finite() {
-                return Err(SolverError::NonFinite { t, band, lat, value: v });
+                return Err(SolverError::NonFinite {
+                    t,
+                    band,
+                    lat,
+                    value: v,
+                });
             }
             let hint = if model.longwave.valid_range().is_some() {
                 " (the OLR table's range narrows it)".to_string()
             } else {
                 String::new()
             };
-            return Err(SolverError::OutOfRange { t, band, lat, value: v, lo, hi, hint });
+            return Err(SolverError::OutOfRange {
+                t,
+                band,
+                lat,
+                value: v,
+                lo,
+                hi,
+                hint,
+            });
         }
     }
     Ok(())

@@ -66,7 +66,14 @@ pub struct Ros2<'m> {
 
 impl<'m> Ros2<'m> {
     /// Start at `t0` (years) from `y0` (K), integrating at most to `t_end`.
-    pub fn new(model: &'m Model, t0: f64, y0: &[f64], t_end: f64, policy: StepPolicy, max_steps: u64) -> Ros2<'m> {
+    pub fn new(
+        model: &'m Model,
+        t0: f64,
+        y0: &[f64],
+        t_end: f64,
+        policy: StepPolicy,
+        max_steps: u64,
+    ) -> Ros2<'m> {
         let n = model.len();
         let mut ws = Workspace::new(n);
         let cap: Vec<f64> = model.heat_capacity.iter().map(|c| c / YEAR_SECONDS).collect();
@@ -81,7 +88,11 @@ impl<'m> Ros2<'m> {
                 // First step: a change of about sqrt(tolerance) K of the fastest band, clipped
                 // (the controller grows it by up to 5x per step).
                 let fmax = f.iter().fold(0.0_f64, |m, v| m.max(v.abs()));
-                let h0 = if fmax > 0.0 { tolerance.sqrt() / fmax } else { max_step };
+                let h0 = if fmax > 0.0 {
+                    tolerance.sqrt() / fmax
+                } else {
+                    max_step
+                };
                 h0.clamp(1e-9, max_step)
             }
         };
@@ -131,7 +142,10 @@ impl<'m> Ros2<'m> {
         let model = self.model;
         let n = self.y.len();
         if self.stats.steps >= self.max_steps {
-            return Err(SolverError::TooManySteps { t: self.t, limit: self.max_steps });
+            return Err(SolverError::TooManySteps {
+                t: self.t,
+                limit: self.max_steps,
+            });
         }
         model.heating_jacobian(self.t, &self.y, &mut self.ws, &mut self.jac);
         let mut jac_fresh = true;
@@ -192,7 +206,11 @@ impl<'m> Ros2<'m> {
                         for i in 0..n {
                             e = e.max((0.5 * h * (self.k1[i] + self.k2[i])).abs());
                         }
-                        if e.is_nan() { f64::INFINITY } else { e / tolerance }
+                        if e.is_nan() {
+                            f64::INFINITY
+                        } else {
+                            e / tolerance
+                        }
                     }
                 };
             }
@@ -215,7 +233,11 @@ impl<'m> Ros2<'m> {
                 match self.policy {
                     StepPolicy::Fixed(_) => self.n_fixed += 1,
                     StepPolicy::Adaptive { max_step, .. } => {
-                        let fac = if err > 0.0 { (0.9 / err.sqrt()).clamp(0.2, 5.0) } else { 5.0 };
+                        let fac = if err > 0.0 {
+                            (0.9 / err.sqrt()).clamp(0.2, 5.0)
+                        } else {
+                            5.0
+                        };
                         // After a shortened last step keep the controller's own proposal.
                         if !last {
                             self.h = (h * fac).min(max_step);
@@ -226,7 +248,11 @@ impl<'m> Ros2<'m> {
             }
             // Reject and retry smaller.
             self.stats.rejected += 1;
-            let fac = if err.is_finite() { (0.9 / err.sqrt()).clamp(0.1, 0.5) } else { 0.25 };
+            let fac = if err.is_finite() {
+                (0.9 / err.sqrt()).clamp(0.1, 0.5)
+            } else {
+                0.25
+            };
             match self.policy {
                 StepPolicy::Fixed(hf) => {
                     return Err(SolverError::NoConvergence {

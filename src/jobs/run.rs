@@ -38,13 +38,22 @@ pub fn build_model(cfg: &Loaded) -> Result<Model, Error> {
 /// Run and write the file at `path`. On a numerical failure the records computed so far are
 /// kept in a complete, readable file marked `complete = 0` with the failure message, and the
 /// error is returned (exit 3).
-pub fn run_to_file(cfg: &Loaded, path: &Path, command_line: &str, show_progress: bool) -> Result<RunReport, Error> {
+pub fn run_to_file(
+    cfg: &Loaded,
+    path: &Path,
+    command_line: &str,
+    show_progress: bool,
+) -> Result<RunReport, Error> {
     let model = build_model(cfg)?;
     let y0 = model.initial_state(&cfg.spec.initial);
     let mut writer = RunWriter::create(path, &model, &provenance(cfg, command_line))?;
     let time = &cfg.spec.time;
     let total = driver::output_count(time.years, time.output_every);
-    let pb = if show_progress { progress::bar(total, "model years") } else { indicatif::ProgressBar::hidden() };
+    let pb = if show_progress {
+        progress::bar(total, "model years")
+    } else {
+        indicatif::ProgressBar::hidden()
+    };
     pb.set_length((time.years.ceil() as u64).max(1));
     let mut on_progress = |t: f64| pb.set_position(t as u64);
     let result = driver::run(&model, time, &y0, &mut writer, &mut on_progress);
@@ -56,7 +65,11 @@ pub fn run_to_file(cfg: &Loaded, path: &Path, command_line: &str, show_progress:
             writer.finish(true)?;
             let final_global_mean = model.global_mean(&summary.final_state);
             let final_ice_edge_north = model.ice_edges(&summary.final_state).0;
-            Ok(RunReport { summary, final_global_mean, final_ice_edge_north })
+            Ok(RunReport {
+                summary,
+                final_global_mean,
+                final_ice_edge_north,
+            })
         }
         Err(RunError::Solver(e)) => {
             writer.set_attr("failure", Attr::Str(e.to_string()))?;

@@ -1,7 +1,7 @@
 //! Pieces every icefold file shares: provenance attributes and the latitude coordinate.
 
-use super::{Attr, NcWriter};
 use super::OutputError;
+use super::{Attr, NcWriter};
 use crate::grid::Grid;
 
 /// Who made a file and from what.
@@ -35,7 +35,12 @@ pub fn utc_now() -> String {
     let d = doy - (153 * mp + 2) / 5 + 1;
     let m = if mp < 10 { mp + 3 } else { mp - 9 };
     let y = yoe + era * 400 + i64::from(m <= 2);
-    format!("{y:04}-{m:02}-{d:02}T{:02}:{:02}:{:02}Z", rem / 3600, rem % 3600 / 60, rem % 60)
+    format!(
+        "{y:04}-{m:02}-{d:02}T{:02}:{:02}:{:02}Z",
+        rem / 3600,
+        rem % 3600 / 60,
+        rem % 60
+    )
 }
 
 /// Global attributes: CF conventions, provenance, the kind of file, and `complete = 0`
@@ -45,7 +50,10 @@ pub fn write_provenance(w: &mut NcWriter, prov: &Provenance, kind: &str) -> Resu
     w.set_attr_str("Conventions", "CF-1.8")?;
     w.set_attr_str("title", &prov.title)?;
     w.set_attr_str("institution", "icefold user")?;
-    w.set_attr_str("source", &format!("icefold {VERSION} (idealised energy-balance climate model)"))?;
+    w.set_attr_str(
+        "source",
+        &format!("icefold {VERSION} (idealised energy-balance climate model)"),
+    )?;
     w.set_attr_str("history", &format!("{now}: {}", prov.command_line))?;
     w.set_attr_str("icefold_version", VERSION)?;
     w.set_attr_str("icefold_kind", kind)?;
@@ -77,7 +85,11 @@ pub fn write_latitude(w: &mut NcWriter, grid: &Grid) -> Result<(), OutputError> 
         ],
     )?;
     w.add_dimension("bnds", 2)?;
-    w.add_variable_f64("lat_bnds", &["lat", "bnds"], &[("units", Attr::from("degrees_north"))])?;
+    w.add_variable_f64(
+        "lat_bnds",
+        &["lat", "bnds"],
+        &[("units", Attr::from("degrees_north"))],
+    )?;
     let bnds: Vec<f64> = (0..grid.len()).flat_map(|i| [faces[i], faces[i + 1]]).collect();
     w.write_f64("lat_bnds", &bnds)?;
     w.add_variable_f64(
@@ -85,7 +97,10 @@ pub fn write_latitude(w: &mut NcWriter, grid: &Grid) -> Result<(), OutputError> 
         &["lat"],
         &[
             ("units", Attr::from("1")),
-            ("long_name", Attr::from("fraction of the model domain's area in each band")),
+            (
+                "long_name",
+                Attr::from("fraction of the model domain's area in each band"),
+            ),
         ],
     )?;
     w.write_f64("area_weight", &grid.weights)?;

@@ -35,10 +35,10 @@
 //! # }
 //! ```
 
-mod reader;
-mod writer;
 pub mod common;
+mod reader;
 pub mod run_file;
+mod writer;
 
 pub use reader::NcReader;
 pub use writer::{Attr, NcGroup, NcWriter};

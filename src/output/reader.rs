@@ -130,9 +130,7 @@ impl NcReader {
     /// Whether dimension `name` is unlimited (can grow).
     pub fn dim_unlimited(&self, name: &str) -> Result<bool, OutputError> {
         let ds = self.find_dim(name)?;
-        let space = ds
-            .space()
-            .map_err(self.h5err(format!("dimension `{name}`")))?;
+        let space = ds.space().map_err(self.h5err(format!("dimension `{name}`")))?;
         Ok(space.maxdims().first().is_some_and(Option::is_none))
     }
 
@@ -397,9 +395,7 @@ fn read_f64_attr(attr: &Attribute) -> Result<f64, AttrProblem> {
 fn read_i64_attr(attr: &Attribute) -> Result<i64, AttrProblem> {
     const WANTED: &str = "an integer";
     match attr.dtype()?.to_descriptor()? {
-        TypeDescriptor::Integer(_) | TypeDescriptor::Unsigned(_) => {
-            single(attr.read_raw::<i64>()?, WANTED)
-        }
+        TypeDescriptor::Integer(_) | TypeDescriptor::Unsigned(_) => single(attr.read_raw::<i64>()?, WANTED),
         other => Err(AttrProblem::Type {
             found: other.to_string(),
             wanted: WANTED,
@@ -483,12 +479,7 @@ fn is_placeholder(ds: &Dataset) -> bool {
 }
 
 /// `H5DSiterate_scales` visitor: stores the link name of the first scale and stops.
-unsafe extern "C" fn take_scale_name(
-    _dset: hid_t,
-    _dim: c_uint,
-    scale: hid_t,
-    data: *mut c_void,
-) -> herr_t {
+unsafe extern "C" fn take_scale_name(_dset: hid_t, _dim: c_uint, scale: hid_t, data: *mut c_void) -> herr_t {
     use hdf5_sys::h5i::H5Iget_name;
     // SAFETY: `data` is the `&mut Option<String>` passed by `attached_scale_name`.
     let out = unsafe { &mut *data.cast::<Option<String>>() };

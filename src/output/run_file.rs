@@ -2,8 +2,8 @@
 //! drivers actually applied, streamed record by record (memory flat in run length).
 
 use super::common::{attrs, mark_complete, write_latitude, write_provenance, Provenance};
-use super::{Attr, NcWriter};
 use super::OutputError;
+use super::{Attr, NcWriter};
 use crate::grid::Domain;
 use crate::integrate::Observer;
 use crate::model::{Model, Workspace};
@@ -21,20 +21,64 @@ pub struct RunWriter<'m> {
 }
 
 const PER_BAND: [(&str, &str, &str, Option<&str>); 4] = [
-    ("surface_temperature", "K", "surface temperature", Some("surface_temperature")),
-    ("absorbed_sunlight", "W m-2", "absorbed sunlight (insolation times coalbedo)", None),
-    ("outgoing_longwave", "W m-2", "outgoing longwave radiation net of greenhouse forcing", Some("toa_outgoing_longwave_flux")),
-    ("transport_convergence", "W m-2", "convergence of meridional heat transport", None),
+    (
+        "surface_temperature",
+        "K",
+        "surface temperature",
+        Some("surface_temperature"),
+    ),
+    (
+        "absorbed_sunlight",
+        "W m-2",
+        "absorbed sunlight (insolation times coalbedo)",
+        None,
+    ),
+    (
+        "outgoing_longwave",
+        "W m-2",
+        "outgoing longwave radiation net of greenhouse forcing",
+        Some("toa_outgoing_longwave_flux"),
+    ),
+    (
+        "transport_convergence",
+        "W m-2",
+        "convergence of meridional heat transport",
+        None,
+    ),
 ];
 
 const SERIES: [(&str, &str, &str); 8] = [
-    ("global_mean_temperature", "K", "area-weighted global-mean surface temperature"),
-    ("global_mean_absorbed_sunlight", "W m-2", "global-mean absorbed sunlight"),
-    ("global_mean_outgoing_longwave", "W m-2", "global-mean outgoing longwave net of greenhouse forcing"),
-    ("global_mean_transport_convergence", "W m-2", "global-mean transport convergence (zero: transport conserves energy)"),
-    ("toa_imbalance", "W m-2", "global-mean net heating: absorbed - outgoing longwave + additive forcing"),
+    (
+        "global_mean_temperature",
+        "K",
+        "area-weighted global-mean surface temperature",
+    ),
+    (
+        "global_mean_absorbed_sunlight",
+        "W m-2",
+        "global-mean absorbed sunlight",
+    ),
+    (
+        "global_mean_outgoing_longwave",
+        "W m-2",
+        "global-mean outgoing longwave net of greenhouse forcing",
+    ),
+    (
+        "global_mean_transport_convergence",
+        "W m-2",
+        "global-mean transport convergence (zero: transport conserves energy)",
+    ),
+    (
+        "toa_imbalance",
+        "W m-2",
+        "global-mean net heating: absorbed - outgoing longwave + additive forcing",
+    ),
     ("solar_scale", "1", "insolation multiplier applied"),
-    ("greenhouse_forcing", "W m-2", "greenhouse forcing subtracted from outgoing longwave (k ln(CO2/CO2_ref) and any prescribed part)"),
+    (
+        "greenhouse_forcing",
+        "W m-2",
+        "greenhouse forcing subtracted from outgoing longwave (k ln(CO2/CO2_ref) and any prescribed part)",
+    ),
     ("additive_forcing", "W m-2", "additive forcing applied"),
 ];
 
@@ -52,7 +96,11 @@ impl<'m> RunWriter<'m> {
             ],
         )?;
         write_latitude(&mut w, &model.grid)?;
-        w.add_variable_f64("heat_capacity", &["lat"], &attrs("J m-2 K-1", "heat capacity per unit area", None))?;
+        w.add_variable_f64(
+            "heat_capacity",
+            &["lat"],
+            &attrs("J m-2 K-1", "heat capacity per unit area", None),
+        )?;
         w.write_f64("heat_capacity", &model.heat_capacity)?;
         for (name, units, long, std) in PER_BAND {
             w.add_variable_f64(name, &["time", "lat"], &attrs(units, long, std))?;
@@ -65,9 +113,17 @@ impl<'m> RunWriter<'m> {
             a.push(("comment", Attr::from("equatorward edge of the polar ice from the interpolated freezing line; 90 (north) or -90 (south) ice free, 0 ice covered")));
             a
         };
-        w.add_variable_f64("ice_edge_latitude_north", &["time"], &edge_attrs("ice-edge latitude, northern hemisphere"))?;
+        w.add_variable_f64(
+            "ice_edge_latitude_north",
+            &["time"],
+            &edge_attrs("ice-edge latitude, northern hemisphere"),
+        )?;
         if model.grid.domain == Domain::Globe {
-            w.add_variable_f64("ice_edge_latitude_south", &["time"], &edge_attrs("ice-edge latitude, southern hemisphere"))?;
+            w.add_variable_f64(
+                "ice_edge_latitude_south",
+                &["time"],
+                &edge_attrs("ice-edge latitude, southern hemisphere"),
+            )?;
         }
         Ok(RunWriter {
             w: Some(w),
@@ -124,7 +180,16 @@ impl<'m> RunWriter<'m> {
         w.append_row_f64("outgoing_longwave", &b.olr)?;
         w.append_row_f64("transport_convergence", &b.transport)?;
         let (ma, mo, mt) = (g.mean(&b.absorbed), g.mean(&b.olr), g.mean(&b.transport));
-        let vals = [g.mean(temps), ma, mo, mt, ma - mo + mt + b.extra, d.solar_scale, d.greenhouse_wm2, d.extra_wm2];
+        let vals = [
+            g.mean(temps),
+            ma,
+            mo,
+            mt,
+            ma - mo + mt + b.extra,
+            d.solar_scale,
+            d.greenhouse_wm2,
+            d.extra_wm2,
+        ];
         for ((name, _, _), v) in SERIES.iter().zip(vals) {
             w.append_row_f64(name, &[v])?;
         }

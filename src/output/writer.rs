@@ -261,34 +261,19 @@ macro_rules! content_methods {
         }
 
         /// Sets a string attribute of variable `var`.
-        pub fn set_var_attr_str(
-            &mut self,
-            var: &str,
-            name: &str,
-            value: &str,
-        ) -> Result<(), OutputError> {
+        pub fn set_var_attr_str(&mut self, var: &str, name: &str, value: &str) -> Result<(), OutputError> {
             let (inner, group) = self.scope();
             inner.set_attr(group, Some(var), name, &Attr::Str(value.to_owned()))
         }
 
         /// Sets an `f64` attribute of variable `var`.
-        pub fn set_var_attr_f64(
-            &mut self,
-            var: &str,
-            name: &str,
-            value: f64,
-        ) -> Result<(), OutputError> {
+        pub fn set_var_attr_f64(&mut self, var: &str, name: &str, value: f64) -> Result<(), OutputError> {
             let (inner, group) = self.scope();
             inner.set_attr(group, Some(var), name, &Attr::F64(value))
         }
 
         /// Sets an `i64` attribute of variable `var`.
-        pub fn set_var_attr_i64(
-            &mut self,
-            var: &str,
-            name: &str,
-            value: i64,
-        ) -> Result<(), OutputError> {
+        pub fn set_var_attr_i64(&mut self, var: &str, name: &str, value: i64) -> Result<(), OutputError> {
             let (inner, group) = self.scope();
             inner.set_attr(group, Some(var), name, &Attr::I64(value))
         }
@@ -467,10 +452,7 @@ impl NcWriter {
     /// Writes buffered records, closes the file and renames it onto the target (atomically
     /// replacing an existing file). On error the temporary file is deleted.
     pub fn finish(self) -> Result<(), OutputError> {
-        let NcWriter {
-            mut inner,
-            mut temp,
-        } = self;
+        let NcWriter { mut inner, mut temp } = self;
         inner.flush_all()?;
         let Inner {
             vars,
@@ -591,16 +573,8 @@ fn write_attr(loc: &Location, name: &str, value: &Attr) -> hdf5::Result<()> {
                 .create(name)?
                 .write_scalar(&v)
         }
-        Attr::F64(x) => loc
-            .new_attr::<f64>()
-            .shape(())
-            .create(name)?
-            .write_scalar(x),
-        Attr::I64(x) => loc
-            .new_attr::<i64>()
-            .shape(())
-            .create(name)?
-            .write_scalar(x),
+        Attr::F64(x) => loc.new_attr::<f64>().shape(()).create(name)?.write_scalar(x),
+        Attr::I64(x) => loc.new_attr::<i64>().shape(()).create(name)?.write_scalar(x),
     }
 }
 
@@ -723,12 +697,7 @@ impl Inner {
         write_attr(&loc, name, value).map_err(self.h5err(format!("{object}, attribute `{name}`")))
     }
 
-    fn set_attrs(
-        &mut self,
-        group: &str,
-        var: &str,
-        attrs: &[(&str, Attr)],
-    ) -> Result<(), OutputError> {
+    fn set_attrs(&mut self, group: &str, var: &str, attrs: &[(&str, Attr)]) -> Result<(), OutputError> {
         for (name, value) in attrs {
             self.set_attr(group, Some(var), name, value)?;
         }
@@ -877,9 +846,7 @@ impl Inner {
                     return Err(OutputError::Layout {
                         path: self.path.clone(),
                         variable: full,
-                        reason: format!(
-                            "the unlimited dimension `{dim_name}` must be the first dimension"
-                        ),
+                        reason: format!("the unlimited dimension `{dim_name}` must be the first dimension"),
                     });
                 }
                 record = true;
@@ -921,9 +888,7 @@ impl Inner {
                     let size: usize = shape.iter().product();
                     let b = b.shape(shape.clone());
                     if size >= COMPRESS_MIN_VALUES {
-                        b.chunk(fixed_chunk(&shape))
-                            .shuffle()
-                            .deflate(DEFLATE_LEVEL)
+                        b.chunk(fixed_chunk(&shape)).shuffle().deflate(DEFLATE_LEVEL)
                     } else {
                         b
                     }
@@ -1101,8 +1066,7 @@ mod tests {
     impl TestDir {
         fn new(tag: &str) -> TestDir {
             let seq = DIR_SEQ.fetch_add(1, Ordering::Relaxed);
-            let dir = std::env::temp_dir()
-                .join(format!("icefold-output-{tag}-{}-{seq}", std::process::id()));
+            let dir = std::env::temp_dir().join(format!("icefold-output-{tag}-{}-{seq}", std::process::id()));
             let _ = std::fs::remove_dir_all(&dir);
             std::fs::create_dir_all(&dir).unwrap();
             TestDir(dir)
@@ -1141,11 +1105,7 @@ mod tests {
         w.set_attr_f64("solar_constant", 1361.5)?;
         w.set_attr_i64("seed", -42)?;
         let lat = [-60.0, 0.0, 60.0];
-        w.add_coordinate(
-            "lat",
-            &lat,
-            &[units("degrees_north"), ("axis", Attr::from("Y"))],
-        )?;
+        w.add_coordinate("lat", &lat, &[units("degrees_north"), ("axis", Attr::from("Y"))])?;
         w.add_dimension("bnds", 2)?;
         w.add_variable_f64("lat_bnds", &["lat", "bnds"], &[])?;
         w.write_f64("lat_bnds", &[-90.0, -30.0, -30.0, 30.0, 30.0, 90.0])?;
@@ -1176,10 +1136,7 @@ mod tests {
         assert_eq!(r.attr_i64("seed").unwrap(), Some(-42));
         assert_eq!(r.attr_f64("seed").unwrap(), Some(-42.0));
         assert_eq!(r.attr_str("missing").unwrap(), None);
-        assert!(matches!(
-            r.attr_i64("title"),
-            Err(OutputError::AttrType { .. })
-        ));
+        assert!(matches!(r.attr_i64("title"), Err(OutputError::AttrType { .. })));
         assert_eq!(r.attr_names().unwrap(), ["title", "solar_constant", "seed"]);
 
         // Creation order, placeholder `bnds` left out.
@@ -1212,10 +1169,7 @@ mod tests {
             r.var_attr_str("lat", "units").unwrap().as_deref(),
             Some("degrees_north")
         );
-        assert_eq!(
-            r.var_attr_names("lat").unwrap(),
-            ["units", "axis", "bounds"]
-        );
+        assert_eq!(r.var_attr_names("lat").unwrap(), ["units", "axis", "bounds"]);
         assert_eq!(
             r.var_attr_f64("surface_temperature", "valid_min").unwrap(),
             Some(100.0)
@@ -1271,10 +1225,7 @@ mod tests {
         let ds = f.dataset("field").unwrap();
         assert_eq!(ds.chunk(), Some(vec![RECORD_CHUNK_ROWS, cols]));
         let filters = ds.filters();
-        assert!(
-            filters.contains(&hdf5::filters::Filter::Shuffle),
-            "{filters:?}"
-        );
+        assert!(filters.contains(&hdf5::filters::Filter::Shuffle), "{filters:?}");
         assert!(
             filters.contains(&hdf5::filters::Filter::Deflate(4)),
             "{filters:?}"
@@ -1372,8 +1323,7 @@ mod tests {
         w.add_variable_f64("t", &["time", "lat"], &[]).unwrap();
         for i in 0..7 {
             w.append_coordinate("time", f64::from(i)).unwrap();
-            w.append_row_f64("t", &[f64::from(i), -f64::from(i)])
-                .unwrap();
+            w.append_row_f64("t", &[f64::from(i), -f64::from(i)]).unwrap();
         }
         w.flush().unwrap();
         // A copy taken now is what a SIGKILL would leave behind.
@@ -1382,10 +1332,7 @@ mod tests {
         w.append_coordinate("time", 7.0).unwrap();
         let r = NcReader::open(&snapshot).unwrap();
         assert_eq!(r.var_shape("t").unwrap(), [7, 2]);
-        assert_eq!(
-            r.read_f64("time").unwrap(),
-            [0.0, 1.0, 2.0, 3.0, 4.0, 5.0, 6.0]
-        );
+        assert_eq!(r.read_f64("time").unwrap(), [0.0, 1.0, 2.0, 3.0, 4.0, 5.0, 6.0]);
         assert_eq!(r.read_f64("t").unwrap()[12..], [6.0, -6.0]);
         drop(r);
         w.abandon();
@@ -1405,10 +1352,7 @@ mod tests {
         w.write_f64("time", &[0.0, 1.0, 2.0, 3.0]).unwrap();
         w.finish().unwrap();
         let r = NcReader::open(&path).unwrap();
-        assert_eq!(
-            r.read_f64("v").unwrap(),
-            [1.0, 2.0, 3.0, 4.0, 5.0, 6.0, 7.0, 8.0]
-        );
+        assert_eq!(r.read_f64("v").unwrap(), [1.0, 2.0, 3.0, 4.0, 5.0, 6.0, 7.0, 8.0]);
         assert_eq!(r.dim_len("time").unwrap(), 4);
     }
 
@@ -1448,10 +1392,7 @@ mod tests {
         let e = w.append_row_i32("t", &[1, 2, 3]).unwrap_err();
         assert!(e.to_string().contains("holds f64 values, not i32"), "{e}");
         let e = w.append_row_f64("lat", &[1.0]).unwrap_err();
-        assert!(
-            e.to_string().contains("not along an unlimited dimension"),
-            "{e}"
-        );
+        assert!(e.to_string().contains("not along an unlimited dimension"), "{e}");
         let e = w.add_variable_f64("u", &["lat", "depth"], &[]).unwrap_err();
         assert!(e.to_string().contains("unknown dimension `depth`"), "{e}");
         let e = w.add_variable_f64("u", &["lat", "time"], &[]).unwrap_err();
@@ -1483,14 +1424,8 @@ mod tests {
             run.append_row_f64("t", &[1.0, 2.0]).unwrap();
         }
         // Re-opening the group finds its variables again.
-        w.group("run")
-            .unwrap()
-            .append_row_f64("t", &[3.0, 4.0])
-            .unwrap();
-        w.group("run")
-            .unwrap()
-            .append_coordinate("time", 1.0)
-            .unwrap();
+        w.group("run").unwrap().append_row_f64("t", &[3.0, 4.0]).unwrap();
+        w.group("run").unwrap().append_coordinate("time", 1.0).unwrap();
         w.finish().unwrap();
 
         let r = NcReader::open(&path).unwrap();
@@ -1510,10 +1445,7 @@ mod tests {
         let missing = dir.file("missing.nc");
         let e = NcReader::open(&missing).err().expect("must fail");
         assert!(matches!(e, OutputError::NotFound { .. }), "{e}");
-        assert!(
-            e.to_string().contains(&missing.display().to_string()),
-            "{e}"
-        );
+        assert!(e.to_string().contains(&missing.display().to_string()), "{e}");
         let text = dir.file("text.nc");
         std::fs::write(&text, "not hdf5").unwrap();
         let e = NcReader::open(&text).err().expect("must fail");
@@ -1554,13 +1486,9 @@ mod smoke {
         w.add_dimension("bnds", 2).unwrap();
         w.add_variable_f64("lat_bnds", &["lat", "bnds"], &[units("degrees_north")])
             .unwrap();
-        w.write_f64(
-            "lat_bnds",
-            &[-90.0, -45.0, -45.0, 0.0, 0.0, 45.0, 45.0, 90.0],
-        )
-        .unwrap();
-        w.add_unlimited_coordinate("time", &[units("year")])
+        w.write_f64("lat_bnds", &[-90.0, -45.0, -45.0, 0.0, 0.0, 45.0, 45.0, 90.0])
             .unwrap();
+        w.add_unlimited_coordinate("time", &[units("year")]).unwrap();
         w.add_variable_f64(
             "surface_temperature",
             &["time", "lat"],
@@ -1569,14 +1497,10 @@ mod smoke {
         .unwrap();
         w.add_variable_i32("stable", &["time"], &[]).unwrap();
         w.add_dimension("tipping", 0).unwrap();
-        w.add_variable_f64("tipping_control", &["tipping"], &[])
-            .unwrap();
+        w.add_variable_f64("tipping_control", &["tipping"], &[]).unwrap();
         for i in 0..100 {
             w.append_coordinate("time", f64::from(i)).unwrap();
-            let row: Vec<f64> = lat
-                .iter()
-                .map(|l| 288.0 - 0.5 * l.abs() + f64::from(i))
-                .collect();
+            let row: Vec<f64> = lat.iter().map(|l| 288.0 - 0.5 * l.abs() + f64::from(i)).collect();
             w.append_row_f64("surface_temperature", &row).unwrap();
             w.append_row_i32("stable", &[i % 2]).unwrap();
             if i == 49 {
@@ -1591,8 +1515,7 @@ mod smoke {
             g.add_coordinate("step", &[0.0, 1.0, 2.0], &[]).unwrap();
             g.add_variable_f64("control", &["step"], &[]).unwrap();
             g.write_f64("control", &[0.9, 1.0, 1.1]).unwrap();
-            g.add_variable_f64("profile", &["step", "lat"], &[])
-                .unwrap();
+            g.add_variable_f64("profile", &["step", "lat"], &[]).unwrap();
             g.write_f64("profile", &[0.0; 12]).unwrap();
         }
         w.finish().unwrap();
