@@ -110,6 +110,9 @@ impl Mapping {
     }
 }
 
+/// Pieces of a clipped line, each a list of pixel positions.
+pub type Pieces = Vec<Vec<(f64, f64)>>;
+
 /// Converts 1x pixels to the oversampled integer units plotters works in.
 fn k(v: f64) -> i32 {
     (v * OVERSAMPLE).round() as i32
@@ -970,7 +973,7 @@ pub fn draw_legend(
             } => {
                 let pts = [(s0, y), (s1, y)];
                 if let Some(cs) = casing {
-                    c.line(&pts, cs.to_rgba(), sizes.line * 2.4)?;
+                    c.line(&pts, cs.to_rgba(), sizes.line + 2.0 * sizes.halo)?;
                 }
                 if *dashed {
                     c.dashed(&pts, colour.to_rgba(), sizes.line, sizes.dash)?;
@@ -986,7 +989,7 @@ pub fn draw_legend(
                 for dx in [0.25, 0.75] {
                     let p = (s0 + dx * sample, y);
                     if let Some(cs) = casing {
-                        c.point(*shape, p, sizes.marker * 1.45, cs.to_rgba())?;
+                        c.point(*shape, p, sizes.marker + 1.5 * sizes.halo, cs.to_rgba())?;
                     }
                     c.point(*shape, p, sizes.marker, colour.to_rgba())?;
                 }

@@ -667,7 +667,7 @@ pub fn figure_svg(fig: &Figure) -> Result<String, PlotError> {
         let col_w = fig
             .panels
             .iter()
-            .map(|p| legend_entries(p))
+            .map(legend_entries)
             .filter(|e| !e.is_empty())
             .map(|e| legend_size(&e, false, &sizes).0)
             .fold(0.0, f64::max)

@@ -15,7 +15,7 @@ use plotters::style::{Color, RGBColor};
 
 use super::canvas::{
     self, draw_legend, encode_rgba_png, finite_range, legend_size, Anchor, Bitmap, Canvas,
-    LegendEntry, Mapping, Occupancy, PointShape, Rect, Swatch,
+    LegendEntry, Mapping, Occupancy, Pieces, PointShape, Rect, Swatch,
 };
 use super::chart::{Series, Stroke};
 use super::contour::contour_lines;
@@ -31,6 +31,12 @@ pub struct HeatMap {
     pub x: Vec<f64>,
     /// Cell centres along y (e.g. latitude), strictly increasing, `ny` values.
     pub y: Vec<f64>,
+    /// Cell boundaries along x, `nx + 1` strictly increasing values (e.g. a netCDF
+    /// `bounds` variable); `None` puts them halfway between centres.
+    pub x_edges: Option<Vec<f64>>,
+    /// Cell boundaries along y, `ny + 1` values (e.g. `lat_bnds`, so an equal-area grid
+    /// reaches the pole); `None` puts them halfway between centres.
+    pub y_edges: Option<Vec<f64>>,
     /// Field values, `nx * ny` of them, one block per x value: `z[i * ny + j]` is the value
     /// at `(x[i], y[j])`. This is the memory order of a `(time, lat)` array such as
     /// `surface_temperature`. NaN marks a missing cell.
@@ -59,7 +65,8 @@ pub struct HeatMap {
 
 fn check_increasing(what: &str, v: &[f64]) -> Result<(), PlotError> {
     for (i, w) in v.windows(2).enumerate() {
-        if !(w[1] > w[0]) || !w[0].is_finite() || !w[1].is_finite() {
+        let increasing = w[0].is_finite() && w[1].is_finite() && w[1] > w[0];
+        if !increasing {
             return Err(PlotError::NotIncreasing {
                 what: what.to_string(),
                 index: i + 1,
@@ -92,6 +99,21 @@ fn validate(m: &HeatMap) -> Result<(), PlotError> {
                 expected: 1,
                 found: 0,
             });
+        }
+    }
+    for (what, e, n) in [
+        ("heat map x_edges", &m.x_edges, m.x.len()),
+        ("heat map y_edges", &m.y_edges, m.y.len()),
+    ] {
+        if let Some(e) = e {
+            if e.len() != n + 1 {
+                return Err(PlotError::LengthMismatch {
+                    what: what.to_string(),
+                    expected: n + 1,
+                    found: e.len(),
+                });
+            }
+            check_increasing(what, e)?;
         }
     }
     if m.z.len() != m.x.len() * m.y.len() {
@@ -220,11 +242,20 @@ impl Scale {
     }
 }
 
+/// Cell boundaries along x and y: given, or halfway between centres.
+fn cell_edges(m: &HeatMap) -> (Vec<f64>, Vec<f64>) {
+    (
+        m.x_edges.clone().unwrap_or_else(|| edges(&m.x)),
+        m.y_edges.clone().unwrap_or_else(|| edges(&m.y)),
+    )
+}
+
 /// The cells as a PNG: rows from the top (largest y) down.
 fn field_png(m: &HeatMap, scale: &Scale) -> Result<Vec<u8>, PlotError> {
     let ny = m.y.len();
-    let cols = pixel_cells(&edges(&m.x));
-    let mut rows = pixel_cells(&edges(&m.y));
+    let (xe, ye) = cell_edges(m);
+    let cols = pixel_cells(&xe);
+    let mut rows = pixel_cells(&ye);
     rows.reverse();
     let mut px = Vec::with_capacity(cols.len() * rows.len());
     for &j in &rows {
@@ -292,7 +323,7 @@ struct Layout {
 
 fn layout(m: &HeatMap, scale: &Scale, sizes: &Sizes) -> Result<Layout, PlotError> {
     let (w, h) = (f64::from(m.width_px), f64::from(m.height_px));
-    let (xe, ye) = (edges(&m.x), edges(&m.y));
+    let (xe, ye) = cell_edges(m);
     let (xr, yr) = ((xe[0], xe[xe.len() - 1]), (ye[0], ye[ye.len() - 1]));
     let mut top = sizes.margin
         + if m.title.is_empty() {
@@ -343,6 +374,7 @@ fn layout(m: &HeatMap, scale: &Scale, sizes: &Sizes) -> Result<Layout, PlotError
                 .iter()
                 .map(|(_, n)| style::text_width(n, sizes.legend, false))
                 .fold(0.0, f64::max);
+            let widest = widest.max(style::text_width("no data", sizes.legend, false));
             let list = bar_w + sizes.gap + widest;
             let head = style::text_width(&m.z_label, sizes.legend, true);
             ((Vec::new(), Vec::new()), list.max(head))
@@ -375,7 +407,7 @@ fn layout(m: &HeatMap, scale: &Scale, sizes: &Sizes) -> Result<Layout, PlotError
 }
 
 /// Points of a series in pixels, split at NaN and clipped to the plot area.
-fn overlay_pixels(s: &Series, map: &Mapping) -> (Vec<Vec<(f64, f64)>>, Vec<(f64, f64)>) {
+fn overlay_pixels(s: &Series, map: &Mapping) -> (Pieces, Vec<(f64, f64)>) {
     let mut lines = Vec::new();
     let mut dots = Vec::new();
     let a = map.area;
@@ -448,7 +480,7 @@ pub fn heatmap_svg(m: &HeatMap) -> Result<String, PlotError> {
     }
 
     // Contours in pixels, clipped.
-    let mut contours: Vec<(f64, &str, Vec<Vec<(f64, f64)>>)> = Vec::new();
+    let mut contours: Vec<(f64, &str, Pieces)> = Vec::new();
     for (level, label) in &m.contour_levels {
         let mut pieces = Vec::new();
         for l in contour_lines(&m.x, &m.y, &m.z, *level)? {
@@ -518,12 +550,13 @@ pub fn heatmap_svg(m: &HeatMap) -> Result<String, PlotError> {
                 BLACK,
             )?;
         }
+        // Contours: black with a thin white halo, visible on both ends of viridis.
         for (_, _, pieces) in &contours {
             for l in pieces {
-                c.line(l, WHITE.to_rgba(), 2.6 * sizes.line)?;
+                c.line(l, WHITE.to_rgba(), contour_width(&sizes) + 2.0 * sizes.halo)?;
             }
             for l in pieces {
-                c.line(l, BLACK.to_rgba(), 1.0 * sizes.line)?;
+                c.line(l, BLACK.to_rgba(), contour_width(&sizes))?;
             }
         }
         for (s, (lines, dots)) in m.overlay.iter().zip(&overlays) {
@@ -578,7 +611,7 @@ fn draw_overlay(
 ) -> Result<(), PlotError> {
     let (core, casing) = style::overlay_colours(s.colour);
     for l in lines {
-        c.line(l, casing.to_rgba(), 2.3 * sizes.line)?;
+        c.line(l, casing.to_rgba(), sizes.line + 2.0 * sizes.halo)?;
     }
     for l in lines {
         if s.stroke == Stroke::Dashed {
@@ -598,13 +631,18 @@ fn draw_overlay(
         sizes.marker
     };
     for &p in dots {
-        c.point(shape, p, 1.45 * r, casing.to_rgba())?;
+        c.point(shape, p, r + 1.5 * sizes.halo, casing.to_rgba())?;
         c.point(shape, p, r, core.to_rgba())?;
     }
     Ok(())
 }
 
-type Contours<'a> = [(f64, &'a str, Vec<Vec<(f64, f64)>>)];
+/// Width of contour lines.
+fn contour_width(sizes: &Sizes) -> f64 {
+    1.1 * sizes.line
+}
+
+type Contours<'a> = [(f64, &'a str, Pieces)];
 
 fn draw_colour_bar(
     c: &Canvas,
@@ -699,7 +737,12 @@ fn draw_classes(
             swatch: Swatch::Fill(Scale::class_colour(k, classes.len()).to_rgba()),
         })
         .collect();
-    for e in &entries {
+    let missing = m.z.iter().any(|v| !v.is_finite());
+    let no_data = LegendEntry {
+        label: "no data".into(),
+        swatch: Swatch::Fill(WHITE.to_rgba()),
+    };
+    for e in entries.iter().chain(missing.then_some(&no_data)) {
         let r = Rect::at(at.x0, y + 0.1 * row, sw, 0.8 * row);
         if let Swatch::Fill(col) = e.swatch {
             c.fill_rect(r, col)?;
@@ -843,6 +886,40 @@ mod tests {
             "{share}"
         );
         assert_eq!(pixel_cells(&edges(&[0.0, 1.0, 2.0])), vec![0, 1, 2]);
+    }
+
+    #[test]
+    fn given_edges_set_the_map_extent() {
+        // Equal-area bands: edges asin(j / n) reach the pole; midpoints would stop short.
+        let n = 6;
+        let mut m = field();
+        m.y = (0..n)
+            .map(|j| ((f64::from(j) + 0.5) / f64::from(n)).asin().to_degrees())
+            .collect();
+        m.y_edges = Some(
+            (0..=n)
+                .map(|j| (f64::from(j) / f64::from(n)).asin().to_degrees())
+                .collect(),
+        );
+        m.z =
+            m.x.iter()
+                .flat_map(|&t| m.y.iter().map(move |&l| 250.0 + 0.5 * l + 0.1 * t))
+                .collect();
+        style::ensure_fonts().unwrap();
+        let scale = Scale::Continuous {
+            lo: 250.0,
+            hi: 300.0,
+        };
+        let lay = layout(&m, &scale, &Sizes::for_picture(900, 560)).unwrap();
+        assert_eq!(lay.map.y, (0.0, 90.0));
+        // The top band (asin(5/6) = 56.4 deg to 90 deg) gets its true share of the pixel rows.
+        let rows = pixel_cells(m.y_edges.as_ref().unwrap());
+        let top = rows.iter().filter(|&&j| j == 5).count() as f64 / rows.len() as f64;
+        let want = (90.0 - (5.0f64 / 6.0).asin().to_degrees()) / 90.0;
+        assert!(
+            (top - want).abs() <= 1.0 / rows.len() as f64,
+            "{top} vs {want}"
+        );
     }
 
     #[test]

@@ -90,6 +90,8 @@ pub struct Sizes {
     pub tick_len: f64,
     /// Point marker radius.
     pub marker: f64,
+    /// Width of the contrasting halo on each side of lines drawn over a heat map.
+    pub halo: f64,
     /// Dash length and gap of dashed series.
     pub dash: (f64, f64),
     /// Outer margin of the picture.
@@ -116,6 +118,7 @@ impl Sizes {
             frame: 1.2 * s,
             tick_len: 6.0 * s,
             marker: 4.5 * s,
+            halo: 1.0 * s,
             dash: (10.0 * s, 6.0 * s),
             margin: 14.0 * s,
             gap: 6.0 * s,
