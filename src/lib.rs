@@ -21,5 +21,6 @@ pub mod linalg;
 pub mod longwave;
 pub mod model;
 pub mod output;
+pub mod plot;
 pub mod quadrature;
 pub mod transport;
