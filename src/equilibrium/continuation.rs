@@ -422,10 +422,10 @@ impl<'a> Tracer<'a> {
                 return Ok(None);
             }
             let mut step2 = dp * dp * m.wp;
-            for i in 0..self.n {
-                let d = self.a[i] + self.b[i] * dp;
+            for ((x, a), b) in xt.iter_mut().zip(&self.a).zip(&self.b) {
+                let d = a + b * dp;
                 step2 += d * d * m.wt;
-                xt[i] += d;
+                *x += d;
             }
             p += dp;
             let step = step2.sqrt();
@@ -441,32 +441,37 @@ impl<'a> Tracer<'a> {
         Ok(None)
     }
 
-    /// A node at the corrector's result, with its tangent oriented along `(x - from)`, or with
-    /// `dp >= 0` when `from` is `None`.
-    fn node_at_result(&mut self, p: f64, from: Option<(&[f64], f64)>) -> Option<Node> {
+    /// A node at the corrector's result, with its tangent oriented to increase `<along, x>` (the
+    /// constraint the step was solved with, which the curve crosses in that direction), or with
+    /// `dp >= 0` when `along` is `None`. (Orienting by the secant fails at a cusp-like corner,
+    /// where the secant from the incoming piece points back along the outgoing one.)
+    fn node_at_result(&mut self, p: f64, along: Option<&Tan>) -> Option<Node> {
         let mut tan = Tan::zeros(self.n);
         if !self.tangent_into(&mut tan) {
             return None;
         }
-        if let Some((ft, fp)) = from {
-            let mut s = (p - fp) * tan.dp * self.metric.wp;
-            for i in 0..self.n {
-                s += (self.xt[i] - ft[i]) * tan.dt[i] * self.metric.wt;
-            }
-            if s < 0.0 {
+        if let Some(v) = along {
+            if self.metric.tan(&tan, v) < 0.0 {
                 tan.negate();
             }
         }
-        let jac = std::mem::replace(&mut self.jac, Tridiag::zeros(0));
-        let (leading, method) = self.stab.leading_from_jacobian(&self.model, &jac);
-        self.jac = jac;
+        // The eigenvalue is computed only for accepted nodes (`stabilise`).
         Some(Node {
             t: self.xt.clone(),
             p,
             tan,
-            leading,
-            method,
+            leading: f64::NAN,
+            method: SpectrumMethod::SymmetricTridiagonal,
         })
+    }
+
+    /// The leading eigenvalue of an accepted node.
+    fn stabilise(&mut self, nd: &mut Node) -> Result<(), ConfigError> {
+        self.set_p(nd.p)?;
+        let (leading, method) = self.stab.leading(&self.model, 0.0, &nd.t);
+        nd.leading = leading;
+        nd.method = method;
+        Ok(())
     }
 
     /// The node at an equilibrium `t` at control `p` (tangent with `dp >= 0`).
@@ -480,14 +485,17 @@ impl<'a> Tracer<'a> {
         let Some((p, _)) = r else {
             return Err(bad("Newton at fixed control does not converge from it"));
         };
-        self.node_at_result(p, None)
-            .ok_or_else(|| bad("singular Jacobian (the start sits on a fold)"))
+        let mut nd = self
+            .node_at_result(p, None)
+            .ok_or_else(|| bad("singular Jacobian (the start sits on a fold)"))?;
+        self.stabilise(&mut nd)?;
+        Ok(nd)
     }
 
     /// Predictor `from + h tan` into `self.pt`; returns its control.
     fn predict(&mut self, from_t: &[f64], from_p: f64, tan: &Tan, h: f64) -> f64 {
-        for i in 0..self.n {
-            self.pt[i] = from_t[i] + h * tan.dt[i];
+        for ((q, t), d) in self.pt.iter_mut().zip(from_t).zip(&tan.dt) {
+            *q = t + h * d;
         }
         from_p + h * tan.dp
     }
@@ -500,16 +508,43 @@ impl<'a> Tracer<'a> {
         let r = self.correct(&pt, pp, Constraint::Along(&cur.tan, level), ds.max(1e-12));
         self.pt = pt;
         let Some((p, iters)) = r? else { return Ok(None) };
-        Ok(self
-            .node_at_result(p, Some((&cur.t, cur.p)))
-            .map(|nd| (nd, iters)))
+        Ok(self.node_at_result(p, Some(&cur.tan)).map(|nd| (nd, iters)))
+    }
+
+    /// Ice measure (ice-covered length in x over the whole grid) of a state.
+    fn ice_measure(&self, t: &[f64]) -> f64 {
+        let g = &self.model.grid;
+        self.model
+            .albedo
+            .ice_measure_in(g, t, g.x_faces[0], g.x_faces[g.len()])
+    }
+
+    /// Whether an ice measure means ice free (-1), ice covered (+1) or partly covered (0).
+    fn ice_end(&self, measure: f64) -> i32 {
+        let g = &self.model.grid;
+        let total = g.x_faces[g.len()] - g.x_faces[0];
+        if measure <= 1e-12 * total {
+            -1
+        } else if measure >= total * (1.0 - 1e-12) {
+            1
+        } else {
+            0
+        }
     }
 
     /// Cross a corner just ahead of `cur` (steps of `ds` along its tangent failed): take the
     /// outgoing piece's tangent from the linearisation beyond the corner and correct along the
-    /// bisector of the two tangents.
-    fn cross_corner(&mut self, cur: &Node, ds: f64) -> Result<Option<Node>, ConfigError> {
+    /// bisector of the two tangents. `prev_ice` is the ice measure of the node before `cur`.
+    ///
+    /// Where the two pieces meet almost head-on (a cusp, as where ice first appears at the
+    /// pole), the incoming curve can bend back across the bisector's level set; a candidate is
+    /// rejected as such a reversal when its ice measure goes back against the incoming trend
+    /// (or stays put after an ice-free or snowball stretch). The ice measure is monotone along
+    /// partly ice-covered branches (Q is a function of the edge there, North 1975).
+    fn cross_corner(&mut self, cur: &Node, ds: f64, prev_ice: f64) -> Result<Option<Node>, ConfigError> {
         let m = self.metric;
+        let ice_cur = self.ice_measure(&cur.t);
+        let trend = ice_cur - prev_ice;
         let mut best: Option<(Node, f64)> = None;
         for h in [4.0 * ds, 16.0 * ds, 64.0 * ds] {
             let py = self.predict(&cur.t, cur.p, &cur.tan, h);
@@ -545,9 +580,19 @@ impl<'a> Tracer<'a> {
                 let pred: Vec<f64> = y.iter().zip(&t2.dt).map(|(a, b)| a + alpha * s * b).collect();
                 let pred_p = py + alpha * s * t2.dp;
                 if let Some((p, _)) = self.correct(&pred, pred_p, Constraint::Along(&v, level), 8.0 * h)? {
+                    let step = self.ice_measure(&self.xt) - ice_cur;
+                    let tiny = 1e-12;
+                    let reversal = if trend.abs() > tiny {
+                        step * trend < 0.0
+                    } else {
+                        step.abs() <= tiny
+                    };
+                    if reversal {
+                        continue;
+                    }
                     let d = m.dist(&self.xt, p, &pred, pred_p);
                     if best.as_ref().is_none_or(|(_, bd)| d < *bd) {
-                        if let Some(nd) = self.node_at_result(p, Some((&cur.t, cur.p))) {
+                        if let Some(nd) = self.node_at_result(p, Some(&v)) {
                             best = Some((nd, d));
                         }
                     }
@@ -597,8 +642,8 @@ impl<'a> Tracer<'a> {
         let mut eval = |tr: &mut Tracer<'a>, best: &mut (f64, Vec<f64>, f64), sigma: f64| {
             // Predictor: the chord at the same fraction.
             let f = if len > 0.0 { sigma / len } else { 0.5 };
-            for i in 0..tr.n {
-                pred[i] = a.t[i] + f * (b.t[i] - a.t[i]);
+            for ((q, x), y) in pred.iter_mut().zip(&a.t).zip(&b.t) {
+                *q = x + f * (y - x);
             }
             let pred_p = a.p + f * (b.p - a.p);
             let r = tr.correct(
@@ -687,7 +732,7 @@ impl<'a> Tracer<'a> {
         let pred: Vec<f64> = cur.t.iter().zip(&next.t).map(|(a, b)| a + f * (b - a)).collect();
         let d = self.metric.dist(&cur.t, cur.p, &next.t, next.p);
         if let Some((p, _)) = self.correct(&pred, edge, Constraint::Control(edge), d + 1e-9)? {
-            return Ok(self.node_at_result(p, Some((&cur.t, cur.p))));
+            return Ok(self.node_at_result(p, Some(&cur.tan)));
         }
         Ok(None)
     }
@@ -705,6 +750,7 @@ impl<'a> Tracer<'a> {
         let (pmin, pmax) = (self.opts.from.min(self.opts.to), self.opts.from.max(self.opts.to));
         let corner_step = (CORNER_FRACTION * self.opts.step).max(self.opts.min_step);
         let mut cur = start.clone();
+        let mut prev_ice = self.ice_measure(&start.t);
         let mut ds = self.opts.step;
         let mut travelled = 0.0;
         loop {
@@ -713,7 +759,30 @@ impl<'a> Tracer<'a> {
             }
             let mut corner = false;
             let mut next = None;
-            if let Some((nd, iters)) = self.step(&cur, ds)? {
+            let stepped = self.step(&cur, ds)?;
+            // A correction that lands far to the side of the tangent has jumped to another
+            // piece across a cusp (the hyperplane cuts both pieces there): refuse it, so that
+            // the corner crossing (oriented by the bisector) takes over.
+            //
+            // Also refuse a step between an ice-free (or ice-covered) state and a partly covered
+            // one: where ice first appears at the pole the two pieces meet almost head-on, the
+            // step can land on the far piece with no sign of the turn, and only the corner
+            // crossing orients the outgoing tangent correctly.
+            let whole = self.ice_measure(&cur.t);
+            let cur_end = self.ice_end(whole);
+            let stepped = stepped.filter(|(nd, _)| self.ice_end(self.ice_measure(&nd.t)) == cur_end);
+            let stepped = stepped.filter(|(nd, _)| {
+                let chord = self.metric.dist(&nd.t, nd.p, &cur.t, cur.p);
+                let along = self.metric.inner(&cur.tan.dt, cur.tan.dp, &nd.t, nd.p)
+                    - self.metric.inner(&cur.tan.dt, cur.tan.dp, &cur.t, cur.p);
+                along
+                    >= if ds <= corner_step {
+                        0.5
+                    } else {
+                        MIN_TANGENT_COSINE
+                    } * chord
+            });
+            if let Some((nd, iters)) = stepped {
                 let cosang = self.metric.tan(&nd.tan, &cur.tan);
                 if cosang >= MIN_TANGENT_COSINE || ds <= corner_step {
                     corner = cosang < MIN_TANGENT_COSINE;
@@ -731,7 +800,7 @@ impl<'a> Tracer<'a> {
                     ds *= 0.5;
                 }
             } else if ds <= corner_step {
-                if let Some(nd) = self.cross_corner(&cur, ds)? {
+                if let Some(nd) = self.cross_corner(&cur, ds, prev_ice)? {
                     corner = true;
                     next = Some(nd);
                     ds = (8.0 * ds).min(self.opts.max_step);
@@ -741,7 +810,7 @@ impl<'a> Tracer<'a> {
             } else {
                 ds *= 0.5;
             }
-            let Some(nd) = next else {
+            let Some(mut nd) = next else {
                 if ds < self.opts.min_step {
                     return Ok(LegEnd::Stuck { control: cur.p });
                 }
@@ -754,17 +823,20 @@ impl<'a> Tracer<'a> {
             }
             if nd.p < pmin || nd.p > pmax {
                 let edge = if nd.p < pmin { pmin } else { pmax };
-                if let Some(end) = self.land(&cur, &nd, edge)? {
+                if let Some(mut end) = self.land(&cur, &nd, edge)? {
+                    self.stabilise(&mut end)?;
                     nodes.push(end);
                 }
                 return Ok(LegEnd::LeftRange);
             }
+            self.stabilise(&mut nd)?;
             travelled += self.metric.dist(&nd.t, nd.p, &cur.t, cur.p);
             let back = self.metric.dist(&nd.t, nd.p, &start.t, start.p);
             nodes.push(nd.clone());
             if travelled > 10.0 * self.opts.max_step && back < 0.5 * ds.max(self.opts.step) {
                 return Ok(LegEnd::Closed);
             }
+            prev_ice = self.ice_measure(&cur.t);
             cur = nd;
         }
     }
@@ -839,10 +911,7 @@ impl<'a> Tracer<'a> {
         let Some((p, _)) = self.correct(guess, p, Constraint::Control(p), max_dist)? else {
             return Ok(None);
         };
-        let mut dtdp = vec![0.0; self.n];
-        for i in 0..self.n {
-            dtdp[i] = -self.gp[i];
-        }
+        let mut dtdp: Vec<f64> = self.gp.iter().map(|g| -g).collect();
         self.lu.solve(&mut dtdp);
         let jac = std::mem::replace(&mut self.jac, Tridiag::zeros(0));
         let (leading, method) = self.stab.leading_from_jacobian(&self.model, &jac);

@@ -18,7 +18,7 @@
 //! Reference: Golub and Van Loan, Matrix Computations (4th ed.), sections 8.4.1 (Sturm
 //! sequences) and 7.5 (the QR algorithm).
 
-use crate::linalg::Tridiag;
+use crate::linalg::{dot, Tridiag};
 use crate::model::{Model, Workspace, YEAR_SECONDS};
 use nalgebra::DMatrix;
 
@@ -30,6 +30,9 @@ pub enum SpectrumMethod {
     /// Symmetrisable except for the coupling of one outermost band: the leading eigenvalue is
     /// the largest zero of the secular function of the symmetric part, proven real.
     SymmetricWithEdge,
+    /// Tridiagonal plus rank one (relaxation transport): zeros of the secular function of the
+    /// symmetrisable tridiagonal part.
+    SecularRankOne,
     /// General dense eigen-solve (possibly complex eigenvalues).
     GeneralDense,
 }
@@ -40,6 +43,7 @@ impl SpectrumMethod {
         match self {
             SpectrumMethod::SymmetricTridiagonal => "symmetric",
             SpectrumMethod::SymmetricWithEdge => "symmetric with edge coupling",
+            SpectrumMethod::SecularRankOne => "tridiagonal plus rank one",
             SpectrumMethod::GeneralDense => "general",
         }
     }
@@ -54,6 +58,11 @@ impl SpectrumMethod {
             SpectrumMethod::SymmetricWithEdge => {
                 "tridiagonal Jacobian symmetrisable except for one outermost band's coupling: \
                  leading eigenvalue from the secular equation of the symmetric part (shown real)"
+            }
+            SpectrumMethod::SecularRankOne => {
+                "relaxation transport makes the Jacobian tridiagonal plus rank one: eigenvalues as the \
+                 zeros of 1 + w^T (T - x)^-1 u between and above the eigenvalues of the symmetrisable \
+                 tridiagonal part T (real, interlacing)"
             }
             SpectrumMethod::GeneralDense => {
                 "Jacobian not symmetrisable (outermost edge band or relaxation transport): \
@@ -71,6 +80,7 @@ pub struct Stability {
     d: Vec<f64>,
     e2: Vec<f64>,
     scale: Vec<f64>,
+    weights: Vec<f64>,
 }
 
 impl Stability {
@@ -83,6 +93,7 @@ impl Stability {
             d: vec![0.0; n],
             e2: vec![0.0; n.saturating_sub(1)],
             scale: model.heat_capacity.iter().map(|c| YEAR_SECONDS / c).collect(),
+            weights: model.grid.weights.clone(),
         }
     }
 
@@ -105,13 +116,12 @@ impl Stability {
             )
         } else if let Some(lead) = self.edge_coupled(jac) {
             (lead, SpectrumMethod::SymmetricWithEdge)
+        } else if let Some(lead) = RankOne::new(self, jac).and_then(|r| r.leading()) {
+            (lead, SpectrumMethod::SecularRankOne)
         } else {
-            let m = dense(model, jac);
-            let lead = m
-                .complex_eigenvalues()
-                .iter()
-                .map(|c| c.re)
-                .fold(f64::NEG_INFINITY, f64::max);
+            let lead = general_eigenvalues(dense(model, jac))
+                .map(|ev| ev.iter().map(|c| c.0).fold(f64::NEG_INFINITY, f64::max))
+                .unwrap_or(f64::NAN);
             (lead, SpectrumMethod::GeneralDense)
         }
     }
@@ -211,18 +221,19 @@ impl Stability {
             }
         }
         let top = 0.5 * (a + b);
-        if !(f(top).0 > 0.0) {
+        // (A NaN fails every comparison and so returns here too.)
+        if f(top).0.is_nan() || f(top).0 <= 0.0 {
             return None;
         }
         // Larger zero: Newton from hi, monotone for a concave decreasing f.
         let mut x = hi;
         for _ in 0..100 {
             let (fx, dfx) = f(x);
-            if !(fx < 0.0) || !(dfx < 0.0) {
+            if fx.is_nan() || dfx.is_nan() || fx >= 0.0 || dfx >= 0.0 {
                 break;
             }
             let next = x - fx / dfx;
-            if !(next < x) || next <= top {
+            if next.is_nan() || next >= x || next <= top {
                 break;
             }
             let done = x - next <= 4.0 * f64::EPSILON * x.abs();
@@ -312,7 +323,7 @@ fn largest_symmetric(d: &[f64], e2: &[f64]) -> f64 {
     for _ in 0..60 {
         let Some(step) = newton_ratio(d, e2, x) else { break };
         let next = x - step;
-        if !(next < x) || next <= lo {
+        if next.is_nan() || next >= x || next <= lo {
             break;
         }
         let done = x - next <= 4.0 * f64::EPSILON * x.abs().max(1e-300);
@@ -322,6 +333,184 @@ fn largest_symmetric(d: &[f64], e2: &[f64]) -> f64 {
         }
     }
     x
+}
+
+/// The scaled Jacobian `T + u w^T` of relaxation transport: `T` tridiagonal with non-negative
+/// off-diagonal products (eigenvalues `tau`, real), `u = scale * gamma * 1`, `w` the area
+/// weights. Its eigenvalues are the zeros of `det(T - x) (1 + w^T (T - x)^-1 u)`; when the
+/// residues of the secular function are positive (as for a diagonal `T` with `u_i w_i > 0`)
+/// there is one zero in each gap between distinct `tau` and one above the largest, and each
+/// `tau` of multiplicity m stays an eigenvalue m - 1 times (Golub 1973, SIAM Rev. 15, 318-334).
+/// The sign pattern of the secular function at the gaps is checked; `None` when it does not
+/// hold.
+struct RankOne {
+    t: Tridiag,
+    u: Vec<f64>,
+    w: Vec<f64>,
+    d: Vec<f64>,
+    e2: Vec<f64>,
+}
+
+impl RankOne {
+    fn new(st: &Stability, jac: &Tridiag) -> Option<RankOne> {
+        let gamma = jac.rank_one?;
+        let n = jac.len();
+        let mut t = jac.clone();
+        t.rank_one = None;
+        for i in 0..n {
+            t.diag[i] *= st.scale[i];
+            t.lower[i] *= st.scale[i];
+            t.upper[i] *= st.scale[i];
+        }
+        let mut e2 = vec![0.0; n.saturating_sub(1)];
+        for (i, e) in e2.iter_mut().enumerate() {
+            let p = t.upper[i] * t.lower[i + 1];
+            if p < 0.0 {
+                return None;
+            }
+            *e = p;
+        }
+        Some(RankOne {
+            d: t.diag.clone(),
+            u: st.scale.iter().map(|c| c * gamma).collect(),
+            w: st.weights.clone(),
+            t,
+            e2,
+        })
+    }
+
+    /// `1 + w^T (T - x)^-1 u`, or `None` at a pole.
+    fn secular(&self, x: f64) -> Option<f64> {
+        // Thomas algorithm on T - x for the right-hand side u.
+        let n = self.t.len();
+        let mut c = vec![0.0; n];
+        let mut z = vec![0.0; n];
+        let mut prev_c = 0.0;
+        let mut prev_z = 0.0;
+        for i in 0..n {
+            let a = if i > 0 { self.t.lower[i] } else { 0.0 };
+            let piv = self.t.diag[i] - x - a * prev_c;
+            if piv == 0.0 || !piv.is_finite() {
+                return None;
+            }
+            prev_c = if i + 1 < n { self.t.upper[i] / piv } else { 0.0 };
+            prev_z = (self.u[i] - a * prev_z) / piv;
+            c[i] = prev_c;
+            z[i] = prev_z;
+        }
+        for i in (0..n.saturating_sub(1)).rev() {
+            z[i] -= c[i] * z[i + 1];
+        }
+        Some(1.0 + dot(&self.w, &z))
+    }
+
+    /// The zero of the secular function in `(lo, hi)` where it rises from negative to positive.
+    fn zero_between(&self, lo: f64, hi: f64) -> Option<f64> {
+        let width = hi - lo;
+        let (mut a, mut b) = (lo + 1e-13 * width.max(lo.abs()), hi - 1e-13 * width.max(hi.abs()));
+        if !(self.secular(a)? < 0.0 && self.secular(b)? > 0.0) {
+            return None;
+        }
+        for _ in 0..200 {
+            let m = 0.5 * (a + b);
+            if m <= a || m >= b {
+                break;
+            }
+            if self.secular(m)? < 0.0 {
+                a = m;
+            } else {
+                b = m;
+            }
+        }
+        Some(0.5 * (a + b))
+    }
+
+    /// Upper bound of the spectrum of `T + u w^T` (Gershgorin on rows).
+    fn upper_bound(&self) -> f64 {
+        let n = self.t.len();
+        let wsum: f64 = self.w.iter().map(|v| v.abs()).sum();
+        (0..n)
+            .map(|i| {
+                let off = if i > 0 { self.t.lower[i].abs() } else { 0.0 }
+                    + if i + 1 < n { self.t.upper[i].abs() } else { 0.0 };
+                self.t.diag[i] + off + self.u[i].abs() * wsum
+            })
+            .fold(f64::NEG_INFINITY, f64::max)
+    }
+
+    fn leading(&self) -> Option<f64> {
+        let tau = largest_symmetric(&self.d, &self.e2);
+        let hi = self.upper_bound().max(tau) + 1e-9 * (1.0 + tau.abs());
+        self.zero_between(tau, hi)
+    }
+
+    /// All eigenvalues, largest first.
+    fn spectrum(&self) -> Option<Vec<f64>> {
+        let n = self.t.len();
+        let m = DMatrix::from_fn(n, n, |r, c| {
+            if r == c {
+                self.d[r]
+            } else if r + 1 == c {
+                self.e2[r].sqrt()
+            } else if c + 1 == r {
+                self.e2[c].sqrt()
+            } else {
+                0.0
+            }
+        });
+        let mut tau: Vec<f64> = m.symmetric_eigenvalues().iter().copied().collect();
+        tau.sort_by(|a, b| a.total_cmp(b));
+        let scale = tau
+            .iter()
+            .fold(0.0_f64, |a, v| a.max(v.abs()))
+            .max(f64::MIN_POSITIVE);
+        // Distinct poles (clusters within 1e-10 of the scale are one pole).
+        let mut poles: Vec<(f64, usize)> = Vec::new();
+        for t in tau {
+            match poles.last_mut() {
+                Some((p, k)) if (t - *p).abs() <= 1e-10 * scale => *k += 1,
+                _ => poles.push((t, 1)),
+            }
+        }
+        let mut ev = Vec::with_capacity(n);
+        for (p, k) in &poles {
+            ev.extend(std::iter::repeat_n(*p, k - 1));
+        }
+        for w in poles.windows(2) {
+            ev.push(self.zero_between(w[0].0, w[1].0)?);
+        }
+        ev.push(self.leading()?);
+        if ev.len() != n {
+            return None;
+        }
+        ev.sort_by(|a, b| b.total_cmp(a));
+        Some(ev)
+    }
+}
+
+/// Eigenvalues `(re, im)` of a general dense matrix by the real Schur form, with an iteration
+/// cap. nalgebra's QR iteration can cycle on matrices with many equal eigenvalues (its issues
+/// 611 and 764, e.g. relaxation transport on a uniform state); then the diagonal is perturbed by
+/// a few ulps of the matrix norm, which moves the eigenvalues by about as much, and it retries.
+fn general_eigenvalues(m: DMatrix<f64>) -> Option<Vec<(f64, f64)>> {
+    let n = m.nrows();
+    let norm = m
+        .iter()
+        .fold(0.0_f64, |a, v| a.max(v.abs()))
+        .max(f64::MIN_POSITIVE);
+    for attempt in 0..4 {
+        let mut a = m.clone();
+        if attempt > 0 {
+            let eps = f64::EPSILON * norm * 10f64.powi(2 * attempt - 1);
+            for i in 0..n {
+                a[(i, i)] += eps * ((i % 7) as f64 - 3.0) / 3.0;
+            }
+        }
+        if let Some(s) = nalgebra::linalg::Schur::try_new(a, f64::EPSILON, 50 * n.max(10)) {
+            return Some(s.complex_eigenvalues().iter().map(|c| (c.re, c.im)).collect());
+        }
+    }
+    None
 }
 
 /// The dense per-year Jacobian `yr C^-1 dG/dT`.
@@ -355,6 +544,7 @@ pub fn spectrum(model: &Model, t_years: f64, temps: &[f64]) -> Spectrum {
     let mut jac = Tridiag::zeros(n);
     model.heating_jacobian(t_years, temps, &mut ws, &mut jac);
     let symmetric = st.symmetrise(&jac);
+    let mut rank_one = false;
     let mut pairs: Vec<(f64, f64)> = if symmetric {
         let (d, e2) = (&st.d, &st.e2);
         let m = DMatrix::from_fn(n, n, |r, c| {
@@ -376,15 +566,16 @@ pub fn spectrum(model: &Model, t_years: f64, temps: &[f64]) -> Spectrum {
             first.0 = largest_symmetric(d, e2);
         }
         ev
+    } else if let Some(ev) = RankOne::new(&st, &jac).and_then(|r| r.spectrum()) {
+        rank_one = true;
+        ev.into_iter().map(|v| (v, 0.0)).collect()
     } else {
-        dense(model, &jac)
-            .complex_eigenvalues()
-            .iter()
-            .map(|c| (c.re, c.im))
-            .collect()
+        general_eigenvalues(dense(model, &jac)).unwrap_or_else(|| vec![(f64::NAN, f64::NAN); n])
     };
     let method = if symmetric {
         SpectrumMethod::SymmetricTridiagonal
+    } else if rank_one {
+        SpectrumMethod::SecularRankOne
     } else {
         SpectrumMethod::GeneralDense
     };
@@ -399,6 +590,29 @@ pub fn spectrum(model: &Model, t_years: f64, temps: &[f64]) -> Spectrum {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn relaxation_spectrum_is_the_analytic_one() {
+        // Analytic (common practice): on an ice-free state with linear OLR and relaxation
+        // transport, C dT/dt = -(B + gamma) T' + gamma mean(T'): the global mode decays at B/C,
+        // every other mode at (B + gamma)/C.
+        let text = "[grid]\nbands = 24\n[albedo]\nice_free = 0.3\nice = 0.3\nfreeze_temperature_c = -250\n\
+                    [longwave]\na = 203.3\nb = 2.0\n[transport]\nkind = \"relaxation\"\nrelaxation_rate = 3.0\n\
+                    [heat_capacity]\nvalue = 4.0e8\n";
+        let cfg = crate::config::load_str(text, "t", std::path::Path::new("."), &[]).unwrap();
+        let model = Model::from_spec(&cfg.spec.model);
+        let t = vec![288.0; 24];
+        let c = YEAR_SECONDS / 4.0e8;
+        let (lead, method) = leading_eigenvalue(&model, 0.0, &t);
+        assert_eq!(method, SpectrumMethod::SecularRankOne);
+        assert!((lead + 2.0 * c).abs() < 1e-12 * c, "{lead}");
+        let sp = spectrum(&model, 0.0, &t);
+        assert_eq!(sp.method, SpectrumMethod::SecularRankOne);
+        assert!((sp.real[0] + 2.0 * c).abs() < 1e-12 * c);
+        for v in &sp.real[1..] {
+            assert!((v + 5.0 * c).abs() < 1e-12 * c, "{v}");
+        }
+    }
 
     #[test]
     fn edge_coupled_leading_matches_a_dense_solve() {
@@ -435,6 +649,7 @@ mod tests {
                 d: vec![0.0; n],
                 e2: vec![0.0; n - 1],
                 scale: vec![1.0; n],
+                weights: vec![1.0 / n as f64; n],
             };
             assert!(!st.symmetrise(&j));
             let got = st.edge_coupled(&j).expect("real leading eigenvalue");

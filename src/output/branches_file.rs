@@ -10,6 +10,9 @@ use crate::equilibrium::control::control_units;
 use crate::model::Model;
 use std::path::Path;
 
+/// An integer variable: name, attributes, values.
+type IntColumn<'a> = (&'a str, Vec<(&'a str, Attr)>, Vec<i32>);
+
 /// Range and bookkeeping written as attributes.
 #[derive(Debug, Clone, PartialEq)]
 pub struct BranchesInfo<'a> {
@@ -175,7 +178,7 @@ pub fn write_branches(
         w.add_variable_f64(name, &["fold"], &attrs(u, long, None))?;
         w.write_f64(name, values)?;
     }
-    let fold_i32: Vec<(&str, Vec<(&str, Attr)>, Vec<i32>)> = vec![
+    let fold_i32: Vec<IntColumn<'_>> = vec![
         (
             "fold_branch",
             attrs("1", "index of the branch holding the fold", None),
@@ -240,7 +243,7 @@ pub fn write_branches(
         ));
         a
     };
-    let b_vars: Vec<(&str, Vec<(&str, Attr)>, Vec<i32>)> = vec![
+    let b_vars: Vec<IntColumn<'_>> = vec![
         (
             "branch_points",
             attrs("1", "number of points of the branch", None),

@@ -8,6 +8,9 @@ use crate::equilibrium::stability::Spectrum;
 use crate::model::{Model, Workspace};
 use std::path::Path;
 
+/// A per-band variable: name, units, long name, standard name, values.
+type BandColumn<'a> = (&'a str, &'a str, &'a str, Option<&'a str>, &'a [f64]);
+
 /// What an equilibrium file holds besides the model.
 #[derive(Debug, Clone, PartialEq)]
 pub struct EquilibriumRecord<'a> {
@@ -53,7 +56,7 @@ pub fn write_equilibrium(
         &attrs("J m-2 K-1", "heat capacity per unit area", None),
     )?;
     w.write_f64("heat_capacity", &model.heat_capacity)?;
-    let per_band: [(&str, &str, &str, Option<&str>, &[f64]); 5] = [
+    let per_band: [BandColumn<'_>; 5] = [
         (
             "surface_temperature",
             "K",

@@ -11,6 +11,9 @@ use crate::equilibrium::sweep::{Reached, SweepResult};
 use crate::model::Model;
 use std::path::Path;
 
+/// An integer variable: name, attributes, values.
+type IntColumn<'a> = (&'a str, Vec<(&'a str, Attr)>, Vec<i32>);
+
 /// Write the sweep file at `path` (atomically, via a temporary file).
 pub fn write_sweep(
     path: &Path,
@@ -89,7 +92,7 @@ pub fn write_sweep(
         a.push(("flag_meanings", Attr::from(meanings)));
         a
     };
-    let i32_vars: Vec<(&str, Vec<(&str, Attr)>, Vec<i32>)> = vec![
+    let i32_vars: Vec<IntColumn<'_>> = vec![
         (
             "direction",
             attrs(
