@@ -1,0 +1,297 @@
+//! `icefold equilibrium`, `sweep` and `branches` through the binary (issue 3): the files carry
+//! the fixed names of DESIGN section 4 (read back with the crate's reader), existing files are
+//! kept without `--overwrite`, and bad input exits 2 naming the key with no file left behind.
+
+use icefold::output::NcReader;
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output};
+
+const BIN: &str = env!("CARGO_BIN_EXE_icefold");
+
+fn tempdir(tag: &str) -> PathBuf {
+    let d = std::env::temp_dir().join(format!("icefold-cli-tipping-{tag}-{}", std::process::id()));
+    let _ = std::fs::remove_dir_all(&d);
+    std::fs::create_dir_all(&d).unwrap();
+    d
+}
+
+fn config(name: &str) -> PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR")).join("configs").join(name)
+}
+
+fn icefold(dir: &Path, args: &[&str]) -> Output {
+    Command::new(BIN).args(args).current_dir(dir).output().unwrap()
+}
+
+fn ok(out: &Output) {
+    assert!(
+        out.status.success(),
+        "exit {:?}: {}",
+        out.status.code(),
+        String::from_utf8_lossy(&out.stderr)
+    );
+}
+
+fn has(r: &NcReader, names: &[&str]) {
+    let vars = r.var_names().unwrap();
+    for n in names {
+        assert!(vars.iter().any(|v| v == n), "missing variable {n} in {vars:?}");
+    }
+}
+
+#[test]
+fn equilibrium_file_has_the_state_budget_and_spectrum() {
+    let dir = tempdir("eq");
+    let cfg = config("classic-step-albedo.toml");
+    let out = icefold(&dir, &["equilibrium", cfg.to_str().unwrap(), "-o", "eq.nc"]);
+    ok(&out);
+    let r = NcReader::open(&dir.join("eq.nc")).unwrap();
+    has(
+        &r,
+        &[
+            "lat",
+            "surface_temperature",
+            "absorbed_sunlight",
+            "outgoing_longwave",
+            "transport_convergence",
+            "net_heating",
+            "global_mean_temperature",
+            "ice_edge_latitude_north",
+            "max_abs_net_heating",
+            "eigenvalue",
+            "efolding_time",
+        ],
+    );
+    assert_eq!(r.var_dims("surface_temperature").unwrap(), ["lat"]);
+    assert_eq!(r.var_dims("eigenvalue").unwrap(), ["mode"]);
+    assert_eq!(r.dim_len("mode").unwrap(), 90);
+    let ev = r.read_f64("eigenvalue").unwrap();
+    let lead = r.attr_f64("leading_eigenvalue").unwrap().unwrap();
+    assert_eq!(ev[0], lead);
+    assert!(ev.windows(2).all(|w| w[0] >= w[1]), "largest first");
+    assert_eq!(r.attr_str("stability").unwrap().as_deref(), Some("stable"));
+    assert_eq!(
+        r.attr_str("spectrum_method").unwrap().as_deref(),
+        Some("symmetric")
+    );
+    assert_eq!(
+        r.attr_str("icefold_kind").unwrap().as_deref(),
+        Some("equilibrium")
+    );
+    // The residual is the Newton tolerance's order (1e-9 W m-2), and the budget closes.
+    let resid = r.read_f64("max_abs_net_heating").unwrap()[0];
+    assert!(resid < 1e-8, "{resid}");
+    let parts: Vec<Vec<f64>> = [
+        "absorbed_sunlight",
+        "outgoing_longwave",
+        "transport_convergence",
+        "net_heating",
+    ]
+    .iter()
+    .map(|n| r.read_f64(n).unwrap())
+    .collect();
+    for i in 0..90 {
+        assert!((parts[0][i] - parts[1][i] + parts[2][i] - parts[3][i]).abs() < 1e-9);
+    }
+    let efold = r.read_f64("efolding_time").unwrap();
+    assert!((efold[0] * lead.abs() - 1.0).abs() < 1e-12);
+    // From a snowball start the same config settles on the (stable) snowball.
+    let out = icefold(
+        &dir,
+        &[
+            "equilibrium",
+            cfg.to_str().unwrap(),
+            "-o",
+            "snow.nc",
+            "--start",
+            "snowball",
+        ],
+    );
+    ok(&out);
+    let r = NcReader::open(&dir.join("snow.nc")).unwrap();
+    assert_eq!(r.read_f64("ice_edge_latitude_north").unwrap(), [0.0]);
+    assert_eq!(r.attr_str("start").unwrap().as_deref(), Some("snowball"));
+    assert!(r.attr_f64("leading_eigenvalue").unwrap().unwrap() < 0.0);
+}
+
+#[test]
+fn sweep_file_has_the_fixed_names_and_the_hysteresis() {
+    let dir = tempdir("sweep");
+    let cfg = config("sweep-solar.toml");
+    let out = icefold(&dir, &["sweep", cfg.to_str().unwrap(), "-o", "sweep.nc"]);
+    ok(&out);
+    let r = NcReader::open(&dir.join("sweep.nc")).unwrap();
+    has(
+        &r,
+        &[
+            "control",
+            "direction",
+            "global_mean_temperature",
+            "ice_edge_latitude_north",
+            "tipping_control",
+            "tipping_direction",
+            "surface_temperature",
+            "settle_years",
+            "settled",
+        ],
+    );
+    for v in [
+        "control",
+        "direction",
+        "global_mean_temperature",
+        "ice_edge_latitude_north",
+    ] {
+        assert_eq!(r.var_dims(v).unwrap(), ["step"]);
+    }
+    for v in ["tipping_control", "tipping_direction"] {
+        assert_eq!(r.var_dims(v).unwrap(), ["tipping"]);
+    }
+    assert_eq!(r.var_dims("surface_temperature").unwrap(), ["step", "lat"]);
+    assert_eq!(
+        r.attr_str("control_key").unwrap().as_deref(),
+        Some("insolation.solar_constant")
+    );
+    assert_eq!(r.dim_len("step").unwrap(), 242);
+    let dir_v = r.read_f64("direction").unwrap();
+    assert!(dir_v[..121].iter().all(|d| *d == 1.0) && dir_v[121..].iter().all(|d| *d == -1.0));
+    let tips = r.read_f64("tipping_control").unwrap();
+    assert_eq!(tips.len(), 3, "{tips:?}");
+    let width = r.attr_f64("hysteresis_width").unwrap().unwrap();
+    let lo = tips.iter().copied().fold(f64::INFINITY, f64::min);
+    let hi = tips.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    assert!((width - (hi - lo)).abs() < 1e-9 * hi, "{width} vs {}", hi - lo);
+}
+
+#[test]
+fn branches_file_has_the_fixed_names() {
+    let dir = tempdir("branches");
+    let cfg = config("branches-solar.toml");
+    let out = icefold(&dir, &["branches", cfg.to_str().unwrap(), "-o", "br.nc"]);
+    ok(&out);
+    let r = NcReader::open(&dir.join("br.nc")).unwrap();
+    has(
+        &r,
+        &[
+            "control",
+            "global_mean_temperature",
+            "ice_edge_latitude_north",
+            "stable",
+            "leading_eigenvalue",
+            "branch",
+            "fold_control",
+            "fold_ice_edge_latitude_north",
+            "surface_temperature",
+        ],
+    );
+    for v in [
+        "control",
+        "global_mean_temperature",
+        "ice_edge_latitude_north",
+        "stable",
+        "leading_eigenvalue",
+        "branch",
+    ] {
+        assert_eq!(r.var_dims(v).unwrap(), ["point"]);
+    }
+    for v in ["fold_control", "fold_ice_edge_latitude_north"] {
+        assert_eq!(r.var_dims(v).unwrap(), ["fold"]);
+    }
+    assert_eq!(
+        r.attr_str("control_key").unwrap().as_deref(),
+        Some("insolation.solar_constant")
+    );
+    let stable = r.read_f64("stable").unwrap();
+    let lead = r.read_f64("leading_eigenvalue").unwrap();
+    assert!(stable.iter().zip(&lead).all(|(s, l)| (*s == 1.0) == (*l < 0.0)));
+    assert!(
+        r.dim_len("point").unwrap() >= 300,
+        "the example curve has 300+ points"
+    );
+    assert_eq!(r.dim_len("fold").unwrap(), 4);
+    let control = r.read_f64("control").unwrap();
+    assert!(control.iter().all(|c| (1100.0..=1800.0).contains(c)));
+}
+
+#[test]
+fn existing_files_are_kept_without_overwrite() {
+    let dir = tempdir("keep");
+    std::fs::write(dir.join("out.nc"), b"keep me").unwrap();
+    let cfg = config("branches-solar.toml");
+    let out = icefold(&dir, &["branches", cfg.to_str().unwrap(), "-o", "out.nc"]);
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("--overwrite"));
+    assert_eq!(std::fs::read(dir.join("out.nc")).unwrap(), b"keep me");
+    let out = icefold(
+        &dir,
+        &["branches", cfg.to_str().unwrap(), "-o", "out.nc", "--overwrite"],
+    );
+    ok(&out);
+    assert!(NcReader::open(&dir.join("out.nc")).is_ok());
+}
+
+#[test]
+fn bad_input_exits_2_naming_the_key_and_leaves_no_file() {
+    let dir = tempdir("bad");
+    let base = "[grid]\nbands = 12\n";
+    let cases: &[(&str, &str, String, &[&str])] = &[
+        (
+            "sweep",
+            "no sweep section",
+            base.to_string(),
+            &["[sweep]", "sweep"],
+        ),
+        (
+            "branches",
+            "no branches section",
+            base.to_string(),
+            &["[branches]", "branches"],
+        ),
+        (
+            "sweep",
+            "unknown control key",
+            format!("{base}[sweep]\ncontrol = \"albedo.icee\"\nfrom = 1\nto = 2\n"),
+            &["sweep.control", "albedo.icee"],
+        ),
+        (
+            "branches",
+            "control without effect",
+            format!("{base}[branches]\ncontrol = \"albedo.width_k\"\nfrom = 1\nto = 5\n"),
+            &["branches.control", "albedo.width_k", "no effect"],
+        ),
+        (
+            "branches",
+            "missing range end",
+            format!("{base}[branches]\ncontrol = \"insolation.solar_constant\"\nto = 1500\n"),
+            &["branches.from"],
+        ),
+        (
+            "sweep",
+            "control value out of range",
+            format!("{base}[sweep]\ncontrol = \"greenhouse.co2_ppm\"\nfrom = -5\nto = 400\n"),
+            &["greenhouse.co2_ppm", "-5"],
+        ),
+        (
+            "equilibrium",
+            "seasonal insolation",
+            format!("{base}[insolation]\nkind = \"seasonal\"\n"),
+            &["insolation.kind", "seasonal"],
+        ),
+    ];
+    for (cmd, name, text, expect) in cases {
+        let cfg = dir.join("bad.toml");
+        std::fs::write(&cfg, text).unwrap();
+        let out = icefold(&dir, &[cmd, "bad.toml", "-o", "out.nc"]);
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(2), "{name}: {err}");
+        for e in *expect {
+            assert!(err.contains(e), "{name}: message lacks {e:?}: {err}");
+        }
+        assert!(!dir.join("out.nc").exists(), "{name}: no output left");
+        let leftovers: Vec<_> = std::fs::read_dir(&dir)
+            .unwrap()
+            .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+            .filter(|n| n != "bad.toml")
+            .collect();
+        assert!(leftovers.is_empty(), "{name}: {leftovers:?}");
+    }
+}
