@@ -81,6 +81,8 @@ pub struct Stability {
     e2: Vec<f64>,
     scale: Vec<f64>,
     weights: Vec<f64>,
+    /// The last symmetric result, the guess for the next call.
+    last: f64,
 }
 
 impl Stability {
@@ -94,6 +96,7 @@ impl Stability {
             e2: vec![0.0; n.saturating_sub(1)],
             scale: model.heat_capacity.iter().map(|c| YEAR_SECONDS / c).collect(),
             weights: model.grid.weights.clone(),
+            last: f64::NAN,
         }
     }
 
@@ -110,10 +113,8 @@ impl Stability {
     /// evaluated at the state.
     pub fn leading_from_jacobian(&mut self, model: &Model, jac: &Tridiag) -> (f64, SpectrumMethod) {
         if self.symmetrise(jac) {
-            (
-                largest_symmetric(&self.d, &self.e2),
-                SpectrumMethod::SymmetricTridiagonal,
-            )
+            self.last = largest_symmetric_near(&self.d, &self.e2, self.last);
+            (self.last, SpectrumMethod::SymmetricTridiagonal)
         } else if let Some(lead) = self.edge_coupled(jac) {
             (lead, SpectrumMethod::SymmetricWithEdge)
         } else if let Some(lead) = RankOne::new(self, jac).and_then(|r| r.leading()) {
@@ -291,7 +292,20 @@ fn newton_ratio(d: &[f64], e2: &[f64], x: f64) -> Option<f64> {
 /// Largest eigenvalue of a symmetric tridiagonal: bisection until it is isolated, then Newton
 /// from above (monotone for a real-rooted polynomial), to round-off.
 fn largest_symmetric(d: &[f64], e2: &[f64]) -> f64 {
+    largest_symmetric_near(d, e2, f64::NAN)
+}
+
+/// [`largest_symmetric`] starting from a guess: when `hint` (e.g. the value at a neighbouring
+/// point of a branch) is within 1e-3 relative and isolated, the bisection is skipped.
+fn largest_symmetric_near(d: &[f64], e2: &[f64], hint: f64) -> f64 {
     let n = d.len();
+    if hint.is_finite() && n > 0 {
+        let delta = 1e-3 * (1.0 + hint.abs());
+        let (lo, hi) = (hint - delta, hint + delta);
+        if sturm_count(d, e2, hi) == n && sturm_count(d, e2, lo) == n - 1 {
+            return newton_from_above(d, e2, lo, hi);
+        }
+    }
     // Gershgorin bounds.
     let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
     for i in 0..n {
@@ -318,7 +332,12 @@ fn largest_symmetric(d: &[f64], e2: &[f64]) -> f64 {
             }
         }
     }
-    // Newton from hi: decreases monotonically to the largest zero.
+    newton_from_above(d, e2, lo, hi)
+}
+
+/// Newton on the characteristic polynomial from `hi`, above the largest eigenvalue and with
+/// no other eigenvalue above `lo`: decreases monotonically to the largest zero.
+fn newton_from_above(d: &[f64], e2: &[f64], lo: f64, hi: f64) -> f64 {
     let mut x = hi;
     for _ in 0..60 {
         let Some(step) = newton_ratio(d, e2, x) else { break };
@@ -650,6 +669,7 @@ mod tests {
                 e2: vec![0.0; n - 1],
                 scale: vec![1.0; n],
                 weights: vec![1.0 / n as f64; n],
+                last: f64::NAN,
             };
             assert!(!st.symmetrise(&j));
             let got = st.edge_coupled(&j).expect("real leading eigenvalue");

@@ -17,9 +17,8 @@
 
 use super::continuation::{ContinuationOptions, Tracer};
 use super::control::Controlled;
-use super::settle::settle;
+use super::settle::settle_to_equilibrium;
 use super::stability::leading_eigenvalue;
-use super::{newton, NewtonOptions};
 use crate::config::spec::SweepSpec;
 use crate::config::ConfigError;
 use crate::integrate::SolverError;
@@ -30,8 +29,6 @@ use crate::model::Model;
 const FOLLOW_DISTANCE: f64 = 0.05;
 /// Up and down states closer than this everywhere (K) are the same equilibrium.
 const SAME_STATE_K: f64 = 0.05;
-/// Local error per step of the settling integration, K.
-const SETTLE_TOLERANCE_K: f64 = 1e-3;
 
 /// How a step's state was reached.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -120,23 +117,39 @@ pub enum SweepError {
 
 /// The outcome of following a branch from one control value to the next.
 enum Follow {
-    /// Reached the target on the branch.
-    Reached { state: Vec<f64>, leading: f64 },
+    /// Reached the target on the branch (with `dT/dp` there).
+    Reached {
+        state: Vec<f64>,
+        leading: f64,
+        dtdp: Vec<f64>,
+    },
     /// Lost between `p_ok` (state `t_ok`) and `p_bad`.
     Lost { p_ok: f64, t_ok: Vec<f64>, p_bad: f64 },
 }
 
 /// Follow the stable branch through `(t0, p0)` to `p1`.
-fn follow(tr: &mut Tracer<'_>, t0: &[f64], p0: f64, p1: f64, rel: f64) -> Result<Follow, ConfigError> {
+/// `dtdp0` is `dT/dp` at the start when the previous step knows it.
+fn follow(
+    tr: &mut Tracer<'_>,
+    t0: &[f64],
+    p0: f64,
+    p1: f64,
+    rel: f64,
+    dtdp0: Option<Vec<f64>>,
+) -> Result<Follow, ConfigError> {
     let mut p = p0;
     let mut t = t0.to_vec();
-    // dT/dp at the start (also confirms the start is an equilibrium there).
-    let (mut dtdp, mut leading) = match tr.equilibrium_at(t0, p0, FOLLOW_DISTANCE)? {
-        Some(fc) => {
-            t = fc.state;
-            (fc.dtdp, fc.leading)
-        }
-        None => (vec![0.0; t0.len()], f64::NAN),
+    let mut leading = f64::NAN;
+    // dT/dp at the start (solving there also confirms the start is an equilibrium).
+    let mut dtdp = match dtdp0 {
+        Some(d) => d,
+        None => match tr.equilibrium_at(t0, p0, FOLLOW_DISTANCE)? {
+            Some(fc) => {
+                t = fc.state;
+                fc.dtdp
+            }
+            None => vec![0.0; t0.len()],
+        },
     };
     let mut sub = p1 - p0;
     let mut guess = vec![0.0; t0.len()];
@@ -174,51 +187,54 @@ fn follow(tr: &mut Tracer<'_>, t0: &[f64], p0: f64, p1: f64, rel: f64) -> Result
             }
         }
     }
-    Ok(Follow::Reached { state: t, leading })
+    if leading.is_nan() {
+        // No step was taken (the same control value again, at the turn of the sweep).
+        if let Some(fc) = tr.equilibrium_at(&t, p, FOLLOW_DISTANCE)? {
+            leading = fc.leading;
+        }
+    }
+    Ok(Follow::Reached {
+        state: t,
+        leading,
+        dtdp,
+    })
 }
 
-/// Settle at the model's control from `start` by time stepping, then polish with Newton when
-/// the result stays within `SAME_STATE_K` of the settled state.
+/// Settle at the model's control from `start` by time stepping onto the equilibrium the
+/// trajectory approaches (`settle_to_equilibrium`): `(state, years, max rate, settled)`.
 fn settle_and_polish(
     model: &Model,
     start: &[f64],
     spec: &SweepSpec,
-    tol: f64,
+    tol: Tolerances,
 ) -> Result<(Vec<f64>, f64, f64, bool), SolverError> {
-    let s = settle(
+    let s = settle_to_equilibrium(
         model,
         start,
         spec.settle_k_per_year,
         spec.settle_max_years,
-        SETTLE_TOLERANCE_K,
+        tol.step_k,
+        tol.newton_wm2,
     )?;
-    let opts = NewtonOptions {
-        tolerance_wm2: tol,
-        max_iterations: 60,
-        max_change: 5.0,
-    };
-    if s.settled {
-        if let Ok(r) = newton(model, 0.0, &s.state, opts) {
-            let close = r
-                .state
-                .iter()
-                .zip(&s.state)
-                .all(|(a, b)| (a - b).abs() < SAME_STATE_K);
-            if close && leading_eigenvalue(model, 0.0, &r.state).0 < 0.0 {
-                return Ok((r.state, s.years, 0.0, true));
-            }
-        }
-    }
     Ok((s.state, s.years, s.max_rate, s.settled))
 }
 
+/// Tolerances of a sweep.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Tolerances {
+    /// Newton residual target (largest |G_i|), W m-2.
+    pub newton_wm2: f64,
+    /// Local error per step of the settling integration, K.
+    pub step_k: f64,
+}
+
 /// Run the two-way sweep from `start`, a state at `spec.from` (settled there first).
-/// `tolerance_wm2` is the Newton residual target; `progress` gets the number of steps done.
+/// `tol` holds the Newton and time-step tolerances; `progress` gets the number of steps done.
 pub fn sweep(
     fam: &Controlled,
     spec: &SweepSpec,
     start: &[f64],
-    tolerance_wm2: f64,
+    tol: Tolerances,
     progress: &mut dyn FnMut(usize),
 ) -> Result<SweepResult, SweepError> {
     let values: Vec<f64> = (0..spec.steps)
@@ -231,7 +247,7 @@ pub fn sweep(
         max_step: 0.1,
         min_step: 1e-9,
         max_points: 10,
-        tolerance_wm2,
+        tolerance_wm2: tol.newton_wm2,
         fold_tolerance: spec.refine_relative,
     };
     let mut tr = Tracer::new(fam, opts);
@@ -244,20 +260,25 @@ pub fn sweep(
         (-up, values.iter().rev().copied().collect()),
     ];
     let mut prev: Option<(Vec<f64>, f64)> = None;
+    // dT/dp of the previous step's state when it was followed along its branch.
+    let mut carry: Option<Vec<f64>> = None;
     for (dir, vals) in legs {
         for &p in &vals {
             let model = fam.model_at(p)?;
             let (state, leading, years, rate, settled, reached) = match &prev {
                 // The first value: settle from the given start.
                 None => {
-                    let (s, y, r, ok) = settle_and_polish(&model, start, spec, tolerance_wm2)?;
+                    let (s, y, r, ok) = settle_and_polish(&model, start, spec, tol)?;
                     let l = leading_eigenvalue(&model, 0.0, &s).0;
                     (s, l, y, r, ok, Reached::Settled)
                 }
-                Some((t0, p0)) => match follow(&mut tr, t0, *p0, p, spec.refine_relative)? {
-                    Follow::Reached { state, leading } => (state, leading, 0.0, 0.0, true, Reached::Followed),
+                Some((t0, p0)) => match follow(&mut tr, t0, *p0, p, spec.refine_relative, carry.take())? {
+                    Follow::Reached { state, leading, dtdp } => {
+                        carry = Some(dtdp);
+                        (state, leading, 0.0, 0.0, true, Reached::Followed)
+                    }
                     Follow::Lost { p_ok, t_ok, p_bad } => {
-                        let (s, y, r, ok) = settle_and_polish(&model, t0, spec, tolerance_wm2)?;
+                        let (s, y, r, ok) = settle_and_polish(&model, t0, spec, tol)?;
                         let at = fam.model_at(p_ok)?;
                         tipping.push(Tipping {
                             control: 0.5 * (p_ok + p_bad),

@@ -5,7 +5,7 @@
 use super::run::{build_model, provenance};
 use crate::config::{ConfigError, Loaded};
 use crate::equilibrium::control::Controlled;
-use crate::equilibrium::settle::settle;
+use crate::equilibrium::settle::settle_to_equilibrium;
 use crate::equilibrium::stability::{spectrum, Spectrum};
 use crate::equilibrium::{newton, NewtonOptions};
 use crate::error::Error;
@@ -158,7 +158,14 @@ pub fn solve(model: &Model, start: &[f64], cfg: &Loaded) -> Result<Solved, Solve
             solver: "newton",
         });
     }
-    let s = settle(model, start, SETTLE_RATE, SETTLE_YEARS, SETTLE_TOLERANCE)?;
+    let s = settle_to_equilibrium(
+        model,
+        start,
+        SETTLE_RATE,
+        SETTLE_YEARS,
+        SETTLE_TOLERANCE,
+        eq.tolerance_wm2,
+    )?;
     let r = newton(model, 0.0, &s.state, opts).map_err(|e| SolverError::NoConvergence {
         what: "the equilibrium".into(),
         detail: format!(

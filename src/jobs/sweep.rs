@@ -6,7 +6,7 @@ use super::run::{build_model, provenance};
 use crate::cli::progress;
 use crate::config::spec::SweepSpec;
 use crate::config::{ConfigError, Loaded};
-use crate::equilibrium::sweep::{sweep, SweepError, SweepResult};
+use crate::equilibrium::sweep::{sweep, SweepError, SweepResult, Tolerances};
 use crate::error::Error;
 use crate::output::sweep_file::write_sweep;
 use std::path::Path;
@@ -42,13 +42,13 @@ pub fn run_sweep(cfg: &Loaded, show_progress: bool) -> Result<SweepResult, Error
         indicatif::ProgressBar::hidden()
     };
     let mut on_step = |k: usize| pb.set_position(k as u64);
-    let r = sweep(
-        &fam,
-        spec,
-        &start,
-        cfg.spec.equilibrium.tolerance_wm2,
-        &mut on_step,
-    );
+    // Settling uses the configured local error per step ([time] tolerance); Newton finishes it
+    // on the exact equilibrium, so only the basin has to be right.
+    let tol = Tolerances {
+        newton_wm2: cfg.spec.equilibrium.tolerance_wm2,
+        step_k: cfg.spec.time.tolerance,
+    };
+    let r = sweep(&fam, spec, &start, tol, &mut on_step);
     pb.finish_and_clear();
     r.map_err(|e| match e {
         SweepError::Config(c) => Error::Config(c),
