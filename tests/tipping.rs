@@ -296,6 +296,49 @@ fn sweep_tipping_points_lie_on_the_continuation_folds() {
     );
 }
 
+#[test]
+fn a_coarse_co2_sweep_finds_both_tipping_points_inside_one_step() {
+    // Consistency with the continuation (common practice): stepping CO2 linearly from 2 to
+    // 1.2e6 ppm, the down leg's last step (10002 -> 2 ppm) holds two tipping points (ice appears
+    // at the pole near 270 ppm, the snowball onset near 8 ppm); both are found and refined,
+    // within 0.5 % of the continuation's folds and corners.
+    let cfg = load(
+        &config_text("branches-co2.toml"),
+        &[
+            "sweep.control=greenhouse.co2_ppm",
+            "sweep.from=2",
+            "sweep.to=1.2e6",
+            "sweep.steps=121",
+        ],
+    );
+    let sweep = icefold::jobs::sweep::run_sweep(&cfg, false).unwrap();
+    let branches = icefold::jobs::branches::run_branches(&cfg).unwrap();
+    let folds: Vec<f64> = branches
+        .branches
+        .iter()
+        .flat_map(|b| b.folds.iter().map(|f| f.control))
+        .collect();
+    let tips: Vec<f64> = sweep.tipping.iter().map(|t| t.control).collect();
+    assert_eq!(tips.len(), 3, "{tips:?}");
+    for t in &tips {
+        let best = folds
+            .iter()
+            .map(|f| (t / f - 1.0).abs())
+            .fold(f64::INFINITY, f64::min);
+        assert!(best < 5e-3, "tipping point {t} vs folds {folds:?}");
+    }
+    assert!(
+        sweep.tipping.iter().filter(|t| t.step == 241).count() == 2,
+        "{:?}",
+        sweep.tipping
+    );
+    let last = sweep.steps.last().unwrap();
+    assert_eq!(last.ice_edge, 0.0, "ends on the snowball");
+    let lo = tips.iter().copied().fold(f64::INFINITY, f64::min);
+    let hi = tips.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    assert!((sweep.hysteresis_width - (hi - lo)).abs() < 1e-9 * hi);
+}
+
 /// Decay (or growth) rate of a small perturbation of `eq` by fixed-step time stepping, 1/year:
 /// the slope of ln |T - eq| between `t1` and `t2` years.
 fn measured_rate(model: &Model, eq: &[f64], kick: f64, t1: f64, t2: f64) -> f64 {

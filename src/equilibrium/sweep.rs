@@ -272,28 +272,79 @@ pub fn sweep(
                     let l = leading_eigenvalue(&model, 0.0, &s).0;
                     (s, l, y, r, ok, Reached::Settled)
                 }
-                Some((t0, p0)) => match follow(&mut tr, t0, *p0, p, spec.refine_relative, carry.take())? {
-                    Follow::Reached { state, leading, dtdp } => {
-                        carry = Some(dtdp);
-                        (state, leading, 0.0, 0.0, true, Reached::Followed)
+                Some((t0, p0)) => {
+                    // Follow the branch; at each loss record the tipping point, let the state
+                    // fall just beyond it, and follow the new branch on to this value (a coarse
+                    // step can hold several tipping points).
+                    let (mut from_t, mut from_p) = (t0.clone(), *p0);
+                    let mut dtdp0 = carry.take();
+                    let mut years = 0.0;
+                    let mut jumped = false;
+                    let mut out = None;
+                    for _ in 0..1000 {
+                        match follow(&mut tr, &from_t, from_p, p, spec.refine_relative, dtdp0.take())? {
+                            Follow::Reached { state, leading, dtdp } => {
+                                carry = Some(dtdp);
+                                let how = if jumped {
+                                    Reached::Settled
+                                } else {
+                                    Reached::Followed
+                                };
+                                out = Some((state, leading, years, 0.0, true, how));
+                                break;
+                            }
+                            Follow::Lost { p_ok, t_ok, p_bad } => {
+                                // Let the state fall a little beyond the tipping point: just past
+                                // a fold the dynamics linger near its ghost, slower than any
+                                // settle criterion can tell from an equilibrium.
+                                let reach = (100.0 * (p_bad - p_ok).abs()).max(1e-3 * p_ok.abs());
+                                let p_jump = if (p - p_ok).abs() <= reach {
+                                    p
+                                } else {
+                                    p_ok + reach * (p - p_ok).signum()
+                                };
+                                let after = fam.model_at(p_jump)?;
+                                let (st, y, r, ok) = settle_and_polish(&after, &t_ok, spec, tol)?;
+                                let at = fam.model_at(p_ok)?;
+                                tipping.push(Tipping {
+                                    control: 0.5 * (p_ok + p_bad),
+                                    bracket: (p_ok, p_bad),
+                                    direction: dir,
+                                    step: steps.len(),
+                                    ice_edge_before: at.ice_edges(&t_ok).0,
+                                    ice_edge_after: after.ice_edges(&st).0,
+                                    global_mean_before: at.global_mean(&t_ok),
+                                    global_mean_after: after.global_mean(&st),
+                                });
+                                years += y;
+                                jumped = true;
+                                if !ok || p_jump == p || r > 0.0 {
+                                    // Unsettled (year limit), not on an exact equilibrium, or
+                                    // already at this value: settle here and stop.
+                                    let (st, y2, r2, ok2) = if p_jump == p {
+                                        (st, 0.0, r, ok)
+                                    } else {
+                                        settle_and_polish(&model, &st, spec, tol)?
+                                    };
+                                    let l = leading_eigenvalue(&model, 0.0, &st).0;
+                                    out = Some((st, l, years + y2, r2, ok2, Reached::Settled));
+                                    break;
+                                }
+                                from_t = st;
+                                from_p = p_jump;
+                            }
+                        }
                     }
-                    Follow::Lost { p_ok, t_ok, p_bad } => {
-                        let (s, y, r, ok) = settle_and_polish(&model, t0, spec, tol)?;
-                        let at = fam.model_at(p_ok)?;
-                        tipping.push(Tipping {
-                            control: 0.5 * (p_ok + p_bad),
-                            bracket: (p_ok, p_bad),
-                            direction: dir,
-                            step: steps.len(),
-                            ice_edge_before: at.ice_edges(&t_ok).0,
-                            ice_edge_after: model.ice_edges(&s).0,
-                            global_mean_before: at.global_mean(&t_ok),
-                            global_mean_after: model.global_mean(&s),
-                        });
-                        let l = leading_eigenvalue(&model, 0.0, &s).0;
-                        (s, l, y, r, ok, Reached::Settled)
+                    match out {
+                        Some(o) => o,
+                        None => {
+                            // Safety net (not met in practice): settle at this value.
+                            let (st, y, r, ok) = settle_and_polish(&model, t0, spec, tol)?;
+                            let l = leading_eigenvalue(&model, 0.0, &st).0;
+                            (st, l, years + y, r, ok, Reached::Settled)
+                        }
                     }
-                },
+                }
             };
             if reached == Reached::Settled {
                 settled_steps += 1;
@@ -346,15 +397,21 @@ fn hysteresis(steps: &[SweepStep], tipping: &[Tipping], n: usize) -> (f64, Vec<(
         })
         .collect();
     let value = |k: usize| first[k].control;
-    // A tipping point inside the grid gap between values k and k+1, if any.
-    let tip_in = |k: usize| {
+    // The outermost tipping point inside the grid gap between values k and k+1 (the lowest for
+    // the low end of an interval, the highest for the high end), else the gap's midpoint.
+    let tip_in = |k: usize, low_end: bool| {
         let (lo, hi) = (value(k).min(value(k + 1)), value(k).max(value(k + 1)));
-        tipping
-            .iter()
-            .filter(|t| t.control >= lo && t.control <= hi)
-            .map(|t| t.control)
-            .next()
-            .unwrap_or(0.5 * (value(k) + value(k + 1)))
+        let inside = tipping.iter().map(|t| t.control).filter(|c| *c >= lo && *c <= hi);
+        let pick = if low_end {
+            inside.fold(f64::INFINITY, f64::min)
+        } else {
+            inside.fold(f64::NEG_INFINITY, f64::max)
+        };
+        if pick.is_finite() {
+            pick
+        } else {
+            0.5 * (value(k) + value(k + 1))
+        }
     };
     let mut intervals = Vec::new();
     let mut k = 0;
@@ -367,8 +424,18 @@ fn hysteresis(steps: &[SweepStep], tipping: &[Tipping], n: usize) -> (f64, Vec<(
         while k + 1 < n && differ[k + 1] {
             k += 1;
         }
-        let lo = if start == 0 { value(0) } else { tip_in(start - 1) };
-        let hi = if k + 1 == n { value(n - 1) } else { tip_in(k) };
+        // In first-leg order; the gap before `start` bounds the interval on that side.
+        let ascending = value(n - 1) > value(0);
+        let lo = if start == 0 {
+            value(0)
+        } else {
+            tip_in(start - 1, ascending)
+        };
+        let hi = if k + 1 == n {
+            value(n - 1)
+        } else {
+            tip_in(k, !ascending)
+        };
         intervals.push((lo.min(hi), lo.max(hi)));
         k += 1;
     }
