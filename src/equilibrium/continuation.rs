@@ -18,11 +18,17 @@
 //! curve when the turn exceeds 90 degrees, so steps there shrink. When they reach
 //! `CORNER_FRACTION` of the first step, the tangent of the outgoing piece is taken from the
 //! linearisation just beyond the corner, and the corrector is constrained along the bisector of
-//! the incoming and outgoing tangents, which both pieces cross transversally.
+//! the incoming and outgoing tangents, which both pieces cross transversally; each tangent is
+//! oriented by the constraint its point was solved with. Where ice first appears at the pole the
+//! two pieces meet almost head-on (a cusp in these variables): ordinary steps between an
+//! ice-free (or ice-covered) and a partly covered state are refused there, so that the crossing
+//! always goes through the bisector.
 //!
 //! A fold (saddle-node, smooth or at a corner) is where `dp/ds` changes sign between two
-//! points; it is located as the extremum of `p` along the curve between them, by golden-section
-//! search on the bisector parameter, until `p` is known to `fold_tolerance` relative.
+//! points. It is located as the zero of `dp/ds` along the curve, parametrised by the bisector of
+//! the two tangents: regula falsi (Illinois) with a bisection whenever the bracket fails to halve,
+//! which converges superlinearly at a smooth fold and brackets a corner (where `dp/ds` jumps),
+//! until `p` moves by less than a tenth of `fold_tolerance` relative.
 //!
 //! Reference: Keller (1977), in Applications of Bifurcation Theory, Academic Press, 359-384;
 //! Allgower and Georg, Introduction to Numerical Continuation Methods (1990/2003), chapters 2,
@@ -750,7 +756,8 @@ impl<'a> Tracer<'a> {
         let (pmin, pmax) = (self.opts.from.min(self.opts.to), self.opts.from.max(self.opts.to));
         let corner_step = (CORNER_FRACTION * self.opts.step).max(self.opts.min_step);
         let mut cur = start.clone();
-        let mut prev_ice = self.ice_measure(&start.t);
+        let mut cur_ice = self.ice_measure(&start.t);
+        let mut prev_ice = cur_ice;
         let mut ds = self.opts.step;
         let mut travelled = 0.0;
         loop {
@@ -768,8 +775,7 @@ impl<'a> Tracer<'a> {
             // one: where ice first appears at the pole the two pieces meet almost head-on, the
             // step can land on the far piece with no sign of the turn, and only the corner
             // crossing orients the outgoing tangent correctly.
-            let whole = self.ice_measure(&cur.t);
-            let cur_end = self.ice_end(whole);
+            let cur_end = self.ice_end(cur_ice);
             let stepped = stepped.filter(|(nd, _)| self.ice_end(self.ice_measure(&nd.t)) == cur_end);
             let stepped = stepped.filter(|(nd, _)| {
                 let chord = self.metric.dist(&nd.t, nd.p, &cur.t, cur.p);
@@ -836,7 +842,8 @@ impl<'a> Tracer<'a> {
             if travelled > 10.0 * self.opts.max_step && back < 0.5 * ds.max(self.opts.step) {
                 return Ok(LegEnd::Closed);
             }
-            prev_ice = self.ice_measure(&cur.t);
+            prev_ice = cur_ice;
+            cur_ice = self.ice_measure(&nd.t);
             cur = nd;
         }
     }

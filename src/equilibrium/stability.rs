@@ -295,12 +295,12 @@ fn largest_symmetric(d: &[f64], e2: &[f64]) -> f64 {
     largest_symmetric_near(d, e2, f64::NAN)
 }
 
-/// [`largest_symmetric`] starting from a guess: when `hint` (e.g. the value at a neighbouring
-/// point of a branch) is within 1e-3 relative and isolated, the bisection is skipped.
+/// [`largest_symmetric`] starting from a guess: when a window around `hint` (e.g. the value at
+/// a neighbouring point of a branch) isolates the largest eigenvalue, the bisection is skipped.
 fn largest_symmetric_near(d: &[f64], e2: &[f64], hint: f64) -> f64 {
     let n = d.len();
     if hint.is_finite() && n > 0 {
-        let delta = 1e-3 * (1.0 + hint.abs());
+        let delta = 0.1 * hint.abs() + 1e-3;
         let (lo, hi) = (hint - delta, hint + delta);
         if sturm_count(d, e2, hi) == n && sturm_count(d, e2, lo) == n - 1 {
             return newton_from_above(d, e2, lo, hi);

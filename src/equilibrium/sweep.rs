@@ -8,9 +8,11 @@
 //! failure. When the whole step succeeds, the state stayed on its stable branch. When the
 //! step has to shrink below `refine_relative` of the control, the branch ends (a fold or corner)
 //! or loses stability there: that bracket is the tipping point. Then the adaptive implicit
-//! scheme integrates from the previous state at the new value until the largest |dT/dt| is below
-//! the settle criterion (or the year limit, reported), so the state falls where the dynamics
-//! take it, and Newton polishes the result when it stays close.
+//! scheme integrates from the last state on the old branch a little beyond the tipping point
+//! until the largest |dT/dt| is below the settle criterion (or the year limit, reported), so the
+//! state falls where the dynamics take it; Newton finishes on the equilibrium the trajectory
+//! approaches once it relaxes linearly (`settle::settle_to_equilibrium`), and the new branch is
+//! followed on to the step's value, so one coarse step can hold several tipping points.
 //!
 //! The hysteresis width is the total length of control over which the two legs ended in
 //! different states, with each interval bounded by the refined tipping points.
