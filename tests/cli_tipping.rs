@@ -95,6 +95,32 @@ fn equilibrium_file_has_the_state_budget_and_spectrum() {
     }
     let efold = r.read_f64("efolding_time").unwrap();
     assert!((efold[0] * lead.abs() - 1.0).abs() < 1e-12);
+    // With Newton limited to one iteration it fails from the start; time stepping takes over
+    // and Newton finishes on the same equilibrium (to the Newton tolerance over |G_T|, ~1e-10 K).
+    let out = icefold(
+        &dir,
+        &[
+            "equilibrium",
+            cfg.to_str().unwrap(),
+            "-o",
+            "fb.nc",
+            "--set",
+            "equilibrium.max_iterations=1",
+        ],
+    );
+    ok(&out);
+    let fb = NcReader::open(&dir.join("fb.nc")).unwrap();
+    assert_eq!(
+        fb.attr_str("solver").unwrap().as_deref(),
+        Some("time stepping, then newton")
+    );
+    assert!(fb.attr_f64("settle_years").unwrap().unwrap() > 1.0);
+    let (a, b) = (
+        r.read_f64("surface_temperature").unwrap(),
+        fb.read_f64("surface_temperature").unwrap(),
+    );
+    let diff = a.iter().zip(&b).map(|(x, y)| (x - y).abs()).fold(0.0, f64::max);
+    assert!(diff < 1e-6, "{diff}");
     // From a snowball start the same config settles on the (stable) snowball.
     let out = icefold(
         &dir,
