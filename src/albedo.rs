@@ -81,25 +81,25 @@ fn half_bands(grid: &Grid) -> (Vec<(f64, f64)>, Vec<(f64, f64)>) {
 #[inline]
 fn half_cold(ti: f64, tj: f64, h: f64, l: f64, tf: f64) -> (f64, f64, f64) {
     let cold_i = ti < tf;
-    if l == 0.0 {
+    // The far end's value lies between ti and tj (h <= l), so equal sides decide without
+    // computing it: the common case, away from the ice edge.
+    if l == 0.0 || cold_i == (tj < tf) {
         return (if cold_i { h } else { 0.0 }, 0.0, 0.0);
     }
     let te = ti + (tj - ti) * h / l;
     let cold_e = te < tf;
-    match (cold_i, cold_e) {
-        (true, true) => (h, 0.0, 0.0),
-        (false, false) => (0.0, 0.0, 0.0),
-        _ => {
-            let d = tj - ti;
-            let s = l * (tf - ti) / d;
-            let ds_i = l * (tf - tj) / (d * d);
-            let ds_j = -l * (tf - ti) / (d * d);
-            if cold_i {
-                (s, ds_i, ds_j)
-            } else {
-                (h - s, -ds_i, -ds_j)
-            }
-        }
+    if cold_i == cold_e {
+        return (if cold_i { h } else { 0.0 }, 0.0, 0.0);
+    }
+    let d = tj - ti;
+    let inv = 1.0 / (d * d);
+    let s = l * (tf - ti) * d * inv;
+    let ds_i = l * (tf - tj) * inv;
+    let ds_j = -l * (tf - ti) * inv;
+    if cold_i {
+        (s, ds_i, ds_j)
+    } else {
+        (h - s, -ds_i, -ds_j)
     }
 }
 

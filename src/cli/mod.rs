@@ -3,10 +3,12 @@
 
 mod branches;
 mod check;
+mod demo;
 mod equilibrium;
 mod sweep;
 
 mod inspect;
+mod plot;
 pub mod progress;
 mod run;
 
@@ -89,6 +91,14 @@ pub enum Command {
         /// The file.
         file: PathBuf,
     },
+    /// Draw the pictures of an output file (SVG and PNG).
+    Plot {
+        /// The file.
+        file: PathBuf,
+        /// Where to write the pictures (default: beside the file).
+        #[arg(long)]
+        out_dir: Option<PathBuf>,
+    },
     /// Run the built-in demonstration scenario and draw its pictures.
     Demo {
         /// Where to write the files.
@@ -136,7 +146,8 @@ fn dispatch(cli: Cli) -> Result<(), Error> {
         Command::Branches { config, output } => branches::main(&config, &output),
         Command::Check { config } => check::main(&config),
         Command::Inspect { file } => inspect::main(&file),
-        Command::Demo { out_dir } => Err(Error::Other(format!("demo not built yet: {}", out_dir.display()))),
+        Command::Demo { out_dir } => demo::main(&out_dir),
+        Command::Plot { file, out_dir } => plot::main(&file, out_dir.as_deref()),
     }
 }
 

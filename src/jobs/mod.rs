@@ -1,4 +1,5 @@
 //! Whole jobs behind the commands (run, equilibrium, sweep, ...): model, solver and file put
 //! together, reachable from tests without the command line.
 
+pub mod pictures;
 pub mod run;
