@@ -245,6 +245,10 @@ def _extremum(p: Params, lo: float, hi: float, sign: float) -> Fold:
                 xr = x0
         except (ValueError, ZeroDivisionError):
             xr = x0
+    span = hi - lo
+    if min(xr - lo, hi - xr) < 1e-6 * span:
+        kind = "minimum" if sign > 0 else "maximum"
+        raise ValueError(f"Q(x_s) has no interior {kind} in [{lo}, {hi}] (found x_s = {xr})")
     return Fold(xr, q_of_xs(xr, p))
 
 
