@@ -278,12 +278,7 @@ impl<'m> Ros2<'m> {
             return;
         }
         let s = ((t - self.t_prev) / h).clamp(0.0, 1.0);
-        let s2 = s * s;
-        let s3 = s2 * s;
-        let h00 = 2.0 * s3 - 3.0 * s2 + 1.0;
-        let h10 = s3 - 2.0 * s2 + s;
-        let h01 = -2.0 * s3 + 3.0 * s2;
-        let h11 = s3 - s2;
+        let [h00, h10, h01, h11] = crate::interpolation::hermite_basis(s);
         for i in 0..out.len() {
             out[i] = h00 * self.y_prev[i] + h10 * h * self.f_prev[i] + h01 * self.y[i] + h11 * h * self.f[i];
         }
