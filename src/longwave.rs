@@ -125,7 +125,7 @@ pub enum Longwave {
 
 impl Longwave {
     /// OLR (W m-2) and dOLR/dT (W m-2 K-1) at surface temperature `t` (K).
-    #[inline]
+    #[inline(always)]
     pub fn eval(&self, t: f64) -> (f64, f64) {
         match self {
             Longwave::Linear { a, b } => (a + b * (t - ZERO_CELSIUS), *b),
