@@ -1228,7 +1228,7 @@ mod tests {
         let filters = ds.filters();
         assert!(filters.contains(&hdf5::filters::Filter::Shuffle), "{filters:?}");
         assert!(
-            filters.contains(&hdf5::filters::Filter::Deflate(4)),
+            filters.contains(&hdf5::filters::Filter::Deflate(DEFLATE_LEVEL)),
             "{filters:?}"
         );
     }
