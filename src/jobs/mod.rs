@@ -1,5 +1,8 @@
 //! Whole jobs behind the commands (run, equilibrium, sweep, ...): model, solver and file put
 //! together, reachable from tests without the command line.
 
+pub mod branches;
+pub mod equilibrium;
 pub mod pictures;
 pub mod run;
+pub mod sweep;
