@@ -1,5 +1,7 @@
 //! Whole jobs behind the commands (run, equilibrium, sweep, ...): model, solver and file put
 //! together, reachable from tests without the command line.
 
+pub mod diagnostics;
+pub mod ensemble;
 pub mod pictures;
 pub mod run;

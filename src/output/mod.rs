@@ -36,6 +36,7 @@
 //! ```
 
 pub mod common;
+pub mod ensemble_file;
 mod reader;
 pub mod run_file;
 mod writer;
