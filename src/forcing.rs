@@ -126,8 +126,8 @@ impl ForcingSeries {
             .filter(|(_, l)| !l.is_empty() && !l.starts_with('#'));
         let (hl, header) = lines.next().ok_or_else(|| {
             err(
-                0,
-                "empty forcing file; expected a header such as `year,co2_ppm`".into(),
+                1,
+                "empty forcing file (no header); expected a header such as `year,co2_ppm`".into(),
             )
         })?;
         let names: Vec<&str> = header.split(',').map(str::trim).collect();
@@ -655,7 +655,8 @@ mod tests {
     #[test]
     fn bad_files_name_the_line() {
         for (text, line, frag) in [
-            ("", 0, "empty"),
+            ("", 1, "empty"),
+            ("# only a comment\n", 1, "empty"),
             ("year,co2_ppm\n0,280\n0,300\n", 3, "increase strictly"),
             ("year,co2_ppm\n0,nan\n", 2, "not finite"),
             ("year,co2_ppm\n0,abc\n", 2, "not a number"),
