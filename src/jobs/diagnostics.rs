@@ -2,7 +2,8 @@
 //!
 //! - equilibrium climate sensitivity to doubled CO2: two Newton equilibria of the model with
 //!   its constant (configured) drivers, the second with `k ln 2` more greenhouse forcing
-//!   (Myhre et al. 1998: 3.71 W m-2 for k = 5.35), the second started from the first;
+//!   (Myhre et al. 1998: 3.71 W m-2 for k = 5.35), the second started from the first (where
+//!   Newton stalls, the implicit scheme settles the state first and Newton polishes it);
 //! - ice-edge sensitivity to the forcing: the change of the northern ice edge between the two
 //!   equilibria per W m-2, and the local derivative from two more equilibria at +-0.05 W m-2;
 //! - the effective feedback parameter of a transient run: the least-squares slope of the
@@ -13,6 +14,7 @@
 //! Results go into file attributes (`write_*`) and are shown by `icefold inspect`.
 
 use crate::ensemble::stats::{Fit, Ols};
+use crate::equilibrium::settle::settle;
 use crate::equilibrium::{newton, NewtonOptions};
 use crate::model::{Model, Sunlight};
 use crate::output::Attr;
@@ -58,10 +60,17 @@ pub fn co2_doubling(
     }
     let mut base = model.clone();
     base.forcing = None;
+    // Newton first; where it stalls (the step albedo's edge band can leave it without descent)
+    // the dynamics settle the state (the implicit scheme, to 1e-6 K per year) and Newton
+    // polishes it.
     let solve = |m: &Model, from: &[f64], what: &str| {
-        newton(m, 0.0, from, opts)
-            .map(|r| r.state)
-            .map_err(|e| format!("not computed: Newton's method for the {what} equilibrium: {e}"))
+        newton(m, 0.0, from, opts).map(|r| r.state).or_else(|_| {
+            let s = settle(m, from, 1e-6, 1e5, 1e-4)
+                .map_err(|e| format!("not computed: settling to the {what} equilibrium: {e}"))?;
+            newton(m, 0.0, &s.state, opts)
+                .map(|r| r.state)
+                .map_err(|e| format!("not computed: Newton's method for the {what} equilibrium: {e}"))
+        })
     };
     let with_extra = |df: f64| {
         let mut m = base.clone();
