@@ -181,14 +181,14 @@ fn exact_antiderivative_matches_quadrature_and_the_table_matches_it() {
                 let at = orbit_at(t, obl.to_radians(), 0.05, 1.0);
                 let mut quad = vec![0.0; n];
                 insolation::daily_mean_bands(&g, &rule, 1361.0, at, &mut quad);
-                for i in 0..n {
+                for (i, q) in quad.iter().enumerate() {
                     let exact = 1361.0
                         * at.distance_factor
                         * band_mean_shape_exact(g.x_faces[i], g.x_faces[i + 1], at.sin_delta);
                     assert!(
-                        (exact - quad[i]).abs() < 1e-9 * 1361.0,
+                        (exact - q).abs() < 1e-9 * 1361.0,
                         "{obl} {t} {i}: {exact} vs {}",
-                        quad[i]
+                        q
                     );
                 }
             }
@@ -209,11 +209,11 @@ fn exact_antiderivative_matches_quadrature_and_the_table_matches_it() {
                 let t = (k as f64 + 0.37) / 5000.0;
                 let at = tab.orbit(t);
                 tab.eval_at(at, &mut out);
-                for i in 0..n {
+                for (i, o) in out.iter().enumerate() {
                     let exact = 1361.0
                         * at.distance_factor
                         * band_mean_shape_exact(g.x_faces[i], g.x_faces[i + 1], at.sin_delta);
-                    let err = (out[i] - exact).abs() / (1361.0 * at.distance_factor);
+                    let err = (o - exact).abs() / (1361.0 * at.distance_factor);
                     assert!(
                         err < 1e-7,
                         "{n} bands, obliquity {obl}: band {i} at t = {t}: error {err:e}"
@@ -273,4 +273,101 @@ fn seasonal_run_reaches_a_periodic_state() {
         });
     assert!(hi - lo > 1.0, "southern ice edge swings {lo}..{hi}");
     std::fs::remove_file(&path).unwrap();
+}
+
+#[test]
+fn annual_means_are_the_trapezoid_means_of_the_samples_and_every_step_records_each_step() {
+    // By construction (our definition, documented with time.output): an annual-mean record is
+    // the trapezoid mean over the year of the samples at the output cadence, so it equals the
+    // mean computed here from an instant run with the same cadence, to round-off.
+    let dir = std::env::temp_dir();
+    let cfg_path = Path::new(env!("CARGO_MANIFEST_DIR")).join("configs/seasonal-globe.toml");
+    let common = [
+        "grid.bands=15".to_string(),
+        "time.years=3".into(),
+        "time.output_every_years=0.0833333333333333".into(),
+    ];
+    let inst_path = dir.join(format!("icefold-inst-{}.nc", std::process::id()));
+    let mean_path = dir.join(format!("icefold-mean-{}.nc", std::process::id()));
+    let inst = config::load(&cfg_path, &common).unwrap();
+    icefold::jobs::run::run_to_file(&inst, &inst_path, "test", false).unwrap();
+    let mut sets = common.to_vec();
+    sets.push("time.output=annual_mean".into());
+    let mean = config::load(&cfg_path, &sets).unwrap();
+    icefold::jobs::run::run_to_file(&mean, &mean_path, "test", false).unwrap();
+    let (ri, rm) = (
+        NcReader::open(&inst_path).unwrap(),
+        NcReader::open(&mean_path).unwrap(),
+    );
+    assert_eq!(rm.read_f64("time_bnds").unwrap(), [0.0, 1.0, 1.0, 2.0, 2.0, 3.0]);
+    for name in [
+        "global_mean_temperature",
+        "toa_imbalance",
+        "ice_edge_latitude_south",
+        "solar_scale",
+    ] {
+        let x = ri.read_f64(name).unwrap();
+        let m = rm.read_f64(name).unwrap();
+        assert_eq!(x.len(), 37);
+        for y in 0..3 {
+            let s = &x[12 * y..=12 * y + 12];
+            let want = (0.5 * s[0] + s[1..12].iter().sum::<f64>() + 0.5 * s[12]) / 12.0;
+            assert!(
+                (m[y] - want).abs() <= 1e-12 * want.abs().max(1.0),
+                "{name} year {y}: {} vs {want}",
+                m[y]
+            );
+        }
+    }
+    let t = ri.read_f64("surface_temperature").unwrap();
+    let tm = rm.read_f64("surface_temperature").unwrap();
+    let want: f64 = (0.5 * t[7] + (1..12).map(|k| t[15 * k + 7]).sum::<f64>() + 0.5 * t[15 * 12 + 7]) / 12.0;
+    assert!((tm[7] - want).abs() < 1e-10);
+    drop((ri, rm));
+    // Every step: one record per accepted step plus the start, ending exactly at the run's end.
+    let mut sets = common.to_vec();
+    sets.push("time.output=every_step".into());
+    let every = config::load(&cfg_path, &sets).unwrap();
+    let report = icefold::jobs::run::run_to_file(&every, &inst_path, "test", false).unwrap();
+    let r = NcReader::open(&inst_path).unwrap();
+    let times = r.read_f64("time").unwrap();
+    assert_eq!(times.len() as u64, report.summary.stats.steps + 1);
+    assert!(times.windows(2).all(|w| w[1] > w[0]));
+    assert_eq!(*times.last().unwrap(), 3.0);
+    // 6-day steps: 3 years need ceil(3 * 365.25 / 6) = 183 of them.
+    assert_eq!(report.summary.stats.steps, 183);
+    drop(r);
+    std::fs::remove_file(&inst_path).unwrap();
+    std::fs::remove_file(&mean_path).unwrap();
+    // The choices are checked.
+    let text = std::fs::read_to_string(&cfg_path).unwrap();
+    for (sets, key, allowed) in [
+        (
+            vec!["time.output=every_step", "time.method=dopri5"],
+            "time.output",
+            "implicit",
+        ),
+        (
+            vec!["time.output=annual_mean", "time.output_every_years=0.3"],
+            "time.output_every_years",
+            "divide a year",
+        ),
+        (
+            vec!["time.output=annual_mean", "time.years=0.5"],
+            "time.years",
+            "whole model years",
+        ),
+        (vec!["time.output=hourly"], "time.output", "annual_mean"),
+    ] {
+        let sets: Vec<String> = sets.iter().map(|s| s.to_string()).collect();
+        // Without the fixed step (allowed only with the implicit scheme).
+        let e = config::load_str(
+            &text.replace("step_days = 6.0", ""),
+            "seasonal",
+            Path::new("."),
+            &sets,
+        );
+        let msg = e.map(|_| String::new()).unwrap_or_else(|e| e.to_string());
+        assert!(msg.contains(key) && msg.contains(allowed), "{sets:?}: {msg}");
+    }
 }

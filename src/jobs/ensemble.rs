@@ -46,6 +46,7 @@ struct MemberResult {
 struct Collector<'m> {
     model: &'m Model,
     ws: Workspace,
+    heat: Vec<f64>,
     rec: Vec<f64>,
     width: usize,
     fields: bool,
@@ -65,13 +66,14 @@ impl Collector<'_> {
 impl Observer for Collector<'_> {
     fn record(&mut self, t: f64, temps: &[f64]) -> Result<(), Box<dyn std::error::Error + Send + Sync>> {
         let m = self.model;
-        let b = m.budget(t, temps, &mut self.ws);
+        // The global mean of the net heating is the top-of-atmosphere imbalance (absorbed -
+        // outgoing + transport convergence + additive forcing), without allocating a budget.
+        m.heating(t, temps, &mut self.ws, &mut self.heat);
         let g = &m.grid;
         let (north, south) = m.ice_edges(temps);
         self.rec.clear();
         self.rec.push(g.mean(temps));
-        self.rec
-            .push(g.mean(&b.absorbed) - g.mean(&b.olr) + g.mean(&b.transport) + b.extra);
+        self.rec.push(g.mean(&self.heat));
         self.rec.push(north);
         if let Some(s) = south {
             self.rec.push(s);
@@ -131,6 +133,7 @@ fn run_member(cfg: &Loaded, spec: &EnsembleSpec, times: usize) -> MemberResult {
     let mut c = Collector {
         model: &model,
         ws: Workspace::new(model.len()),
+        heat: vec![0.0; model.len()],
         rec: Vec::with_capacity(width),
         width,
         fields: spec.fields,
