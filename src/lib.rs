@@ -10,6 +10,7 @@
 pub mod albedo;
 pub mod cli;
 pub mod config;
+pub mod ensemble;
 pub mod equilibrium;
 pub mod error;
 pub mod forcing;

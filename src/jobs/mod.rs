@@ -3,6 +3,8 @@
 
 pub mod branches;
 pub mod equilibrium;
+pub mod diagnostics;
+pub mod ensemble;
 pub mod pictures;
 pub mod run;
 pub mod sweep;

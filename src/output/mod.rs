@@ -38,6 +38,7 @@
 pub mod branches_file;
 pub mod common;
 pub mod equilibrium_file;
+pub mod ensemble_file;
 mod reader;
 pub mod run_file;
 pub mod sweep_file;
