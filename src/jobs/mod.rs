@@ -2,9 +2,9 @@
 //! together, reachable from tests without the command line.
 
 pub mod branches;
-pub mod equilibrium;
 pub mod diagnostics;
 pub mod ensemble;
+pub mod equilibrium;
 pub mod pictures;
 pub mod run;
 pub mod sweep;

@@ -37,8 +37,8 @@
 
 pub mod branches_file;
 pub mod common;
-pub mod equilibrium_file;
 pub mod ensemble_file;
+pub mod equilibrium_file;
 mod reader;
 pub mod run_file;
 pub mod sweep_file;
