@@ -78,7 +78,7 @@ fn half_bands(grid: &Grid) -> (Vec<(f64, f64)>, Vec<(f64, f64)>) {
 /// Cold length (where T < `tf`) of the half band of length `h` that starts at a band centre with
 /// temperature `ti` and points toward a neighbour centre at distance `l` with temperature `tj`
 /// (`l = 0`: no neighbour, T constant). Returns the length and its derivatives by `ti`, `tj`.
-#[inline]
+#[inline(always)]
 fn half_cold(ti: f64, tj: f64, h: f64, l: f64, tf: f64) -> (f64, f64, f64) {
     let cold_i = ti < tf;
     // The far end's value lies between ti and tj (h <= l), so equal sides decide without
@@ -129,7 +129,7 @@ impl Albedo {
 
     /// Ice fraction of band `i` (0..1) under the sub-band interpolation rule, with its
     /// derivatives by `T_{i-1}`, `T_i`, `T_{i+1}` (per K).
-    #[inline]
+    #[inline(always)]
     pub fn ice_fraction(&self, temps: &[f64], i: usize) -> (f64, [f64; 3]) {
         let n = temps.len();
         let ti = temps[i];
@@ -166,7 +166,7 @@ impl Albedo {
     }
 
     /// Albedo of band `i` and its derivatives by `T_{i-1}`, `T_i`, `T_{i+1}` (per K).
-    #[inline]
+    #[inline(always)]
     pub fn band(&self, temps: &[f64], i: usize) -> (f64, [f64; 3]) {
         let af = self.ice_free[i];
         let ai = self.ice;

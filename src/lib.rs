@@ -17,6 +17,7 @@ pub mod forcing;
 pub mod grid;
 pub mod insolation;
 pub mod integrate;
+pub mod interpolation;
 pub mod jobs;
 pub mod linalg;
 pub mod longwave;

@@ -239,6 +239,36 @@ impl Model {
         }
     }
 
+    /// Net heating `G` (W m-2) and its Jacobian (W m-2 K-1) at one state in one pass (the
+    /// albedo and OLR of each band are evaluated once for both).
+    pub fn heating_with_jacobian(
+        &self,
+        t_years: f64,
+        temps: &[f64],
+        ws: &mut Workspace,
+        out: &mut [f64],
+        jac: &mut Tridiag,
+    ) {
+        self.refresh_sun(t_years, ws);
+        let d = self.drivers_at(t_years);
+        let mut conv = std::mem::take(&mut ws.conv);
+        self.transport.convergence(&self.grid, temps, &mut conv);
+        jac.rank_one = None;
+        let sun = self.sun(ws);
+        let n = temps.len();
+        for i in 0..n {
+            let (alb, da) = self.albedo.band(temps, i);
+            let (olr, dolr) = self.longwave.eval(temps[i]);
+            let s = d.solar_scale * sun[i];
+            out[i] = s * (1.0 - alb) - (olr - d.greenhouse_wm2) + conv[i] + d.extra_wm2;
+            jac.diag[i] = -s * da[1] - dolr;
+            jac.lower[i] = if i > 0 { -s * da[0] } else { 0.0 };
+            jac.upper[i] = if i + 1 < n { -s * da[2] } else { 0.0 };
+        }
+        ws.conv = conv;
+        self.transport.add_jacobian(jac);
+    }
+
     /// The parts of the net heating at a state.
     pub fn budget(&self, t_years: f64, temps: &[f64], ws: &mut Workspace) -> Budget {
         self.refresh_sun(t_years, ws);

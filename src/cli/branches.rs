@@ -1,9 +1,30 @@
-//! `icefold branches CONFIG`.
+//! `icefold branches CONFIG`: pseudo-arclength continuation of every branch in the range.
 
 use super::{ConfigArgs, OutputArgs};
 use crate::error::Error;
+use crate::jobs::branches::branches_to_file;
 
-/// Not yet wired (in progress on the tipping-point branch).
-pub fn main(_args: &ConfigArgs, _out: &OutputArgs) -> Result<(), Error> {
-    Err(Error::Other("icefold branches: in progress".into()))
+/// Trace the `[branches]` of the config and write the file.
+pub fn main(args: &ConfigArgs, out: &OutputArgs) -> Result<(), Error> {
+    let cfg = super::load(args)?;
+    let path = super::output_path(out, &args.config, "branches")?;
+    let set = branches_to_file(&cfg, &path, &super::command_line())?;
+    let points: usize = set.branches.iter().map(|b| b.points.len()).sum();
+    let folds: Vec<String> = set
+        .branches
+        .iter()
+        .flat_map(|b| b.folds.iter().map(|f| format!("{:.6}", f.control)))
+        .collect();
+    eprintln!(
+        "icefold: wrote {} ({} branches, {} points); folds at {}",
+        path.display(),
+        set.branches.len(),
+        points,
+        if folds.is_empty() {
+            "none".to_string()
+        } else {
+            folds.join(", ")
+        }
+    );
+    Ok(())
 }

@@ -2,6 +2,7 @@
 
 use super::{ConfigArgs, OutputArgs};
 use crate::error::Error;
+use crate::jobs::equilibrium::{equilibrium_to_file, StartClimate};
 
 /// Starting climate for Newton.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
@@ -18,7 +19,34 @@ pub enum Start {
     Snowball,
 }
 
-/// Not yet wired (in progress on the tipping-point branch).
-pub fn main(_args: &ConfigArgs, _out: &OutputArgs, _start: Start) -> Result<(), Error> {
-    Err(Error::Other("icefold equilibrium: in progress".into()))
+impl From<Start> for StartClimate {
+    fn from(s: Start) -> StartClimate {
+        match s {
+            Start::Config => StartClimate::Config,
+            Start::Warm => StartClimate::Warm,
+            Start::Cold => StartClimate::Cold,
+            Start::IceFree => StartClimate::IceFree,
+            Start::Snowball => StartClimate::Snowball,
+        }
+    }
+}
+
+/// Solve for the steady state and write it with its spectrum.
+pub fn main(args: &ConfigArgs, out: &OutputArgs, start: Start) -> Result<(), Error> {
+    let cfg = super::load(args)?;
+    let path = super::output_path(out, &args.config, "equilibrium")?;
+    let r = equilibrium_to_file(&cfg, &path, &super::command_line(), start.into())?;
+    let lead = r.spectrum.real.first().copied().unwrap_or(f64::NAN);
+    eprintln!(
+        "icefold: wrote {} ({}; residual {:.2e} W m-2); global mean {:.3} K, ice edge {:.2} degrees N, leading eigenvalue {:.4} per year ({}, {} spectrum)",
+        path.display(),
+        r.solved.solver,
+        r.solved.residual_wm2,
+        r.global_mean,
+        r.ice_edge_north,
+        lead,
+        if lead < 0.0 { "stable" } else { "unstable" },
+        r.spectrum.method.name()
+    );
+    Ok(())
 }

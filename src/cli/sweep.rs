@@ -1,9 +1,42 @@
-//! `icefold sweep CONFIG`.
+//! `icefold sweep CONFIG`: two-way quasi-static sweep with refined tipping points.
 
 use super::{ConfigArgs, OutputArgs};
 use crate::error::Error;
+use crate::jobs::sweep::sweep_to_file;
 
-/// Not yet wired (in progress on the tipping-point branch).
-pub fn main(_args: &ConfigArgs, _out: &OutputArgs) -> Result<(), Error> {
-    Err(Error::Other("icefold sweep: in progress".into()))
+/// Run the `[sweep]` of the config and write the file.
+pub fn main(args: &ConfigArgs, out: &OutputArgs) -> Result<(), Error> {
+    let cfg = super::load(args)?;
+    let path = super::output_path(out, &args.config, "sweep")?;
+    let r = sweep_to_file(&cfg, &path, &super::command_line(), true)?;
+    let tips: Vec<String> = r
+        .tipping
+        .iter()
+        .map(|t| {
+            format!(
+                "{:.6} ({})",
+                t.control,
+                if t.direction > 0 { "up" } else { "down" }
+            )
+        })
+        .collect();
+    eprintln!(
+        "icefold: wrote {} ({} steps, {} time-stepped); tipping points: {}; hysteresis width {:.6}",
+        path.display(),
+        r.steps.len(),
+        r.settled_steps,
+        if tips.is_empty() {
+            "none".to_string()
+        } else {
+            tips.join(", ")
+        },
+        r.hysteresis_width
+    );
+    if r.unsettled_steps > 0 {
+        eprintln!(
+            "icefold: warning: {} steps reached sweep.settle_max_years before the settle criterion",
+            r.unsettled_steps
+        );
+    }
+    Ok(())
 }

@@ -1,21 +1,32 @@
-//! All branches of equilibria in a control range: seeds from several starting climates at both
-//! ends of the range (ice free, partial ice caps, snowball), each distinct branch traced once.
+//! All branches of equilibria in a control range, each traced once through all its folds.
+//!
+//! Seeds come from two sources: Newton from several starting climates (ice free, partial ice
+//! caps, snowball) at both ends and the middle of the range, and "pinned-edge" equilibria with
+//! the freezing line held at a band centre of the northern hemisphere (band `k` at the freezing
+//! temperature, the control free), which find partial-ice branches whatever their stability,
+//! also where no branch meets the ends of the range.
+//!
+//! A seed is skipped when it lies on a branch already traced: when Newton at the seed's control,
+//! started from the branch interpolated there, lands on the seed. A branch whose every point
+//! lies on another, longer branch (it can happen when a first trace ended early) is dropped.
 
-use super::continuation::{trace_branch, Branch, ContinuationError, ContinuationOptions};
+use super::continuation::{Branch, ContinuationError, ContinuationOptions, Tracer};
 use super::control::Controlled;
 use super::{newton, NewtonOptions};
 use crate::model::Model;
 
-/// Starting climates for the seeds: `(name, mean part in C, P2 part in K)`.
+/// Starting climates for the Newton seeds: `(name, mean part in C, P2 part in K)`. Partial ice
+/// caps come from the pinned-edge seeds.
 pub const SEED_CLIMATES: &[(&str, f64, f64)] = &[
     ("ice free", 60.0, 0.0),
     ("warm", 15.0, -30.0),
-    ("partial ice cap", 0.0, -40.0),
-    ("large ice cap", -15.0, -40.0),
     ("snowball", -80.0, 0.0),
 ];
 
-/// Distinct equilibria at control value `p` reached by Newton from the seed climates.
+/// Two states are the same equilibrium when no band differs by more than this, K.
+const SAME_STATE_K: f64 = 1e-5;
+
+/// Distinct equilibria at the model's control value reached by Newton from the seed climates.
 pub fn seeds(model: &Model, tolerance_wm2: f64) -> Vec<Vec<f64>> {
     let mut found: Vec<Vec<f64>> = Vec::new();
     for (_, mean_c, p2k) in SEED_CLIMATES {
@@ -27,7 +38,7 @@ pub fn seeds(model: &Model, tolerance_wm2: f64) -> Vec<Vec<f64>> {
             .collect();
         let opts = NewtonOptions {
             tolerance_wm2,
-            max_iterations: 200,
+            max_iterations: 15,
             max_change: 20.0,
         };
         if let Ok(r) = newton(model, 0.0, &start, opts) {
@@ -39,26 +50,163 @@ pub fn seeds(model: &Model, tolerance_wm2: f64) -> Vec<Vec<f64>> {
     found
 }
 
+/// Number of bands at which the edge is pinned for seeds.
+const PINNED_SEEDS: usize = 12;
+
+/// Pinned-edge equilibria with the control inside the range: `(state, control)`.
+fn pinned_seeds(
+    tr: &mut Tracer<'_>,
+    fam: &Controlled,
+    opts: &ContinuationOptions,
+) -> Result<Vec<(Vec<f64>, f64)>, ContinuationError> {
+    let model = fam.base_model();
+    let g = &model.grid;
+    let tf = model.albedo.freeze;
+    let north: Vec<usize> = (0..g.len()).filter(|&i| g.x_centres[i] > 0.0).collect();
+    let (lo, hi) = (opts.from.min(opts.to), opts.from.max(opts.to));
+    let mut out = Vec::new();
+    if north.len() < 2 {
+        return Ok(out);
+    }
+    let count = PINNED_SEEDS.min(north.len());
+    for j in 0..count {
+        let k = north[(j * (north.len() - 1)) / (count - 1).max(1)];
+        let xk = g.x_centres[k];
+        // Warm equator, cold pole, freezing at band k.
+        let guess: Vec<f64> = g
+            .x_centres
+            .iter()
+            .map(|x| tf + 30.0 * (xk * xk - x * x))
+            .collect();
+        if let Some((t, p)) = tr.pinned(k, tf, &guess, 0.5 * (lo + hi))? {
+            if p >= lo && p <= hi {
+                out.push((t, p));
+            }
+        }
+    }
+    Ok(out)
+}
+
 /// Largest absolute difference, K.
 pub fn max_diff(a: &[f64], b: &[f64]) -> f64 {
     a.iter().zip(b).map(|(x, y)| (x - y).abs()).fold(0.0, f64::max)
 }
 
-/// Trace every branch that meets either end of the range.
-pub fn all_branches(fam: &Controlled, opts: ContinuationOptions) -> Result<Vec<Branch>, ContinuationError> {
-    let mut branches: Vec<Branch> = Vec::new();
-    for p in [opts.from, opts.to] {
-        let model = fam.model_at(p)?;
-        for s in seeds(&model, opts.tolerance_wm2) {
-            let known = branches.iter().any(|b| {
-                b.points.iter().any(|pt| {
-                    (pt.control - p).abs() <= 1e-9 * (1.0 + p.abs()) && max_diff(&pt.state, &s) < 1e-3
-                })
-            });
-            if !known {
-                branches.push(trace_branch(fam, &s, p, opts)?);
+/// Whether the equilibrium `s` at control `p` lies on `branch`.
+fn on_branch(tr: &mut Tracer<'_>, branch: &Branch, s: &[f64], p: f64) -> Result<bool, ContinuationError> {
+    let pts = &branch.points;
+    for pt in pts {
+        if pt.control == p && max_diff(&pt.state, s) < SAME_STATE_K {
+            return Ok(true);
+        }
+    }
+    for w in pts.windows(2) {
+        let (a, b) = (&w[0], &w[1]);
+        if (a.control - p) * (b.control - p) > 0.0 || a.control == b.control {
+            continue;
+        }
+        let f = (p - a.control) / (b.control - a.control);
+        let guess: Vec<f64> = a
+            .state
+            .iter()
+            .zip(&b.state)
+            .map(|(x, y)| x + f * (y - x))
+            .collect();
+        if let Some(t) = tr.equilibrium_at(&guess, p, 1.0)? {
+            if max_diff(&t.state, s) < SAME_STATE_K {
+                return Ok(true);
             }
         }
     }
-    Ok(branches)
+    Ok(false)
+}
+
+/// Whether every point of `inner` is within `tol` (scaled arclength metric) of the polyline of
+/// `outer`.
+fn contained(tr: &Tracer<'_>, inner: &Branch, outer: &Branch, tol: f64) -> bool {
+    inner.points.iter().all(|q| {
+        outer.points.windows(2).any(|w| {
+            // Distance to the segment, in the metric, by projection.
+            let (a, b) = (&w[0], &w[1]);
+            let ab = tr.distance(&a.state, a.control, &b.state, b.control);
+            let qa = tr.distance(&q.state, q.control, &a.state, a.control);
+            let qb = tr.distance(&q.state, q.control, &b.state, b.control);
+            if ab == 0.0 {
+                return qa <= tol;
+            }
+            // Height of the triangle (q, a, b) over the base ab (Heron), or the nearer end.
+            let s = 0.5 * (ab + qa + qb);
+            let area2 = (s * (s - ab) * (s - qa) * (s - qb)).max(0.0);
+            let h = 2.0 * area2.sqrt() / ab;
+            let d = if qa * qa > qb * qb + ab * ab || qb * qb > qa * qa + ab * ab {
+                qa.min(qb)
+            } else {
+                h
+            };
+            d <= tol
+        }) || outer.points.len() == 1 && {
+            let a = &outer.points[0];
+            tr.distance(&q.state, q.control, &a.state, a.control) <= tol
+        }
+    })
+}
+
+/// The traced branches, with the work done.
+#[derive(Debug, Clone, PartialEq)]
+pub struct BranchSet {
+    /// Distinct branches.
+    pub branches: Vec<Branch>,
+    /// Linearisations used (each one evaluation of G, G_T, G_p and a factorisation).
+    pub linearisations: u64,
+}
+
+/// Trace every branch met by the seeds at both ends and the middle of the range.
+pub fn all_branches(fam: &Controlled, opts: ContinuationOptions) -> Result<BranchSet, ContinuationError> {
+    let mut tr = Tracer::new(fam, opts);
+    let mut branches: Vec<Branch> = Vec::new();
+    let mut all: Vec<(Vec<f64>, f64)> = Vec::new();
+    for p in [opts.from, opts.to, 0.5 * (opts.from + opts.to)] {
+        let model = fam.model_at(p)?;
+        all.extend(seeds(&model, opts.tolerance_wm2).into_iter().map(|s| (s, p)));
+    }
+    all.extend(pinned_seeds(&mut tr, fam, &opts)?);
+    for (s, p) in all {
+        let mut known = false;
+        for b in &branches {
+            if on_branch(&mut tr, b, &s, p)? {
+                known = true;
+                break;
+            }
+        }
+        if !known {
+            branches.push(tr.trace(&s, p)?);
+        }
+    }
+    // Drop branches lying wholly on a longer one (tolerance: far below the distance between
+    // distinct equilibria, above the chord error of the polylines).
+    let mut keep = vec![true; branches.len()];
+    for i in 0..branches.len() {
+        for j in 0..branches.len() {
+            if i != j && keep[j] {
+                let (li, lj) = (length(&branches[i]), length(&branches[j]));
+                if li <= lj && contained(&tr, &branches[i], &branches[j], 2e-3) {
+                    keep[i] = false;
+                    break;
+                }
+            }
+        }
+    }
+    let branches = branches
+        .into_iter()
+        .zip(keep)
+        .filter_map(|(b, k)| k.then_some(b))
+        .collect();
+    Ok(BranchSet {
+        branches,
+        linearisations: tr.linearisations,
+    })
+}
+
+fn length(b: &Branch) -> f64 {
+    b.points.last().map(|p| p.arclength).unwrap_or(0.0)
 }

@@ -1,32 +1,55 @@
-//! Pseudo-arclength continuation of equilibria in one control parameter, through folds.
+//! Pseudo-arclength continuation of equilibria in one control parameter, through folds and
+//! through the corners of the piecewise-smooth `step` albedo.
 //!
-//! Unknowns `(T, p)` with `G(T, p) = 0`. Arclength is measured in scaled variables,
+//! Unknowns `(T, p)` with `G(T, p) = 0` (W m-2). Arclength is measured in scaled variables,
 //! `ds^2 = (1/n) sum (dT_i / T_scale)^2 + (dp / p_scale)^2` with `T_scale` = 50 K and `p_scale`
 //! the width of the range. Each step predicts along the unit tangent and corrects with Newton on
-//! the bordered system `[G_T G_p; v^T w]` (solved by block elimination with the tridiagonal
-//! `G_T`, the bordering algorithm), adapting the step length to the corrector's effort. A fold
-//! (saddle-node) is where `dp/ds` changes sign; it is located by bisection on the arclength
-//! from the last point before it until the control is known to `fold_tolerance` relative.
-//! `G_p` is a central difference in `p`.
+//! `G = 0` plus one linear constraint `<v, x> = level` (the hyperplane normal to the tangent for
+//! pseudo-arclength, `p = value` to land on a range end), solved by block elimination with the
+//! tridiagonal `G_T` (the bordering algorithm: `G_T a = -G`, `G_T b = -G_p`, then
+//! `dp = (r - <v, a>) / (<v, b> + v_p)`). The factorisation at the converged point gives the
+//! next tangent, and its Jacobian the leading eigenvalue, with no further evaluation. `G_p` is
+//! in closed form for the fast control keys and a central difference otherwise.
+//!
+//! The `step` albedo makes `G` only piecewise smooth: the curve has a kink wherever the
+//! interpolated edge crosses a band centre or face, and a sharp corner where ice first appears at
+//! the pole (or vanishes at the equator), because the outermost half band's ice fraction
+//! responds strongly. A hyperplane normal to the incoming tangent does not meet the outgoing
+//! curve when the turn exceeds 90 degrees, so steps there shrink. When they reach
+//! `CORNER_FRACTION` of the first step, the tangent of the outgoing piece is taken from the
+//! linearisation just beyond the corner, and the corrector is constrained along the bisector of
+//! the incoming and outgoing tangents, which both pieces cross transversally.
+//!
+//! A fold (saddle-node, smooth or at a corner) is where `dp/ds` changes sign between two
+//! points; it is located as the extremum of `p` along the curve between them, by golden-section
+//! search on the bisector parameter, until `p` is known to `fold_tolerance` relative.
 //!
 //! Reference: Keller (1977), in Applications of Bifurcation Theory, Academic Press, 359-384;
-//! Allgower and Georg, Introduction to Numerical Continuation Methods (1990/2003), chapter 2.
+//! Allgower and Georg, Introduction to Numerical Continuation Methods (1990/2003), chapters 2,
+//! 6 and 10 (bordering, step control, piecewise-smooth problems).
 
 use super::control::Controlled;
-use super::stability::leading_eigenvalue;
+use super::stability::{SpectrumMethod, Stability};
+use crate::config::spec::BranchesSpec;
 use crate::config::ConfigError;
 use crate::linalg::{dot, Tridiag, TridiagLu};
 use crate::model::{Model, Workspace};
 
 /// Temperature scale of the arclength metric, K.
 const T_SCALE: f64 = 50.0;
+/// Newton iterations allowed per correction.
+const MAX_CORRECTOR_ITERATIONS: usize = 12;
+/// Smallest cosine between successive tangents for an ordinary step.
+const MIN_TANGENT_COSINE: f64 = 0.9;
+/// Steps below this fraction of the first step trigger the corner crossing.
+const CORNER_FRACTION: f64 = 1e-3;
 
 /// Options.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct ContinuationOptions {
-    /// Control range.
+    /// Control range, lower end.
     pub from: f64,
-    /// Control range.
+    /// Control range, upper end.
     pub to: f64,
     /// First arclength step (scaled units).
     pub step: f64,
@@ -36,10 +59,26 @@ pub struct ContinuationOptions {
     pub min_step: f64,
     /// Point limit per branch.
     pub max_points: usize,
-    /// Newton residual target, W m-2.
+    /// Newton residual target (largest |G_i|), W m-2.
     pub tolerance_wm2: f64,
     /// Relative precision of fold locations in the control.
     pub fold_tolerance: f64,
+}
+
+impl ContinuationOptions {
+    /// Options from a validated `[branches]` section and the Newton tolerance.
+    pub fn from_spec(spec: &BranchesSpec, tolerance_wm2: f64) -> ContinuationOptions {
+        ContinuationOptions {
+            from: spec.from,
+            to: spec.to,
+            step: spec.step.min(spec.max_step),
+            max_step: spec.max_step,
+            min_step: 1e-9,
+            max_points: spec.max_points,
+            tolerance_wm2,
+            fold_tolerance: 1e-7,
+        }
+    }
 }
 
 /// One point of a branch.
@@ -49,10 +88,14 @@ pub struct BranchPoint {
     pub control: f64,
     /// Temperatures, K.
     pub state: Vec<f64>,
-    /// `dp/ds` (scaled), its sign tells the direction of travel in the control.
+    /// `dp/ds`: control units per unit of scaled arclength, in the branch's point order.
     pub dpds: f64,
     /// Leading eigenvalue, 1/year.
     pub leading: f64,
+    /// How the leading eigenvalue was computed.
+    pub method: SpectrumMethod,
+    /// Scaled arclength from the branch's first point.
+    pub arclength: f64,
 }
 
 /// A located fold.
@@ -62,8 +105,44 @@ pub struct FoldPoint {
     pub control: f64,
     /// State at the fold, K.
     pub state: Vec<f64>,
-    /// Index (into the branch's points) of the last point before the fold.
+    /// Index (into the branch's points) of the point before the fold.
     pub after_point: usize,
+    /// Whether the fold sits at a corner of the piecewise-smooth curve (the tangent jumps there)
+    /// rather than at a smooth turning point.
+    pub corner: bool,
+    /// Whether the search converged to `fold_tolerance` (otherwise the best point found).
+    pub converged: bool,
+}
+
+/// An equilibrium at a fixed control value, with its stability and sensitivity.
+#[derive(Debug, Clone, PartialEq)]
+pub struct FixedControl {
+    /// Temperatures, K.
+    pub state: Vec<f64>,
+    /// Control value.
+    pub control: f64,
+    /// Leading eigenvalue, 1/year.
+    pub leading: f64,
+    /// How it was computed.
+    pub method: SpectrumMethod,
+    /// `dT/dp`, K per control unit (from `G_T dT/dp = -G_p`).
+    pub dtdp: Vec<f64>,
+}
+
+/// Why a branch ends on one side.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum LegEnd {
+    /// It left the control range (the last point sits on the range end).
+    LeftRange,
+    /// The point limit was reached.
+    PointLimit,
+    /// It closed on itself (an isola).
+    Closed,
+    /// The corrector failed at ever smaller steps at this control value.
+    Stuck {
+        /// Control value of the last point.
+        control: f64,
+    },
 }
 
 /// A traced branch.
@@ -71,8 +150,10 @@ pub struct FoldPoint {
 pub struct Branch {
     /// Points in arclength order.
     pub points: Vec<BranchPoint>,
-    /// Folds along it.
+    /// Folds along it, in arclength order.
     pub folds: Vec<FoldPoint>,
+    /// How the branch ends at its first and its last point.
+    pub ends: [LegEnd; 2],
 }
 
 /// Why continuation failed.
@@ -81,18 +162,93 @@ pub enum ContinuationError {
     /// The control could not be applied.
     #[error(transparent)]
     Config(#[from] ConfigError),
-    /// The starting point is not an equilibrium.
-    #[error("continuation start is not an equilibrium: {0}")]
-    Start(String),
+    /// The starting point is not a regular equilibrium.
+    #[error("continuation start at control {control} is not usable: {reason}")]
+    Start {
+        /// Control value of the start.
+        control: f64,
+        /// What is wrong.
+        reason: String,
+    },
 }
 
-struct Tracer<'a> {
+/// A unit tangent (or constraint direction) in the scaled metric: `dT/ds` in K and `dp/ds` in
+/// control units per unit of scaled arclength.
+#[derive(Debug, Clone, PartialEq)]
+struct Tan {
+    dt: Vec<f64>,
+    dp: f64,
+}
+
+impl Tan {
+    fn zeros(n: usize) -> Tan {
+        Tan {
+            dt: vec![0.0; n],
+            dp: 0.0,
+        }
+    }
+
+    fn negate(&mut self) {
+        self.dt.iter_mut().for_each(|v| *v = -*v);
+        self.dp = -self.dp;
+    }
+}
+
+/// The extra equation of a correction.
+#[derive(Clone, Copy)]
+enum Constraint<'c> {
+    /// `<v, (T, p)> = level` in the scaled metric.
+    Along(&'c Tan, f64),
+    /// `p = value`.
+    Control(f64),
+    /// `T_k = value` (a local parametrisation by one band).
+    Band(usize, f64),
+}
+
+/// The metric weights.
+#[derive(Debug, Clone, Copy)]
+struct Metric {
+    wt: f64,
+    wp: f64,
+}
+
+impl Metric {
+    fn inner(&self, at: &[f64], ap: f64, bt: &[f64], bp: f64) -> f64 {
+        dot(at, bt) * self.wt + ap * bp * self.wp
+    }
+
+    fn tan(&self, a: &Tan, b: &Tan) -> f64 {
+        self.inner(&a.dt, a.dp, &b.dt, b.dp)
+    }
+
+    fn dist(&self, at: &[f64], ap: f64, bt: &[f64], bp: f64) -> f64 {
+        let mut s = 0.0;
+        for (x, y) in at.iter().zip(bt) {
+            s += (x - y) * (x - y);
+        }
+        (s * self.wt + (ap - bp) * (ap - bp) * self.wp).sqrt()
+    }
+}
+
+/// A point on the curve with its unit tangent (oriented along the direction of travel).
+#[derive(Debug, Clone)]
+struct Node {
+    t: Vec<f64>,
+    p: f64,
+    tan: Tan,
+    leading: f64,
+    method: SpectrumMethod,
+}
+
+/// The continuation machinery for one control family; all buffers are allocated once.
+pub struct Tracer<'a> {
     fam: &'a Controlled,
     model: Model,
     model_p: f64,
+    scratch: Model,
     ws: Workspace,
     n: usize,
-    p_scale: f64,
+    metric: Metric,
     opts: ContinuationOptions,
     jac: Tridiag,
     lu: TridiagLu,
@@ -101,35 +257,50 @@ struct Tracer<'a> {
     a: Vec<f64>,
     b: Vec<f64>,
     tmp: Vec<f64>,
-}
-
-/// The tangent at a point: `dT/ds` (K per unit s) and `dp/ds` (control units per unit s).
-#[derive(Debug, Clone)]
-struct Tangent {
-    dt: Vec<f64>,
-    dp: f64,
+    /// Corrector result.
+    xt: Vec<f64>,
+    /// Predictor scratch.
+    pt: Vec<f64>,
+    stab: Stability,
+    /// Linearisations performed (G, G_T, G_p and a factorisation each).
+    pub linearisations: u64,
 }
 
 impl<'a> Tracer<'a> {
-    fn new(fam: &'a Controlled, opts: ContinuationOptions) -> Tracer<'a> {
+    /// Buffers for `fam` with `opts`.
+    pub fn new(fam: &'a Controlled, opts: ContinuationOptions) -> Tracer<'a> {
         let model = fam.base_model().clone();
         let n = model.len();
+        let p_scale = (opts.to - opts.from).abs().max(f64::MIN_POSITIVE);
         Tracer {
             fam,
             model_p: fam.base_value(),
+            scratch: model.clone(),
             ws: Workspace::new(n),
             n,
-            p_scale: (opts.to - opts.from).abs(),
+            metric: Metric {
+                wt: 1.0 / (n as f64 * T_SCALE * T_SCALE),
+                wp: 1.0 / (p_scale * p_scale),
+            },
             opts,
             jac: Tridiag::zeros(n),
             lu: TridiagLu::new(n, &model.grid.weights),
-            model,
             g: vec![0.0; n],
             gp: vec![0.0; n],
             a: vec![0.0; n],
             b: vec![0.0; n],
             tmp: vec![0.0; n],
+            xt: vec![0.0; n],
+            pt: vec![0.0; n],
+            stab: Stability::new(&model),
+            model,
+            linearisations: 0,
         }
+    }
+
+    /// The model at the control value of the last evaluation.
+    pub fn model(&self) -> &Model {
+        &self.model
     }
 
     fn set_p(&mut self, p: f64) -> Result<(), ConfigError> {
@@ -140,80 +311,96 @@ impl<'a> Tracer<'a> {
         Ok(())
     }
 
-    /// `G` into `self.g` and `G_p` into `self.gp`, and factor `G_T`. Returns false if singular.
+    /// `G`, `G_T` (factored) and `G_p` at `(t, p)`. Ok(false) when `G_T` is singular.
     fn linearise(&mut self, t: &[f64], p: f64) -> Result<bool, ConfigError> {
-        let h = 1e-6 * self.p_scale.max(p.abs() * 1e-3);
-        self.set_p(p + h)?;
-        self.model.heating(0.0, t, &mut self.ws, &mut self.gp);
-        self.set_p(p - h)?;
-        self.model.heating(0.0, t, &mut self.ws, &mut self.tmp);
-        for i in 0..self.n {
-            self.gp[i] = (self.gp[i] - self.tmp[i]) / (2.0 * h);
-        }
+        self.linearisations += 1;
         self.set_p(p)?;
         self.model.heating(0.0, t, &mut self.ws, &mut self.g);
         self.model.heating_jacobian(0.0, t, &mut self.ws, &mut self.jac);
+        if !self.fam.heating_derivative(&self.model, p, t, &mut self.gp) {
+            // Central difference; the step balances truncation and round-off (common practice).
+            let h = 1e-6 * p.abs().max(1e-3 / self.metric.wp.sqrt());
+            self.fam.apply(&mut self.scratch, p + h)?;
+            self.scratch.heating(0.0, t, &mut self.ws, &mut self.gp);
+            self.fam.apply(&mut self.scratch, p - h)?;
+            self.scratch.heating(0.0, t, &mut self.ws, &mut self.tmp);
+            for i in 0..self.n {
+                self.gp[i] = (self.gp[i] - self.tmp[i]) / (2.0 * h);
+            }
+        }
         Ok(self.lu.factor(&self.jac).is_ok())
     }
 
-    fn tangent(
-        &mut self,
-        t: &[f64],
-        p: f64,
-        orient: Option<&Tangent>,
-    ) -> Result<Option<Tangent>, ConfigError> {
-        if !self.linearise(t, p)? {
-            return Ok(None);
-        }
-        // G_T z = -G_p.
+    /// The unit tangent from the current factorisation, oriented with `dp >= 0`.
+    fn tangent_into(&mut self, out: &mut Tan) -> bool {
         for i in 0..self.n {
-            self.b[i] = -self.gp[i];
+            out.dt[i] = -self.gp[i];
         }
-        self.lu.solve(&mut self.b);
-        let ps = self.p_scale;
-        let zz = dot(&self.b, &self.b);
-        let w = 1.0 / (1.0 + ps * ps * zz / (self.n as f64 * T_SCALE * T_SCALE)).sqrt();
-        let mut tan = Tangent {
-            dt: self.b.iter().map(|z| z * ps * w).collect(),
-            dp: w * ps,
-        };
-        if let Some(o) = orient {
-            if self.inner(&tan, o) < 0.0 {
-                tan.dt.iter_mut().for_each(|v| *v = -*v);
-                tan.dp = -tan.dp;
-            }
+        self.lu.solve(&mut out.dt);
+        let zz = dot(&out.dt, &out.dt);
+        let c = 1.0 / (zz * self.metric.wt + self.metric.wp).sqrt();
+        if !c.is_finite() || out.dt.iter().any(|v| !v.is_finite()) {
+            return false;
         }
-        Ok(Some(tan))
+        out.dt.iter_mut().for_each(|v| *v *= c);
+        out.dp = c;
+        true
     }
 
-    fn inner(&self, a: &Tangent, b: &Tangent) -> f64 {
-        dot(&a.dt, &b.dt) / (self.n as f64 * T_SCALE * T_SCALE) + a.dp * b.dp / (self.p_scale * self.p_scale)
-    }
-
-    /// Newton on `G = 0` and the hyperplane through `(t_pred, p_pred)` normal to `tan`.
+    /// Newton on `G = 0` and the constraint from `(pred_t, pred_p)`. On success the state is
+    /// in `self.xt`, the linearisation (and factorisation) is that of the result, and the
+    /// control and iteration count are returned. Fails when an iterate strays farther than
+    /// `max_dist` (scaled) from the predictor, diverges, or leaves the valid range.
     fn correct(
         &mut self,
-        t_pred: &[f64],
-        p_pred: f64,
-        tan: &Tangent,
-    ) -> Result<Option<(Vec<f64>, f64, usize)>, ConfigError> {
-        let mut t = t_pred.to_vec();
-        let mut p = p_pred;
+        pred_t: &[f64],
+        pred_p: f64,
+        c: Constraint<'_>,
+        max_dist: f64,
+    ) -> Result<Option<(f64, usize)>, ConfigError> {
+        let mut xt = std::mem::take(&mut self.xt);
+        xt.copy_from_slice(pred_t);
+        let r = self.correct_inner(&mut xt, pred_t, pred_p, c, max_dist);
+        self.xt = xt;
+        r
+    }
+
+    fn correct_inner(
+        &mut self,
+        xt: &mut [f64],
+        pred_t: &[f64],
+        pred_p: f64,
+        c: Constraint<'_>,
+        max_dist: f64,
+    ) -> Result<Option<(f64, usize)>, ConfigError> {
+        let mut p = pred_p;
         let (lo, hi) = self.model.valid_range();
-        let nt = self.n as f64 * T_SCALE * T_SCALE;
-        let ps2 = self.p_scale * self.p_scale;
-        for it in 0..12 {
-            if !self.linearise(&t, p)? {
+        let m = self.metric;
+        let mut prev_step = f64::INFINITY;
+        for it in 0..=MAX_CORRECTOR_ITERATIONS {
+            // A control value the family refuses (e.g. CO2 <= 0) ends this correction.
+            match self.linearise(xt, p) {
+                Ok(true) => {}
+                Ok(false) | Err(_) => return Ok(None),
+            }
+            let res = self.g.iter().fold(0.0_f64, |a, v| a.max(v.abs()));
+            if !res.is_finite() {
                 return Ok(None);
             }
-            let r = self.g.iter().fold(0.0_f64, |m, v| m.max(v.abs()));
-            let mut nres = 0.0;
-            for i in 0..self.n {
-                nres += tan.dt[i] * (t[i] - t_pred[i]);
+            let (cres, scale) = match c {
+                Constraint::Along(v, level) => (level - m.inner(&v.dt, v.dp, xt, p), 1.0 + level.abs()),
+                Constraint::Control(value) => (value - p, value.abs().max(1.0 / m.wp.sqrt())),
+                Constraint::Band(k, value) => (value - xt[k], value.abs().max(1.0)),
+            };
+            // Round-off floor of G: the transport terms cancel to about eps |G_T| |T|.
+            let jmax = self.jac.diag.iter().fold(0.0_f64, |a, v| a.max(v.abs()));
+            let tmax = xt.iter().fold(0.0_f64, |a, v| a.max(v.abs()));
+            let floor = f64::EPSILON * jmax * tmax;
+            if res <= self.opts.tolerance_wm2.max(floor) && cres.abs() <= 1e-12 * scale {
+                return Ok(Some((p, it)));
             }
-            nres = nres / nt + tan.dp * (p - p_pred) / ps2;
-            if r.is_finite() && r <= self.opts.tolerance_wm2 && nres.abs() < 1e-12 {
-                return Ok(Some((t, p, it)));
+            if it == MAX_CORRECTOR_ITERATIONS {
+                break;
             }
             for i in 0..self.n {
                 self.a[i] = -self.g[i];
@@ -221,165 +408,472 @@ impl<'a> Tracer<'a> {
             }
             self.lu.solve(&mut self.a);
             self.lu.solve(&mut self.b);
-            let den = dot(&tan.dt, &self.b) / nt + tan.dp / ps2;
-            let dp = (-nres - dot(&tan.dt, &self.a) / nt) / den;
+            let dp = match c {
+                Constraint::Along(v, _) => {
+                    let va = dot(&v.dt, &self.a) * m.wt;
+                    let vb = dot(&v.dt, &self.b) * m.wt;
+                    (cres - va) / (vb + v.dp * m.wp)
+                }
+                Constraint::Control(_) => cres,
+                // dT_k = a_k + b_k dp must close the gap.
+                Constraint::Band(k, _) => (cres - self.a[k]) / self.b[k],
+            };
             if !dp.is_finite() {
                 return Ok(None);
             }
-            let mut big = 0.0_f64;
+            let mut step2 = dp * dp * m.wp;
             for i in 0..self.n {
                 let d = self.a[i] + self.b[i] * dp;
-                big = big.max(d.abs());
-                t[i] += d;
+                step2 += d * d * m.wt;
+                xt[i] += d;
             }
             p += dp;
-            if !big.is_finite() || big > 30.0 || t.iter().any(|v| *v < lo || *v > hi) {
+            let step = step2.sqrt();
+            // Divergence: Newton steps must not grow (kinks of G allow some slack).
+            if !step.is_finite() || (it >= 1 && step > 2.0 * prev_step && step > 1e-12) {
+                return Ok(None);
+            }
+            prev_step = step;
+            if xt.iter().any(|v| !(*v >= lo && *v <= hi)) || m.dist(xt, p, pred_t, pred_p) > max_dist {
                 return Ok(None);
             }
         }
         Ok(None)
     }
 
-    fn leading(&mut self, t: &[f64], p: f64) -> Result<f64, ConfigError> {
-        self.set_p(p)?;
-        Ok(leading_eigenvalue(&self.model, 0.0, t).0)
-    }
-
-    fn point(&mut self, t: Vec<f64>, p: f64, tan: &Tangent) -> Result<BranchPoint, ConfigError> {
-        let leading = self.leading(&t, p)?;
-        Ok(BranchPoint {
-            control: p,
-            state: t,
-            dpds: tan.dp / self.p_scale,
+    /// A node at the corrector's result, with its tangent oriented along `(x - from)`, or with
+    /// `dp >= 0` when `from` is `None`.
+    fn node_at_result(&mut self, p: f64, from: Option<(&[f64], f64)>) -> Option<Node> {
+        let mut tan = Tan::zeros(self.n);
+        if !self.tangent_into(&mut tan) {
+            return None;
+        }
+        if let Some((ft, fp)) = from {
+            let mut s = (p - fp) * tan.dp * self.metric.wp;
+            for i in 0..self.n {
+                s += (self.xt[i] - ft[i]) * tan.dt[i] * self.metric.wt;
+            }
+            if s < 0.0 {
+                tan.negate();
+            }
+        }
+        let jac = std::mem::replace(&mut self.jac, Tridiag::zeros(0));
+        let (leading, method) = self.stab.leading_from_jacobian(&self.model, &jac);
+        self.jac = jac;
+        Some(Node {
+            t: self.xt.clone(),
+            p,
+            tan,
             leading,
+            method,
         })
     }
 
-    /// Newton in `T` at fixed `p` (to land on the range ends).
-    fn fixed_p(&mut self, t0: &[f64], p: f64) -> Result<Option<Vec<f64>>, ConfigError> {
-        self.set_p(p)?;
-        let opts = super::NewtonOptions {
-            tolerance_wm2: self.opts.tolerance_wm2,
-            max_iterations: 30,
-            max_change: 20.0,
+    /// The node at an equilibrium `t` at control `p` (tangent with `dp >= 0`).
+    fn start_node(&mut self, t: &[f64], p: f64) -> Result<Node, ContinuationError> {
+        let bad = |reason: &str| ContinuationError::Start {
+            control: p,
+            reason: reason.to_string(),
         };
-        Ok(super::newton(&self.model, 0.0, t0, opts).ok().map(|r| r.state))
+        self.set_p(p)?;
+        let r = self.correct(t, p, Constraint::Control(p), 1.0)?;
+        let Some((p, _)) = r else {
+            return Err(bad("Newton at fixed control does not converge from it"));
+        };
+        self.node_at_result(p, None)
+            .ok_or_else(|| bad("singular Jacobian (the start sits on a fold)"))
     }
 
-    /// Locate a fold between `x0` (tangent `tan0`) and the next point at arclength `ds`.
-    fn locate_fold(
-        &mut self,
-        x0: &BranchPoint,
-        tan0: &Tangent,
-        ds: f64,
-    ) -> Result<Option<FoldPoint>, ConfigError> {
-        let sign0 = tan0.dp.signum();
-        let (mut lo, mut hi) = (0.0, ds);
-        let mut best: Option<(Vec<f64>, f64)> = None;
-        let mut p_prev = f64::NAN;
-        for _ in 0..60 {
-            let mid = 0.5 * (lo + hi);
-            let t_pred: Vec<f64> = x0.state.iter().zip(&tan0.dt).map(|(t, d)| t + mid * d).collect();
-            let p_pred = x0.control + mid * tan0.dp;
-            let Some((t, p, _)) = self.correct(&t_pred, p_pred, tan0)? else {
-                break;
-            };
-            let Some(tan) = self.tangent(&t, p, Some(tan0))? else {
-                best = Some((t, p));
-                break;
-            };
-            if tan.dp.signum() == sign0 {
-                lo = mid;
-            } else {
-                hi = mid;
+    /// Predictor `from + h tan` into `self.pt`; returns its control.
+    fn predict(&mut self, from_t: &[f64], from_p: f64, tan: &Tan, h: f64) -> f64 {
+        for i in 0..self.n {
+            self.pt[i] = from_t[i] + h * tan.dt[i];
+        }
+        from_p + h * tan.dp
+    }
+
+    /// One ordinary pseudo-arclength step of length `ds` from `cur`.
+    fn step(&mut self, cur: &Node, ds: f64) -> Result<Option<(Node, usize)>, ConfigError> {
+        let pp = self.predict(&cur.t, cur.p, &cur.tan, ds);
+        let pt = std::mem::take(&mut self.pt);
+        let level = self.metric.inner(&cur.tan.dt, cur.tan.dp, &pt, pp);
+        let r = self.correct(&pt, pp, Constraint::Along(&cur.tan, level), ds.max(1e-12));
+        self.pt = pt;
+        let Some((p, iters)) = r? else { return Ok(None) };
+        Ok(self
+            .node_at_result(p, Some((&cur.t, cur.p)))
+            .map(|nd| (nd, iters)))
+    }
+
+    /// Cross a corner just ahead of `cur` (steps of `ds` along its tangent failed): take the
+    /// outgoing piece's tangent from the linearisation beyond the corner and correct along the
+    /// bisector of the two tangents.
+    fn cross_corner(&mut self, cur: &Node, ds: f64) -> Result<Option<Node>, ConfigError> {
+        let m = self.metric;
+        let mut best: Option<(Node, f64)> = None;
+        for h in [4.0 * ds, 16.0 * ds, 64.0 * ds] {
+            let py = self.predict(&cur.t, cur.p, &cur.tan, h);
+            let y = self.pt.clone();
+            match self.linearise(&y, py) {
+                Ok(true) => {}
+                _ => continue,
             }
-            let done =
-                (p - p_prev).abs() <= self.opts.fold_tolerance * 0.1 * p.abs().max(self.p_scale * 1e-3);
-            p_prev = p;
-            best = Some((t, p));
-            if done && hi - lo < 1e-6 * ds {
+            let mut t2 = Tan::zeros(self.n);
+            if !self.tangent_into(&mut t2) {
+                continue;
+            }
+            for s in [1.0, -1.0] {
+                let mut v = Tan {
+                    dt: cur.tan.dt.iter().zip(&t2.dt).map(|(a, b)| a + s * b).collect(),
+                    dp: cur.tan.dp + s * t2.dp,
+                };
+                let norm = m.tan(&v, &v).sqrt();
+                if norm < 1e-6 {
+                    continue;
+                }
+                v.dt.iter_mut().for_each(|x| *x /= norm);
+                v.dp /= norm;
+                let v1 = m.tan(&v, &cur.tan);
+                let v2 = s * m.tan(&v, &t2);
+                if v1 <= 1e-6 || v2 <= 1e-6 {
+                    continue;
+                }
+                // Beyond the corner along v, then along the outgoing tangent from y.
+                let r = 2.0 * h * v1;
+                let level = m.inner(&v.dt, v.dp, &cur.t, cur.p) + r;
+                let alpha = (r - h * v1) / v2;
+                let pred: Vec<f64> = y.iter().zip(&t2.dt).map(|(a, b)| a + alpha * s * b).collect();
+                let pred_p = py + alpha * s * t2.dp;
+                if let Some((p, _)) = self.correct(&pred, pred_p, Constraint::Along(&v, level), 8.0 * h)? {
+                    let d = m.dist(&self.xt, p, &pred, pred_p);
+                    if best.as_ref().is_none_or(|(_, bd)| d < *bd) {
+                        if let Some(nd) = self.node_at_result(p, Some((&cur.t, cur.p))) {
+                            best = Some((nd, d));
+                        }
+                    }
+                }
+            }
+            if best.is_some() {
                 break;
             }
         }
-        Ok(best.map(|(state, control)| FoldPoint {
+        Ok(best.map(|(nd, _)| nd))
+    }
+
+    /// Locate the fold between `a` and `b` (their tangents' `dp` differ in sign) as the
+    /// extremum of `p` along the curve, by golden-section search on the bisector parameter.
+    fn locate_fold(&mut self, a: &Node, b: &Node, corner: bool) -> Result<FoldPoint, ConfigError> {
+        let m = self.metric;
+        // Bisector of the two tangents: both pieces cross its level sets transversally.
+        let mut v = Tan {
+            dt: a.tan.dt.iter().zip(&b.tan.dt).map(|(x, y)| x + y).collect(),
+            dp: a.tan.dp + b.tan.dp,
+        };
+        let mut norm = m.tan(&v, &v).sqrt();
+        if norm < 1e-3 {
+            // Tangents opposite: use the chord.
+            v = Tan {
+                dt: b.t.iter().zip(&a.t).map(|(x, y)| x - y).collect(),
+                dp: b.p - a.p,
+            };
+            norm = m.tan(&v, &v).sqrt();
+        }
+        v.dt.iter_mut().for_each(|x| *x /= norm);
+        v.dp /= norm;
+        let base = m.inner(&v.dt, v.dp, &a.t, a.p);
+        let len = m.inner(&v.dt, v.dp, &b.t, b.p) - base;
+        // Minimise sign * p: a minimum of p when dp/ds goes from negative to positive.
+        let sign = if a.tan.dp < 0.0 { 1.0 } else { -1.0 };
+        let chord = m.dist(&a.t, a.p, &b.t, b.p);
+        let mut best: (f64, Vec<f64>, f64) = if sign * a.p <= sign * b.p {
+            (a.p, a.t.clone(), 0.0)
+        } else {
+            (b.p, b.t.clone(), len)
+        };
+        let mut pred = vec![0.0; self.n];
+        let mut tan = Tan::zeros(self.n);
+        // The curve point at bisector parameter sigma: (p, dp/ds with the tangent oriented along
+        // v); keeps the most extreme p.
+        let mut eval = |tr: &mut Tracer<'a>, best: &mut (f64, Vec<f64>, f64), sigma: f64| {
+            // Predictor: the chord at the same fraction.
+            let f = if len > 0.0 { sigma / len } else { 0.5 };
+            for i in 0..tr.n {
+                pred[i] = a.t[i] + f * (b.t[i] - a.t[i]);
+            }
+            let pred_p = a.p + f * (b.p - a.p);
+            let r = tr.correct(
+                &pred,
+                pred_p,
+                Constraint::Along(&v, base + sigma),
+                2.0 * chord + 1e-9,
+            );
+            let Ok(Some((p, _))) = r else { return None };
+            if sign * p < sign * best.0 {
+                best.0 = p;
+                best.1.copy_from_slice(&tr.xt);
+                best.2 = sigma;
+            }
+            if !tr.tangent_into(&mut tan) {
+                return Some((p, 0.0));
+            }
+            let along = m.tan(&tan, &v);
+            Some((p, if along < 0.0 { -tan.dp } else { tan.dp }))
+        };
+        // The zero of dp/ds: regula falsi (Illinois) with bisection whenever the bracket does
+        // not halve, so that corners (where dp/ds jumps) are bracketed too.
+        let (mut lo, mut hi) = (0.0, len);
+        let (mut g_lo, mut g_hi) = (a.tan.dp, b.tan.dp);
+        let g_scale = g_lo.abs().max(g_hi.abs());
+        let mut side = 0i32;
+        let mut p_prev = f64::NAN;
+        let mut width_before = hi - lo;
+        let mut converged = false;
+        for it in 0..200 {
+            let falsi = lo - g_lo * (hi - lo) / (g_hi - g_lo);
+            let bisect = it % 3 == 2 && hi - lo > 0.5 * width_before;
+            if it % 3 == 2 {
+                width_before = hi - lo;
+            }
+            let mut sigma = if bisect || !falsi.is_finite() || falsi <= lo || falsi >= hi {
+                0.5 * (lo + hi)
+            } else {
+                falsi
+            };
+            let mut r = eval(self, &mut best, sigma);
+            if r.is_none() && sigma != 0.5 * (lo + hi) {
+                sigma = 0.5 * (lo + hi);
+                r = eval(self, &mut best, sigma);
+            }
+            let Some((p, g)) = r else { break };
+            let tol = self.opts.fold_tolerance * p.abs().max(1e-3 / m.wp.sqrt());
+            // Converged when p stops moving near the zero (smooth fold) or in a tight bracket
+            // (corner).
+            let near = g.abs() <= 1e-2 * g_scale || hi - lo <= 1e-4 * len;
+            if g == 0.0 || ((p - p_prev).abs() <= 0.1 * tol && near) || hi - lo <= 1e-14 * (1.0 + base.abs())
+            {
+                converged = true;
+                break;
+            }
+            p_prev = p;
+            if (g < 0.0) == (g_lo < 0.0) {
+                lo = sigma;
+                g_lo = g;
+                if side == -1 {
+                    g_hi *= 0.5;
+                }
+                side = -1;
+            } else {
+                hi = sigma;
+                g_hi = g;
+                if side == 1 {
+                    g_lo *= 0.5;
+                }
+                side = 1;
+            }
+        }
+        let (control, state, _) = best;
+        Ok(FoldPoint {
             control,
             state,
             after_point: 0,
+            corner,
+            converged,
+        })
+    }
+
+    /// Land on the range end `edge` between `cur` (inside) and `next` (outside).
+    fn land(&mut self, cur: &Node, next: &Node, edge: f64) -> Result<Option<Node>, ConfigError> {
+        let f = (edge - cur.p) / (next.p - cur.p);
+        let pred: Vec<f64> = cur.t.iter().zip(&next.t).map(|(a, b)| a + f * (b - a)).collect();
+        let d = self.metric.dist(&cur.t, cur.p, &next.t, next.p);
+        if let Some((p, _)) = self.correct(&pred, edge, Constraint::Control(edge), d + 1e-9)? {
+            return Ok(self.node_at_result(p, Some((&cur.t, cur.p))));
+        }
+        Ok(None)
+    }
+
+    /// Trace from `start` along its tangent until the branch leaves the range, closes, or the
+    /// point budget is spent. Pushes the nodes after the start and the folds (with
+    /// `after_point` counted in this leg, 0 = the start).
+    fn leg(
+        &mut self,
+        start: &Node,
+        budget: usize,
+        nodes: &mut Vec<Node>,
+        folds: &mut Vec<FoldPoint>,
+    ) -> Result<LegEnd, ConfigError> {
+        let (pmin, pmax) = (self.opts.from.min(self.opts.to), self.opts.from.max(self.opts.to));
+        let corner_step = (CORNER_FRACTION * self.opts.step).max(self.opts.min_step);
+        let mut cur = start.clone();
+        let mut ds = self.opts.step;
+        let mut travelled = 0.0;
+        loop {
+            if nodes.len() >= budget {
+                return Ok(LegEnd::PointLimit);
+            }
+            let mut corner = false;
+            let mut next = None;
+            if let Some((nd, iters)) = self.step(&cur, ds)? {
+                let cosang = self.metric.tan(&nd.tan, &cur.tan);
+                if cosang >= MIN_TANGENT_COSINE || ds <= corner_step {
+                    corner = cosang < MIN_TANGENT_COSINE;
+                    next = Some(nd);
+                    // Step control on the corrector's effort and the turn of the tangent.
+                    let grow = if iters <= 2 && cosang > 0.995 {
+                        1.5
+                    } else if iters >= 5 || cosang < 0.98 {
+                        0.6
+                    } else {
+                        1.0
+                    };
+                    ds = (ds * grow).clamp(self.opts.min_step, self.opts.max_step);
+                } else {
+                    ds *= 0.5;
+                }
+            } else if ds <= corner_step {
+                if let Some(nd) = self.cross_corner(&cur, ds)? {
+                    corner = true;
+                    next = Some(nd);
+                    ds = (8.0 * ds).min(self.opts.max_step);
+                } else {
+                    ds *= 0.5;
+                }
+            } else {
+                ds *= 0.5;
+            }
+            let Some(nd) = next else {
+                if ds < self.opts.min_step {
+                    return Ok(LegEnd::Stuck { control: cur.p });
+                }
+                continue;
+            };
+            if nd.tan.dp * cur.tan.dp < 0.0 {
+                let mut f = self.locate_fold(&cur, &nd, corner)?;
+                f.after_point = nodes.len();
+                folds.push(f);
+            }
+            if nd.p < pmin || nd.p > pmax {
+                let edge = if nd.p < pmin { pmin } else { pmax };
+                if let Some(end) = self.land(&cur, &nd, edge)? {
+                    nodes.push(end);
+                }
+                return Ok(LegEnd::LeftRange);
+            }
+            travelled += self.metric.dist(&nd.t, nd.p, &cur.t, cur.p);
+            let back = self.metric.dist(&nd.t, nd.p, &start.t, start.p);
+            nodes.push(nd.clone());
+            if travelled > 10.0 * self.opts.max_step && back < 0.5 * ds.max(self.opts.step) {
+                return Ok(LegEnd::Closed);
+            }
+            cur = nd;
+        }
+    }
+
+    /// Trace the whole branch through an equilibrium `start` at control `p`, both ways.
+    pub fn trace(&mut self, start: &[f64], p: f64) -> Result<Branch, ContinuationError> {
+        let first = self.start_node(start, p)?;
+        let budget = self.opts.max_points.max(2);
+        let (mut back_nodes, mut back_folds) = (Vec::new(), Vec::new());
+        let (mut fwd_nodes, mut fwd_folds) = (Vec::new(), Vec::new());
+        let mut rev = first.clone();
+        rev.tan.negate();
+        let end_back = self.leg(&rev, budget / 2, &mut back_nodes, &mut back_folds)?;
+        let end_fwd = if end_back == LegEnd::Closed {
+            LegEnd::Closed
+        } else {
+            self.leg(&first, budget - back_nodes.len(), &mut fwd_nodes, &mut fwd_folds)?
+        };
+        // One arclength order: reversed backward leg, the start, the forward leg.
+        let nb = back_nodes.len();
+        let mut nodes: Vec<Node> = back_nodes.into_iter().rev().collect();
+        for nd in nodes.iter_mut() {
+            nd.tan.negate();
+        }
+        nodes.push(first);
+        nodes.extend(fwd_nodes);
+        let mut folds: Vec<FoldPoint> = back_folds
+            .into_iter()
+            .map(|mut f| {
+                // Backward leg: between its nodes k and k+1 (k = 0 the start) means between
+                // assembled indices nb - 1 - k and nb - k.
+                f.after_point = nb.saturating_sub(1 + f.after_point);
+                f
+            })
+            .collect();
+        folds.reverse();
+        folds.extend(fwd_folds.into_iter().map(|mut f| {
+            f.after_point += nb;
+            f
+        }));
+        let mut arclength = 0.0;
+        let mut points: Vec<BranchPoint> = Vec::with_capacity(nodes.len());
+        for (k, nd) in nodes.iter().enumerate() {
+            if k > 0 {
+                let pr = &nodes[k - 1];
+                arclength += self.metric.dist(&nd.t, nd.p, &pr.t, pr.p);
+            }
+            points.push(BranchPoint {
+                control: nd.p,
+                state: nd.t.clone(),
+                dpds: nd.tan.dp,
+                leading: nd.leading,
+                method: nd.method,
+                arclength,
+            });
+        }
+        Ok(Branch {
+            points,
+            folds,
+            ends: [end_back, end_fwd],
+        })
+    }
+
+    /// Newton at fixed control `p` from `guess`, accepted when it stays within `max_dist`
+    /// (scaled metric) of the guess; with the leading eigenvalue and `dT/dp` there.
+    pub fn equilibrium_at(
+        &mut self,
+        guess: &[f64],
+        p: f64,
+        max_dist: f64,
+    ) -> Result<Option<FixedControl>, ConfigError> {
+        let Some((p, _)) = self.correct(guess, p, Constraint::Control(p), max_dist)? else {
+            return Ok(None);
+        };
+        let mut dtdp = vec![0.0; self.n];
+        for i in 0..self.n {
+            dtdp[i] = -self.gp[i];
+        }
+        self.lu.solve(&mut dtdp);
+        let jac = std::mem::replace(&mut self.jac, Tridiag::zeros(0));
+        let (leading, method) = self.stab.leading_from_jacobian(&self.model, &jac);
+        self.jac = jac;
+        Ok(Some(FixedControl {
+            state: self.xt.clone(),
+            control: p,
+            leading,
+            method,
+            dtdp,
         }))
     }
 
-    /// Trace from an equilibrium in one direction (+1: increasing control first) until the
-    /// branch leaves the range. Returns the points after the start, and folds.
-    fn trace_one_way(
+    /// The equilibrium whose band `k` sits exactly at `value` (K), with the control free: Newton
+    /// on `G = 0, T_k = value` from `(guess, guess_p)`. Returns the state and the control.
+    pub fn pinned(
         &mut self,
-        start: &BranchPoint,
-        dir: f64,
-    ) -> Result<(Vec<BranchPoint>, Vec<FoldPoint>), ConfigError> {
-        let (pmin, pmax) = (self.opts.from.min(self.opts.to), self.opts.from.max(self.opts.to));
-        let mut pts: Vec<BranchPoint> = Vec::new();
-        let mut folds = Vec::new();
-        let Some(mut tan) = self.tangent(&start.state, start.control, None)? else {
-            return Ok((pts, folds));
+        k: usize,
+        value: f64,
+        guess: &[f64],
+        guess_p: f64,
+    ) -> Result<Option<(Vec<f64>, f64)>, ConfigError> {
+        let Some((p, _)) = self.correct(guess, guess_p, Constraint::Band(k, value), 100.0)? else {
+            return Ok(None);
         };
-        if tan.dp.signum() != dir.signum() {
-            tan.dt.iter_mut().for_each(|v| *v = -*v);
-            tan.dp = -tan.dp;
-        }
-        let mut cur = start.clone();
-        let mut ds = self.opts.step;
-        while pts.len() < self.opts.max_points {
-            let t_pred: Vec<f64> = cur.state.iter().zip(&tan.dt).map(|(t, d)| t + ds * d).collect();
-            let p_pred = cur.control + ds * tan.dp;
-            let corrected = self.correct(&t_pred, p_pred, &tan)?;
-            let Some((t, p, iters)) = corrected else {
-                ds *= 0.5;
-                if ds < self.opts.min_step {
-                    break;
-                }
-                continue;
-            };
-            // Orient the new tangent with the secant.
-            let secant = Tangent {
-                dt: t.iter().zip(&cur.state).map(|(a, b)| a - b).collect(),
-                dp: p - cur.control,
-            };
-            let Some(new_tan) = self.tangent(&t, p, Some(&secant))? else {
-                ds *= 0.5;
-                if ds < self.opts.min_step {
-                    break;
-                }
-                continue;
-            };
-            if new_tan.dp.signum() != tan.dp.signum() {
-                if let Some(mut f) = self.locate_fold(&cur, &tan, ds)? {
-                    f.after_point = pts.len();
-                    folds.push(f);
-                }
-            }
-            if p < pmin || p > pmax {
-                // Land on the range end by Newton at fixed control.
-                let edge = if p < pmin { pmin } else { pmax };
-                let s = (edge - cur.control) / (p - cur.control);
-                let guess: Vec<f64> = cur.state.iter().zip(&t).map(|(a, b)| a + s * (b - a)).collect();
-                if let Some(te) = self.fixed_p(&guess, edge)? {
-                    let pt = self.point(te, edge, &new_tan)?;
-                    pts.push(pt);
-                }
-                break;
-            }
-            let pt = self.point(t, p, &new_tan)?;
-            pts.push(pt.clone());
-            cur = pt;
-            tan = new_tan;
-            ds = if iters <= 2 {
-                (ds * 1.6).min(self.opts.max_step)
-            } else if iters >= 6 {
-                ds * 0.6
-            } else {
-                ds
-            };
-        }
-        Ok((pts, folds))
+        Ok(Some((self.xt.clone(), p)))
+    }
+
+    /// Scaled distance between two states with their controls.
+    pub fn distance(&self, at: &[f64], ap: f64, bt: &[f64], bp: f64) -> f64 {
+        self.metric.dist(at, ap, bt, bp)
     }
 }
 
@@ -390,41 +884,5 @@ pub fn trace_branch(
     p: f64,
     opts: ContinuationOptions,
 ) -> Result<Branch, ContinuationError> {
-    let mut tr = Tracer::new(fam, opts);
-    tr.set_p(p)?;
-    let Some(tan) = tr.tangent(start, p, None)? else {
-        return Err(ContinuationError::Start("singular Jacobian at the start".into()));
-    };
-    let lead = tr.leading(start, p)?;
-    let first = BranchPoint {
-        control: p,
-        state: start.to_vec(),
-        dpds: tan.dp / tr.p_scale,
-        leading: lead,
-    };
-    let (down, fdown) = tr.trace_one_way(&first, -1.0)?;
-    let (up, fup) = tr.trace_one_way(&first, 1.0)?;
-    // Assemble in one arclength order: reversed "down" leg, start, "up" leg.
-    let nd = down.len();
-    let mut points: Vec<BranchPoint> = down.into_iter().rev().collect();
-    points.push(first);
-    points.extend(up);
-    let mut folds: Vec<FoldPoint> = fdown
-        .into_iter()
-        .map(|mut f| {
-            // In the down leg, fold after its point k (0 = start) lies between reversed indices.
-            f.after_point = nd - 1 - f.after_point.min(nd.saturating_sub(1));
-            f
-        })
-        .collect();
-    folds.extend(fup.into_iter().map(|mut f| {
-        f.after_point += nd;
-        f
-    }));
-    folds.sort_by_key(|f| f.after_point);
-    // Orient dp/ds along the assembled order: the down leg was traced backwards.
-    for pt in points.iter_mut().take(nd) {
-        pt.dpds = -pt.dpds;
-    }
-    Ok(Branch { points, folds })
+    Tracer::new(fam, opts).trace(start, p)
 }

@@ -20,6 +20,24 @@ enum Fast {
     Diffusivity,
 }
 
+/// Units of a control key's values, for output files.
+pub fn control_units(key: &str) -> &'static str {
+    match key {
+        "insolation.solar_constant"
+        | "forcing.constant_wm2"
+        | "longwave.a"
+        | "greenhouse.log_coefficient_wm2" => "W m-2",
+        "longwave.b" | "transport.diffusivity" | "transport.relaxation_rate" => "W m-2 K-1",
+        "greenhouse.co2_ppm" | "greenhouse.reference_co2_ppm" => "ppm",
+        "insolation.obliquity_deg" => "degree",
+        "albedo.freeze_temperature_c" => "degC",
+        "albedo.width_k" => "K",
+        "longwave.lapse_rate_k_per_km" => "K km-1",
+        "longwave.emission_height_km" => "km",
+        _ => "1",
+    }
+}
+
 /// The model family `p -> Model` for one control key.
 #[derive(Debug, Clone)]
 pub struct Controlled {
@@ -134,6 +152,61 @@ impl Controlled {
             }
         }
         Ok(())
+    }
+
+    /// Whether `heating_derivative` has a closed form for this key (otherwise callers take a
+    /// finite difference through `apply`).
+    pub fn has_analytic_derivative(&self) -> bool {
+        self.fast.is_some()
+    }
+
+    /// `dG_i/dp` (W m-2 per control unit) at `temps` for a `model` set to control value `p`,
+    /// into `out`, in closed form for the fast keys. Returns false (and leaves `out` as it was)
+    /// for keys that rebuild the model.
+    pub fn heating_derivative(&self, model: &Model, p: f64, temps: &[f64], out: &mut [f64]) -> bool {
+        let b = &self.base_model;
+        let n = temps.len();
+        match self.fast {
+            None => return false,
+            Some(Fast::SolarConstant) => {
+                // G contains (p / p0) S0_i (1 - albedo_i) times the solar scale.
+                if let Sunlight::Fixed(src) = &b.sunlight {
+                    let f = model.drivers.solar_scale / self.base_value;
+                    for i in 0..n {
+                        out[i] = f * src[i] * (1.0 - model.albedo.band(temps, i).0);
+                    }
+                } else {
+                    return false;
+                }
+            }
+            Some(Fast::SolarScale) => {
+                if let Sunlight::Fixed(s) = &model.sunlight {
+                    for i in 0..n {
+                        out[i] = s[i] * (1.0 - model.albedo.band(temps, i).0);
+                    }
+                } else {
+                    return false;
+                }
+            }
+            // The greenhouse term k ln(p / p_ref) is added to every band.
+            Some(Fast::Co2) => {
+                let (_, _, k) = self.base.spec.model.co2;
+                out.iter_mut().for_each(|o| *o = k / p);
+            }
+            Some(Fast::ConstantForcing) => out.iter_mut().for_each(|o| *o = 1.0),
+            Some(Fast::LinearA) => out.iter_mut().for_each(|o| *o = -1.0),
+            Some(Fast::LinearB) => {
+                for (o, t) in out.iter_mut().zip(temps) {
+                    *o = -(t - crate::longwave::ZERO_CELSIUS);
+                }
+            }
+            // The convergence is linear in the diffusivity scale.
+            Some(Fast::Diffusivity) => {
+                b.transport.convergence(&b.grid, temps, out);
+                out.iter_mut().for_each(|o| *o /= self.base_value);
+            }
+        }
+        true
     }
 
     fn range(&self, p: f64, allowed: &str) -> ConfigError {

@@ -95,7 +95,7 @@ pub fn newton(
             1.0
         };
         let mut accepted = false;
-        for _ in 0..40 {
+        for _ in 0..20 {
             for i in 0..n {
                 trial[i] = (y[i] + lambda * delta[i]).clamp(lo, hi);
             }

@@ -1,14 +1,22 @@
-//! Linear stability of an equilibrium: eigenvalues of `C^-1 dG/dT` in 1/year.
+//! Linear stability of an equilibrium: eigenvalues of `yr C^-1 dG/dT` in 1/year.
 //!
 //! The Jacobian is tridiagonal (plus rank one for relaxation transport). When every pair of
 //! off-diagonal entries has a non-negative product, a diagonal similarity makes the matrix
 //! symmetric (Wilkinson, The Algebraic Eigenvalue Problem, 1965, section 5.11), so all
-//! eigenvalues are real: this holds for diffusion (positive conductances) and for the `step`
-//! albedo's edge band too, because warming a neighbour moves the interpolated edge poleward and
-//! lowers the edge band's albedo, adding a positive entry. Then the leading eigenvalue is found
-//! by Sturm-sequence bisection in O(n) per step (no allocation beyond the work vectors), and the
-//! full spectrum by a symmetric eigen-solve. Otherwise (relaxation transport, or an unusual
-//! sign) a general dense eigen-solve (nalgebra's Schur form) is used and real parts reported.
+//! eigenvalues are real. This holds for diffusion (positive conductances) and for the `step`
+//! albedo's interior edge band too: warming a neighbour moves the interpolated edge poleward and
+//! lowers the edge band's albedo, adding a positive entry. It can fail only where an outermost
+//! band holds the edge (its outer half band extends the line through the two nearest centres,
+//! so warming the inner neighbour cools the extrapolated end) and with relaxation transport.
+//!
+//! Symmetric case: the leading eigenvalue is isolated by Sturm-sequence bisection and polished
+//! by Newton's method on the characteristic polynomial from above (monotone for a polynomial
+//! with real zeros), in O(n) per step without allocation; the full spectrum comes from a dense
+//! symmetric eigen-solve. Otherwise a general dense eigen-solve (nalgebra's real Schur form)
+//! gives complex eigenvalues, reported by real and imaginary part.
+//!
+//! Reference: Golub and Van Loan, Matrix Computations (4th ed.), sections 8.4.1 (Sturm
+//! sequences) and 7.5 (the QR algorithm).
 
 use crate::linalg::Tridiag;
 use crate::model::{Model, Workspace, YEAR_SECONDS};
@@ -19,63 +27,223 @@ use nalgebra::DMatrix;
 pub enum SpectrumMethod {
     /// Symmetrised tridiagonal (all eigenvalues real).
     SymmetricTridiagonal,
-    /// General dense eigen-solve (real parts of possibly complex eigenvalues).
+    /// Symmetrisable except for the coupling of one outermost band: the leading eigenvalue is
+    /// the largest zero of the secular function of the symmetric part, proven real.
+    SymmetricWithEdge,
+    /// General dense eigen-solve (possibly complex eigenvalues).
     GeneralDense,
 }
 
 impl SpectrumMethod {
-    /// Short name for files.
+    /// Short name for files and messages.
     pub fn name(self) -> &'static str {
         match self {
-            SpectrumMethod::SymmetricTridiagonal => "symmetrised tridiagonal",
-            SpectrumMethod::GeneralDense => "general dense (Schur)",
+            SpectrumMethod::SymmetricTridiagonal => "symmetric",
+            SpectrumMethod::SymmetricWithEdge => "symmetric with edge coupling",
+            SpectrumMethod::GeneralDense => "general",
+        }
+    }
+
+    /// One-line description.
+    pub fn describe(self) -> &'static str {
+        match self {
+            SpectrumMethod::SymmetricTridiagonal => {
+                "tridiagonal Jacobian symmetrised by a diagonal similarity (all eigenvalues real): \
+                 Sturm bisection and Newton for the leading one, dense symmetric solve for the rest"
+            }
+            SpectrumMethod::SymmetricWithEdge => {
+                "tridiagonal Jacobian symmetrisable except for one outermost band's coupling: \
+                 leading eigenvalue from the secular equation of the symmetric part (shown real)"
+            }
+            SpectrumMethod::GeneralDense => {
+                "Jacobian not symmetrisable (outermost edge band or relaxation transport): \
+                 general dense eigen-solve (real Schur form)"
+            }
         }
     }
 }
 
-/// The per-year Jacobian `yr C^-1 dG/dT` at a state.
-pub fn scaled_jacobian(model: &Model, t_years: f64, temps: &[f64]) -> Tridiag {
-    let n = model.len();
-    let mut ws = Workspace::new(n);
-    let mut jac = Tridiag::zeros(n);
-    model.heating_jacobian(t_years, temps, &mut ws, &mut jac);
-    // Row scaling by yr / C_i; the rank-one part scale * 1 w^T becomes scale * (yr/C) w^T, which is
-    // still rank one but no longer of the form ones * w^T when C varies: handled as dense.
-    for i in 0..n {
-        let f = YEAR_SECONDS / model.heat_capacity[i];
-        jac.diag[i] *= f;
-        jac.lower[i] *= f;
-        jac.upper[i] *= f;
-    }
-    jac
+/// Reusable buffers for the leading eigenvalue (no allocation on the symmetric path).
+#[derive(Debug, Clone)]
+pub struct Stability {
+    jac: Tridiag,
+    ws: Workspace,
+    d: Vec<f64>,
+    e2: Vec<f64>,
+    scale: Vec<f64>,
 }
 
-/// Symmetric tridiagonal form `(diag, off)` if the off-diagonal products are all >= 0.
-fn symmetrise(j: &Tridiag) -> Option<(Vec<f64>, Vec<f64>)> {
-    if j.rank_one.is_some() {
-        return None;
+impl Stability {
+    /// Buffers for `model`'s size.
+    pub fn new(model: &Model) -> Stability {
+        let n = model.len();
+        Stability {
+            jac: Tridiag::zeros(n),
+            ws: Workspace::new(n),
+            d: vec![0.0; n],
+            e2: vec![0.0; n.saturating_sub(1)],
+            scale: model.heat_capacity.iter().map(|c| YEAR_SECONDS / c).collect(),
+        }
     }
-    let n = j.len();
-    let mut off = vec![0.0; n.saturating_sub(1)];
-    for (i, o) in off.iter_mut().enumerate() {
-        let p = j.upper[i] * j.lower[i + 1];
-        if p < 0.0 {
+
+    /// Leading eigenvalue (1/year) at an equilibrium `temps` of `model`.
+    pub fn leading(&mut self, model: &Model, t_years: f64, temps: &[f64]) -> (f64, SpectrumMethod) {
+        let mut jac = std::mem::replace(&mut self.jac, Tridiag::zeros(0));
+        model.heating_jacobian(t_years, temps, &mut self.ws, &mut jac);
+        let r = self.leading_from_jacobian(model, &jac);
+        self.jac = jac;
+        r
+    }
+
+    /// Leading eigenvalue (1/year) from the heating Jacobian `jac` (W m-2 K-1) already
+    /// evaluated at the state.
+    pub fn leading_from_jacobian(&mut self, model: &Model, jac: &Tridiag) -> (f64, SpectrumMethod) {
+        if self.symmetrise(jac) {
+            (
+                largest_symmetric(&self.d, &self.e2),
+                SpectrumMethod::SymmetricTridiagonal,
+            )
+        } else if let Some(lead) = self.edge_coupled(jac) {
+            (lead, SpectrumMethod::SymmetricWithEdge)
+        } else {
+            let m = dense(model, jac);
+            let lead = m
+                .complex_eigenvalues()
+                .iter()
+                .map(|c| c.re)
+                .fold(f64::NEG_INFINITY, f64::max);
+            (lead, SpectrumMethod::GeneralDense)
+        }
+    }
+
+    /// Diagonal and squared off-diagonal of the symmetrised scaled Jacobian; false when an
+    /// off-diagonal product is negative or there is a rank-one part.
+    fn symmetrise(&mut self, j: &Tridiag) -> bool {
+        if j.rank_one.is_some() {
+            return false;
+        }
+        let n = j.len();
+        for i in 0..n {
+            self.d[i] = j.diag[i] * self.scale[i];
+        }
+        for i in 0..n.saturating_sub(1) {
+            let p = j.upper[i] * self.scale[i] * j.lower[i + 1] * self.scale[i + 1];
+            if p < 0.0 {
+                return false;
+            }
+            self.e2[i] = p;
+        }
+        true
+    }
+}
+
+impl Stability {
+    /// The leading eigenvalue when the only negative off-diagonal product couples an outermost
+    /// band, and the secular equation shows it real; `None` otherwise.
+    ///
+    /// With the negative product `c` between the last two bands, the eigenvalues are the zeros
+    /// of `f(x) = d_n - x - c r(x)` with `r = D_{n-2} / D_{n-1} = sum_k w_k / (mu_k - x)`,
+    /// `w_k >= 0`, the `mu_k` the (real) eigenvalues of the symmetric leading block. Between
+    /// consecutive poles `f` runs from -inf to +inf (n - 2 real zeros); above the largest pole it
+    /// is concave and tends to -inf at both ends. If its maximum there is positive it has two
+    /// more zeros, so all n eigenvalues are real and the larger of those two leads.
+    fn edge_coupled(&mut self, j: &Tridiag) -> Option<f64> {
+        if j.rank_one.is_some() || j.len() < 2 {
             return None;
         }
-        *o = p.sqrt();
+        let n = j.len();
+        let prod = |i: usize| j.upper[i] * self.scale[i] * j.lower[i + 1] * self.scale[i + 1];
+        let negative: Vec<usize> = (0..n - 1).filter(|&i| prod(i) < 0.0).collect();
+        if negative.len() != 1 || (negative[0] != 0 && negative[0] != n - 2) {
+            return None;
+        }
+        // Order the bands so that the negative coupling is the last one.
+        let rev = negative[0] == 0 && n > 2;
+        for k in 0..n {
+            let i = if rev { n - 1 - k } else { k };
+            self.d[k] = j.diag[i] * self.scale[i];
+        }
+        for k in 0..n - 1 {
+            let i = if rev { n - 2 - k } else { k };
+            self.e2[k] = prod(i);
+        }
+        let (d, c) = (&self.d, &self.e2);
+        let mu = if n > 2 {
+            largest_symmetric(&d[..n - 1], &c[..n - 2])
+        } else {
+            d[0]
+        };
+        // f and f' at x > mu by the pivot recurrence.
+        let f = |x: f64| -> (f64, f64) {
+            let (mut q, mut dq) = (d[0] - x, -1.0);
+            for i in 1..n {
+                let inv = 1.0 / q;
+                let r = c[i - 1] * inv;
+                let nq = d[i] - x - r;
+                dq = -1.0 + r * dq * inv;
+                q = nq;
+            }
+            (q, dq)
+        };
+        // Gershgorin upper bound (with |c| for the off-diagonals).
+        let mut hi = f64::NEG_INFINITY;
+        for i in 0..n {
+            let r = if i > 0 { c[i - 1].abs().sqrt() } else { 0.0 }
+                + if i + 1 < n { c[i].abs().sqrt() } else { 0.0 };
+            hi = hi.max(d[i] + r);
+        }
+        let span = (hi - mu).abs().max(1e-300);
+        hi += 1e-9 * span + 1e-300;
+        // Maximum of the concave f on (mu, hi]: bisection on the sign of f'.
+        let (mut a, mut b) = (mu + 1e-12 * span.max(mu.abs()), hi);
+        if f(b).1 > 0.0 {
+            return None;
+        }
+        for _ in 0..200 {
+            let m = 0.5 * (a + b);
+            if m <= a || m >= b {
+                break;
+            }
+            if f(m).1 > 0.0 {
+                a = m;
+            } else {
+                b = m;
+            }
+        }
+        let top = 0.5 * (a + b);
+        if !(f(top).0 > 0.0) {
+            return None;
+        }
+        // Larger zero: Newton from hi, monotone for a concave decreasing f.
+        let mut x = hi;
+        for _ in 0..100 {
+            let (fx, dfx) = f(x);
+            if !(fx < 0.0) || !(dfx < 0.0) {
+                break;
+            }
+            let next = x - fx / dfx;
+            if !(next < x) || next <= top {
+                break;
+            }
+            let done = x - next <= 4.0 * f64::EPSILON * x.abs();
+            x = next;
+            if done {
+                break;
+            }
+        }
+        Some(x)
     }
-    Some((j.diag.clone(), off))
 }
 
-/// Number of eigenvalues of the symmetric tridiagonal `(d, e)` below `x` (Sturm count).
-fn sturm_count(d: &[f64], e: &[f64], x: f64) -> usize {
+/// Number of eigenvalues below `x` of the symmetric tridiagonal with diagonal `d` and squared
+/// off-diagonal `e2` (Sturm count).
+fn sturm_count(d: &[f64], e2: &[f64], x: f64) -> usize {
     let mut count = 0;
     let mut q = 1.0_f64;
     for i in 0..d.len() {
-        let e2 = if i > 0 { e[i - 1] * e[i - 1] } else { 0.0 };
-        q = d[i] - x - if i > 0 { e2 / q } else { 0.0 };
+        q = d[i] - x - if i > 0 { e2[i - 1] / q } else { 0.0 };
         if q == 0.0 {
-            q = -1e-300;
+            q = -f64::MIN_POSITIVE;
         }
         if q < 0.0 {
             count += 1;
@@ -84,56 +252,213 @@ fn sturm_count(d: &[f64], e: &[f64], x: f64) -> usize {
     count
 }
 
-/// Largest eigenvalue of a symmetric tridiagonal by bisection to round-off.
-fn largest_symmetric(d: &[f64], e: &[f64]) -> f64 {
+/// `det(A - x I) / (d/dx det(A - x I))` by the pivot recurrence, or `None` when a pivot
+/// vanishes.
+fn newton_ratio(d: &[f64], e2: &[f64], x: f64) -> Option<f64> {
+    // q_i = d_i - x - e2_{i-1} / q_{i-1};  q_i' = -1 + e2_{i-1} q_{i-1}' / q_{i-1}^2;
+    // (log det)' = sum q_i' / q_i.
+    let (mut q, mut dq) = (1.0_f64, 0.0_f64);
+    let mut sum = 0.0;
+    for i in 0..d.len() {
+        let (nq, ndq) = if i > 0 {
+            let inv = 1.0 / q;
+            let r = e2[i - 1] * inv;
+            (d[i] - x - r, -1.0 + r * dq * inv)
+        } else {
+            (d[0] - x, -1.0)
+        };
+        if nq == 0.0 || !nq.is_finite() {
+            return None;
+        }
+        q = nq;
+        dq = ndq;
+        sum += dq / q;
+    }
+    Some(1.0 / sum)
+}
+
+/// Largest eigenvalue of a symmetric tridiagonal: bisection until it is isolated, then Newton
+/// from above (monotone for a real-rooted polynomial), to round-off.
+fn largest_symmetric(d: &[f64], e2: &[f64]) -> f64 {
     let n = d.len();
     // Gershgorin bounds.
     let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
     for i in 0..n {
-        let r = if i > 0 { e[i - 1].abs() } else { 0.0 } + if i + 1 < n { e[i].abs() } else { 0.0 };
+        let r = if i > 0 { e2[i - 1].sqrt() } else { 0.0 } + if i + 1 < n { e2[i].sqrt() } else { 0.0 };
         lo = lo.min(d[i] - r);
         hi = hi.max(d[i] + r);
     }
+    let width = hi - lo;
+    hi += 1e-12 * width.max(1.0);
+    lo -= 1e-12 * width.max(1.0);
+    // Isolate: exactly one eigenvalue in (lo, hi], none above hi.
     for _ in 0..200 {
         let mid = 0.5 * (lo + hi);
         if mid <= lo || mid >= hi {
-            break;
+            return 0.5 * (lo + hi);
         }
-        if sturm_count(d, e, mid) < n {
-            lo = mid;
-        } else {
+        let c = sturm_count(d, e2, mid);
+        if c == n {
             hi = mid;
+        } else {
+            lo = mid;
+            if c == n - 1 && hi - lo < 1e-3 * (1.0 + hi.abs()) {
+                break;
+            }
         }
     }
-    0.5 * (lo + hi)
+    // Newton from hi: decreases monotonically to the largest zero.
+    let mut x = hi;
+    for _ in 0..60 {
+        let Some(step) = newton_ratio(d, e2, x) else { break };
+        let next = x - step;
+        if !(next < x) || next <= lo {
+            break;
+        }
+        let done = x - next <= 4.0 * f64::EPSILON * x.abs().max(1e-300);
+        x = next;
+        if done {
+            break;
+        }
+    }
+    x
 }
 
-fn dense(model: &Model, t_years: f64, temps: &[f64]) -> DMatrix<f64> {
+/// The dense per-year Jacobian `yr C^-1 dG/dT`.
+fn dense(model: &Model, jac: &Tridiag) -> DMatrix<f64> {
     let n = model.len();
-    let mut ws = Workspace::new(n);
-    let mut jac = Tridiag::zeros(n);
-    model.heating_jacobian(t_years, temps, &mut ws, &mut jac);
     let a = jac.to_dense(&model.grid.weights);
     DMatrix::from_fn(n, n, |i, j| a[i * n + j] * YEAR_SECONDS / model.heat_capacity[i])
 }
 
 /// The leading (largest real part) eigenvalue in 1/year.
 pub fn leading_eigenvalue(model: &Model, t_years: f64, temps: &[f64]) -> (f64, SpectrumMethod) {
-    let j = scaled_jacobian(model, t_years, temps);
-    if let Some((d, e)) = symmetrise(&j) {
-        return (largest_symmetric(&d, &e), SpectrumMethod::SymmetricTridiagonal);
-    }
-    let m = dense(model, t_years, temps);
-    let ev = m.complex_eigenvalues();
-    let lead = ev.iter().map(|c| c.re).fold(f64::NEG_INFINITY, f64::max);
-    (lead, SpectrumMethod::GeneralDense)
+    Stability::new(model).leading(model, t_years, temps)
 }
 
-/// All eigenvalues (real parts), largest first, in 1/year.
-pub fn spectrum(model: &Model, t_years: f64, temps: &[f64]) -> (Vec<f64>, SpectrumMethod) {
-    let j = scaled_jacobian(model, t_years, temps);
+/// A full spectrum.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Spectrum {
+    /// Real parts, 1/year, largest first.
+    pub real: Vec<f64>,
+    /// Imaginary parts, 1/year (all zero on the symmetric path).
+    pub imag: Vec<f64>,
+    /// How it was computed.
+    pub method: SpectrumMethod,
+}
+
+/// All eigenvalues, largest real part first, in 1/year.
+pub fn spectrum(model: &Model, t_years: f64, temps: &[f64]) -> Spectrum {
     let n = model.len();
-    let (mut ev, method) = if let Some((d, e)) = symmetrise(&j) {
+    let mut st = Stability::new(model);
+    let mut ws = Workspace::new(n);
+    let mut jac = Tridiag::zeros(n);
+    model.heating_jacobian(t_years, temps, &mut ws, &mut jac);
+    let symmetric = st.symmetrise(&jac);
+    let mut pairs: Vec<(f64, f64)> = if symmetric {
+        let (d, e2) = (&st.d, &st.e2);
+        let m = DMatrix::from_fn(n, n, |r, c| {
+            if r == c {
+                d[r]
+            } else if r + 1 == c {
+                e2[r].sqrt()
+            } else if c + 1 == r {
+                e2[c].sqrt()
+            } else {
+                0.0
+            }
+        });
+        let mut ev: Vec<(f64, f64)> = m.symmetric_eigenvalues().iter().map(|v| (*v, 0.0)).collect();
+        // The dense solver's largest value to round-off of the whole matrix; the bisection's is
+        // relative to the value itself, so use it for the leading mode.
+        ev.sort_by(|a, b| b.0.total_cmp(&a.0));
+        if let Some(first) = ev.first_mut() {
+            first.0 = largest_symmetric(d, e2);
+        }
+        ev
+    } else {
+        dense(model, &jac)
+            .complex_eigenvalues()
+            .iter()
+            .map(|c| (c.re, c.im))
+            .collect()
+    };
+    let method = if symmetric {
+        SpectrumMethod::SymmetricTridiagonal
+    } else {
+        SpectrumMethod::GeneralDense
+    };
+    pairs.sort_by(|a, b| b.0.total_cmp(&a.0).then(b.1.total_cmp(&a.1)));
+    Spectrum {
+        real: pairs.iter().map(|p| p.0).collect(),
+        imag: pairs.iter().map(|p| p.1).collect(),
+        method,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn edge_coupled_leading_matches_a_dense_solve() {
+        // Reference: nalgebra's general (Schur) eigen-solver. A diffusion-like tridiagonal whose
+        // last coupling has a negative product and whose last band is strongly unstable (as at
+        // an ice edge in the polar band), and the same mirrored onto the first band.
+        let n = 30;
+        for mirrored in [false, true] {
+            let mut j = Tridiag::zeros(n);
+            for i in 0..n {
+                j.diag[i] = -2.0 - 0.05 * i as f64;
+                if i > 0 {
+                    j.lower[i] = 1.0;
+                }
+                if i + 1 < n {
+                    j.upper[i] = 0.9;
+                }
+            }
+            j.diag[n - 1] = 40.0;
+            j.lower[n - 1] = -3.0;
+            if mirrored {
+                let r = |v: &Vec<f64>| v.iter().rev().copied().collect::<Vec<f64>>();
+                let (lo, up) = (r(&j.upper), r(&j.lower));
+                j = Tridiag {
+                    lower: lo,
+                    diag: r(&j.diag),
+                    upper: up,
+                    rank_one: None,
+                };
+            }
+            let mut st = Stability {
+                jac: Tridiag::zeros(n),
+                ws: Workspace::new(n),
+                d: vec![0.0; n],
+                e2: vec![0.0; n - 1],
+                scale: vec![1.0; n],
+            };
+            assert!(!st.symmetrise(&j));
+            let got = st.edge_coupled(&j).expect("real leading eigenvalue");
+            let a = j.to_dense(&vec![0.0; n]);
+            let m = DMatrix::from_fn(n, n, |r, c| a[r * n + c]);
+            let ev = m.complex_eigenvalues();
+            let want = ev.iter().map(|c| c.re).fold(f64::NEG_INFINITY, f64::max);
+            assert!(
+                ev.iter().all(|c| c.im.abs() < 1e-9),
+                "spectrum real as the secular argument says"
+            );
+            assert!((got - want).abs() < 1e-11 * want.abs(), "{got} vs {want}");
+        }
+    }
+
+    #[test]
+    fn largest_symmetric_matches_a_dense_solve() {
+        // Reference: nalgebra's dense symmetric eigen-solver (general-purpose library).
+        let n = 40;
+        let d: Vec<f64> = (0..n)
+            .map(|i| -3.0 - (i as f64 * 0.7).sin() * 2.0 - 0.1 * i as f64)
+            .collect();
+        let e: Vec<f64> = (0..n - 1).map(|i| 0.5 + 0.4 * (i as f64 * 1.3).cos()).collect();
+        let e2: Vec<f64> = e.iter().map(|v| v * v).collect();
         let m = DMatrix::from_fn(n, n, |r, c| {
             if r == c {
                 d[r]
@@ -145,17 +470,15 @@ pub fn spectrum(model: &Model, t_years: f64, temps: &[f64]) -> (Vec<f64>, Spectr
                 0.0
             }
         });
-        (
-            m.symmetric_eigenvalues().iter().copied().collect::<Vec<f64>>(),
-            SpectrumMethod::SymmetricTridiagonal,
-        )
-    } else {
-        let m = dense(model, t_years, temps);
-        (
-            m.complex_eigenvalues().iter().map(|c| c.re).collect(),
-            SpectrumMethod::GeneralDense,
-        )
-    };
-    ev.sort_by(|a, b| b.total_cmp(a));
-    (ev, method)
+        let want = m
+            .symmetric_eigenvalues()
+            .iter()
+            .copied()
+            .fold(f64::NEG_INFINITY, f64::max);
+        let got = largest_symmetric(&d, &e2);
+        // Both are backward stable: agreement to a few ulps of the matrix norm (~5).
+        assert!((got - want).abs() < 1e-13 * 5.0, "{got} vs {want}");
+        assert_eq!(sturm_count(&d, &e2, got + 1e-9), n);
+        assert_eq!(sturm_count(&d, &e2, got - 1e-9), n - 1);
+    }
 }

@@ -34,14 +34,14 @@ pub fn pictures(file: &Path, out_dir: &Path) -> Result<Vec<PathBuf>, Error> {
         .unwrap_or_else(|| "icefold".into());
     let kind = r.attr_str("icefold_kind")?.unwrap_or_default();
     let full_title = r.attr_str("title")?.unwrap_or_default();
-    // Figure titles: the part before a colon, at most 70 characters.
-    let title: String = full_title
-        .split(':')
-        .next()
-        .unwrap_or("")
-        .chars()
-        .take(70)
-        .collect();
+    // Figure titles: the part before a colon, cut at a word boundary near 65 characters.
+    let head = full_title.split(':').next().unwrap_or("");
+    let title = if head.chars().count() <= 65 {
+        head.to_string()
+    } else {
+        let cut: String = head.chars().take(65).collect();
+        format!("{}…", cut.rsplit_once(' ').map(|(a, _)| a).unwrap_or(&cut))
+    };
     let mut written = Vec::new();
     let mut save = |suffix: &str, svg: String| -> Result<(), Error> {
         let (a, b) =
@@ -62,9 +62,15 @@ pub fn pictures(file: &Path, out_dir: &Path) -> Result<Vec<PathBuf>, Error> {
                 plot::figure_svg(&run_profile(&r, &title)?).map_err(plot_err)?,
             )?;
         }
+        "branches" | "sweep" => {
+            save(
+                "hysteresis",
+                plot::figure_svg(&hysteresis(&r, &title, &kind)?).map_err(plot_err)?,
+            )?;
+        }
         other => {
             return Err(Error::Usage(format!(
-                "{}: no pictures for file kind `{other}` (known: run)",
+                "{}: no pictures for file kind `{other}` (known: run, sweep, branches)",
                 file.display()
             )))
         }
@@ -89,7 +95,7 @@ fn run_timeseries(r: &NcReader, title: &str) -> Result<Figure, Error> {
         edge.series
             .push(Series::new(t.clone(), south, Stroke::Dashed, 2).labelled("southern ice edge (°S)"));
     }
-    edge.y_range = Some((0.0, 90.0));
+    edge.y_range = Some((-4.0, 94.0));
     let mut budget = Panel::new("Time (year)", "Forcing and imbalance (W m⁻²)");
     budget.series.push(
         Series::new(t.clone(), read(r, "toa_imbalance")?, Stroke::Solid, 0)
@@ -193,5 +199,145 @@ fn run_profile(r: &NcReader, title: &str) -> Result<Figure, Error> {
         panels: vec![temp, flux],
         width_px: 1200,
         height_px: 900,
+    })
+}
+
+/// A short axis name for a control key.
+fn control_label(key: &str) -> String {
+    match key {
+        "insolation.solar_constant" => "Solar constant S0 (W m⁻²)".into(),
+        "greenhouse.co2_ppm" => "CO2 (ppm)".into(),
+        "forcing.constant_wm2" => "Additive forcing (W m⁻²)".into(),
+        "forcing.solar_scale" => "Solar scale".into(),
+        "transport.diffusivity" => "Diffusivity D (W m⁻² K⁻¹)".into(),
+        other => other.to_string(),
+    }
+}
+
+/// Contiguous runs of points with the same branch and stability, as solid (stable) or dashed
+/// (unstable) series.
+fn branch_series(
+    control: &[f64],
+    y: &[f64],
+    stable: &[f64],
+    branch: &[f64],
+    labelled: &mut [bool; 2],
+) -> Vec<Series> {
+    let mut out = Vec::new();
+    let mut start = 0;
+    for k in 1..=control.len() {
+        let cut = k == control.len() || stable[k] != stable[start] || branch[k] != branch[start];
+        if cut {
+            // Overlap one point so runs join up at stability changes.
+            let end = if k < control.len() && branch[k] == branch[start] {
+                k + 1
+            } else {
+                k
+            };
+            let is_stable = stable[start] > 0.5;
+            let mut s = Series::new(
+                control[start..end].to_vec(),
+                y[start..end].to_vec(),
+                if is_stable { Stroke::Solid } else { Stroke::Dashed },
+                if is_stable { 0 } else { 1 },
+            );
+            let slot = usize::from(!is_stable);
+            if !labelled[slot] {
+                s = s.labelled(if is_stable {
+                    "stable equilibria"
+                } else {
+                    "unstable equilibria"
+                });
+                labelled[slot] = true;
+            }
+            out.push(s);
+            start = k;
+        }
+    }
+    out
+}
+
+fn hysteresis(r: &NcReader, title: &str, kind: &str) -> Result<Figure, Error> {
+    let key = r.attr_str("control_key")?.unwrap_or_else(|| "control".into());
+    let xl = control_label(&key);
+    let control = read(r, "control")?;
+    let edge = read(r, "ice_edge_latitude_north")?;
+    let gm = read(r, "global_mean_temperature")?;
+    let mut p_edge = Panel::new(xl.clone(), "Ice edge (°N)");
+    let mut p_temp = Panel::new(xl, "Global mean (K)");
+    // A little room beyond 0 and 90 so ice-free and snowball states are not hidden by the frame.
+    p_edge.y_range = Some((-4.0, 94.0));
+    let fmt = |v: f64| {
+        if v.abs() >= 100.0 {
+            format!("{v:.1}")
+        } else {
+            format!("{v:.3}")
+        }
+    };
+    if kind == "branches" {
+        let stable = read(r, "stable")?;
+        let branch = read(r, "branch")?;
+        let mut lab = [false; 2];
+        p_edge.series = branch_series(&control, &edge, &stable, &branch, &mut lab);
+        let mut lab = [false; 2];
+        p_temp.series = branch_series(&control, &gm, &stable, &branch, &mut lab);
+        let fc = read(r, "fold_control")?;
+        let fe = read(r, "fold_ice_edge_latitude_north")?;
+        let fg = read(r, "fold_global_mean_temperature")?;
+        for k in 0..fc.len() {
+            let text = format!("fold {}", fmt(fc[k]));
+            p_edge.markers.push(plot::Marker {
+                x: fc[k],
+                y: fe[k],
+                text: text.clone(),
+            });
+            p_temp.markers.push(plot::Marker {
+                x: fc[k],
+                y: fg[k],
+                text,
+            });
+        }
+    } else {
+        let dir = read(r, "direction")?;
+        for (sign, stroke, colour, label) in [
+            (1.0, Stroke::ArrowsUp, 2, "sweep, control rising"),
+            (-1.0, Stroke::ArrowsDown, 3, "sweep, control falling"),
+        ] {
+            let pick = |v: &[f64]| -> Vec<f64> {
+                v.iter()
+                    .zip(&dir)
+                    .filter(|(_, d)| **d == sign)
+                    .map(|(x, _)| *x)
+                    .collect()
+            };
+            p_edge
+                .series
+                .push(Series::new(pick(&control), pick(&edge), stroke, colour).labelled(label));
+            p_temp
+                .series
+                .push(Series::new(pick(&control), pick(&gm), stroke, colour).labelled(label));
+        }
+        let tc = read(r, "tipping_control")?;
+        let tb = read(r, "tipping_ice_edge_before")?;
+        let tg = read(r, "tipping_global_mean_before")?;
+        for k in 0..tc.len() {
+            let text = format!("tips at {}", fmt(tc[k]));
+            p_edge.markers.push(plot::Marker {
+                x: tc[k],
+                y: tb[k],
+                text: text.clone(),
+            });
+            p_temp.markers.push(plot::Marker {
+                x: tc[k],
+                y: tg[k],
+                text,
+            });
+        }
+    }
+    Ok(Figure {
+        title: title.to_string(),
+        panels: vec![p_edge, p_temp],
+        width_px: 1200,
+        height_px: 1100,
     })
 }

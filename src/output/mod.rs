@@ -35,10 +35,13 @@
 //! # }
 //! ```
 
+pub mod branches_file;
 pub mod common;
 pub mod ensemble_file;
+pub mod equilibrium_file;
 mod reader;
 pub mod run_file;
+pub mod sweep_file;
 mod writer;
 
 pub use reader::NcReader;

@@ -167,7 +167,8 @@ def test_annual_mean_p2_coefficient(obliquity):
 
 def test_ice_fraction_sub_band_rule():
     # Source: docs/discrete-model.md, `step` albedo (piecewise-linear interpolant through the
-    # centres, constant on outer half bands, strict inequality). Cases worked by hand.
+    # centres, outer half bands on the line through the two nearest centres, strict inequality).
+    # Cases worked by hand.
     g = d.make_grid("hemisphere", 4, "equal_area")  # faces 0, .25, .5, .75, 1
     tf = 263.15
     # T linear in x through the centres: T = tf + 40 (0.6 - x) crosses tf at x = 0.6. The
@@ -176,10 +177,14 @@ def test_ice_fraction_sub_band_rule():
     f = d.ice_fraction(g, t, tf)
     np.testing.assert_allclose(f, [0.0, 0.0, (0.75 - 0.6) / 0.25, 1.0], atol=1e-14)
     assert abs(d.ice_measure(g, t, tf, 0.0, 1.0) - 0.4) < 1e-14
-    # Outer half band is constant: crossing at x = 0.9 lies in band 3's outer half [0.875, 1]
-    # only if T_3 < tf; here T_3 = tf + 40 (0.9 - 0.875) > tf, so no ice at all.
+    # Outer half band extends the line: the crossing at x = 0.9 lies in band 3's outer half
+    # [0.875, 1], so ice covers [0.9, 1]: fraction 0.1 / 0.25 = 0.4 of band 3, even though
+    # T_3 = tf + 40 (0.9 - 0.875) is above freezing (continuity as the pole band crosses tf).
     t = tf + 40.0 * (0.9 - g.x_c)
-    assert np.all(d.ice_fraction(g, t, tf) == 0.0)
+    np.testing.assert_allclose(d.ice_fraction(g, t, tf), [0.0, 0.0, 0.0, 0.4], atol=1e-14)
+    # The same line at the equator end: crossing at x = 0.05 in band 0's outer half [0, 0.125].
+    t = tf + 40.0 * (g.x_c - 0.05)
+    np.testing.assert_allclose(d.ice_fraction(g, t, tf), [0.05 / 0.25, 0.0, 0.0, 0.0], atol=1e-14)
     # Strict inequality: T exactly at tf is not ice.
     assert np.all(d.ice_fraction(g, np.full(4, tf), tf) == 0.0)
     assert np.all(d.ice_fraction(g, np.full(4, tf - 1e-9), tf) == 1.0)

@@ -307,6 +307,10 @@ def _half_bands(grid: Grid, t: np.ndarray):
         slope = np.diff(t) / np.diff(xc)  # between centres i and i+1
         right_face[:-1] = t[:-1] + slope * (xf[1:-1] - xc[:-1])
         left_face[1:] = t[1:] + slope * (xf[1:-1] - xc[1:])
+        # Outer half bands extend the line through the two nearest centres
+        # (docs/discrete-model.md).
+        left_face[0] = t[0] + slope[0] * (xf[0] - xc[0])
+        right_face[-1] = t[-1] + slope[-1] * (xf[-1] - xc[-1])
     p = np.empty(2 * n)
     q = np.empty(2 * n)
     a = np.empty(2 * n)
@@ -378,6 +382,7 @@ class Model:
     heat_capacity: np.ndarray  # C_i, J m-2 K-1
     t0: float  # initial temperature, K
     forcing: float = 0.0  # F, W m-2 (constant; forcing histories are not modelled here)
+    t0_p2: float = 0.0  # initial P2(x) part, K (initial.temperature_p2_k, at band centres)
 
     # -- pieces --------------------------------------------------------------------------
     def albedo(self, t: np.ndarray) -> np.ndarray:
@@ -550,8 +555,9 @@ def model_from_config(cfg: dict) -> Model:
         raise ConfigError("forcing histories are not modelled by the reference")
 
     t0 = float(_get(cfg, "initial.temperature_c", required=True)) + KELVIN
+    t0_p2 = float(_get(cfg, "initial.temperature_p2_k", 0.0))
     return Model(grid, sol, akind, af, ai, tf, width, lkind, lp, co2_term, tkind, k_faces,
-                 gamma, heat_capacity, t0)
+                 gamma, heat_capacity, t0, t0_p2=t0_p2)
 
 
 def output_times(cfg: dict) -> np.ndarray:
@@ -587,7 +593,9 @@ def integrate(cfg: dict, t_out_years=None, method: str = "Radau", rtol: float = 
     """
     model = model_from_config(cfg)
     times = output_times(cfg) if t_out_years is None else np.asarray(t_out_years, dtype=float)
-    y0 = np.full(model.grid.n, model.t0) if t_init is None else np.asarray(t_init, dtype=float)
+    x = model.grid.x_c
+    start = model.t0 + model.t0_p2 * 0.5 * (3.0 * x * x - 1.0)
+    y0 = start if t_init is None else np.asarray(t_init, dtype=float)
     if times[-1] > times[0]:
         sol = solve_ivp(model.tendency, (times[0], times[-1]), y0, method=method,
                         t_eval=times, rtol=rtol, atol=atol, jac_sparsity=model.jac_sparsity())
