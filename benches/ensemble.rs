@@ -7,7 +7,7 @@
 //!   (`ensemble_to_file`); the 1-to-2-thread speed-up is the ratio of the two medians.
 //! - `seasonal_30yr_globe_90`: configs/seasonal-globe.toml (30 years, globe, 90 bands, smooth
 //!   albedo, seasonal insolation, monthly records) integrated without a file, and with it.
-//! - `run_diagnostics_classic_90`: the doubled-CO2 equilibria written into every run file.
+//! - `run_diagnostics_classic_90`: the doubled-CO2 equilibria of `equilibrium.sensitivity`.
 //! - `seasonal_table`: one evaluation of the orbit table at 90 bands (a Kepler solve and the
 //!   band interpolation) against the exact antiderivative at every band.
 
@@ -115,9 +115,9 @@ fn seasonal(c: &mut Criterion) {
 }
 
 fn diagnostics(c: &mut Criterion) {
-    // The doubled-CO2 sensitivity every run file gets (4 equilibria), on the classic 90-band
+    // The doubled-CO2 sensitivity of `equilibrium.sensitivity = true` (4 equilibria), on the 90-band
     // step-albedo hemisphere.
-    let cfg = load("classic-step-albedo.toml", &[]);
+    let cfg = load("classic-step-albedo.toml", &["equilibrium.sensitivity=true"]);
     let model = Model::from_spec(&cfg.spec.model);
     let y0 = model.initial_state(&cfg.spec.initial);
     c.bench_function("run_diagnostics_classic_90", |b| {

@@ -336,7 +336,17 @@ fn gregory_regression_and_sensitivity_of_a_linear_model_without_ice() {
     }
     // The same numbers in a run file's attributes, shown by `inspect`.
     let run = dir.join("run.nc");
-    ok(&["run", cfg.to_str().unwrap(), "-o", run.to_str().unwrap()], &[]);
+    ok(
+        &[
+            "run",
+            cfg.to_str().unwrap(),
+            "-o",
+            run.to_str().unwrap(),
+            "--set",
+            "equilibrium.sensitivity=true",
+        ],
+        &[],
+    );
     let r = NcReader::open(&run).unwrap();
     let g = r.attr_f64("gregory_feedback_wm2_per_k").unwrap().unwrap();
     assert!((g / -2.09 - 1.0).abs() < 1e-6, "{g}");
@@ -381,6 +391,8 @@ fn ice_edge_sensitivity_is_the_derivative_of_the_equilibrium_edge() {
                 "--overwrite",
                 "--set",
                 "time.years=1",
+                "--set",
+                "equilibrium.sensitivity=true",
                 "--set",
                 &format!("forcing.constant_wm2={f}"),
             ],

@@ -311,6 +311,8 @@ pub struct RawEquilibrium {
     pub tolerance_wm2: Option<f64>,
     /// Newton iteration limit.
     pub max_iterations: Option<i64>,
+    /// Also write the doubled-CO2 equilibrium sensitivity into run files.
+    pub sensitivity: Option<bool>,
 }
 
 /// `[sweep]`.

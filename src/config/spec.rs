@@ -173,6 +173,8 @@ pub struct EquilibriumSpec {
     pub tolerance_wm2: f64,
     /// Iteration limit.
     pub max_iterations: usize,
+    /// Write the doubled-CO2 sensitivity into run files.
+    pub sensitivity: bool,
 }
 
 /// `[sweep]`, validated.

@@ -661,6 +661,7 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
     let equilibrium = EquilibriumSpec {
         tolerance_wm2: eq_tol,
         max_iterations: eq_it as usize,
+        sensitivity: *e.sensitivity.get_or_insert(false),
     };
 
     // [sweep]

@@ -276,7 +276,12 @@ pub fn write(
                 &s.ice_edge_per_wm2,
             ),
         ] {
-            w.add_variable_f64(name, &["member"], &attrs(units, long, None))?;
+            let mut a = attrs(units, long, None);
+            a.push((
+                "comment",
+                Attr::from("NaN where not computed: seasonal insolation (the steady climate is a cycle) or no equilibrium found"),
+            ));
+            w.add_variable_f64(name, &["member"], &a)?;
             w.write_f64(name, values)?;
         }
     }
