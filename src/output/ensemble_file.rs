@@ -134,30 +134,7 @@ pub fn write(
         time_attrs.push(("bounds", Attr::from("time_bnds")));
     }
     w.add_coordinate("time", &data.time, &time_attrs)?;
-    w.add_coordinate(
-        "lat",
-        &data.lat,
-        &[
-            ("units", Attr::from("degrees_north")),
-            ("standard_name", Attr::from("latitude")),
-            ("long_name", Attr::from("latitude of band centre")),
-            ("axis", Attr::from("Y")),
-            ("bounds", Attr::from("lat_bnds")),
-        ],
-    )?;
-    w.add_dimension("bnds", 2)?;
-    w.add_variable_f64(
-        "lat_bnds",
-        &["lat", "bnds"],
-        &[("units", Attr::from("degrees_north"))],
-    )?;
-    w.write_f64("lat_bnds", &data.lat_bnds)?;
-    w.add_variable_f64(
-        "area_weight",
-        &["lat"],
-        &attrs("1", "fraction of the model domain's area in each band", None),
-    )?;
-    w.write_f64("area_weight", &data.area_weight)?;
+    super::common::write_latitude_values(&mut w, &data.lat, &data.lat_bnds, &data.area_weight)?;
     if data.annual_means {
         w.add_variable_f64(
             "time_bnds",
