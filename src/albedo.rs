@@ -270,7 +270,7 @@ mod tests {
             for i in 0..12 {
                 let (_, d) = alb.band(&t, i);
                 for (k, j) in [(0usize, i as isize - 1), (1, i as isize), (2, i as isize + 1)] {
-                    if j < 0 || j >= 12 {
+                    if !(0..12).contains(&j) {
                         continue;
                     }
                     let h = 1e-6;

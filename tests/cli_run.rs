@@ -112,7 +112,7 @@ fn demo_writes_its_file_and_pictures() {
     let r = NcReader::open(&dir.join("kessra-run.nc")).unwrap();
     let edge = r.read_f64("ice_edge_latitude_north").unwrap();
     // The scenario passes through a snowball (edge 0) and ends ice free (edge 90).
-    assert!(edge.iter().any(|e| *e == 0.0));
+    assert!(edge.contains(&0.0));
     assert_eq!(*edge.last().unwrap(), 90.0);
     for pic in ["timeseries", "map", "profile"] {
         let svg = std::fs::read_to_string(dir.join(format!("kessra-run-{pic}.svg"))).unwrap();
