@@ -259,14 +259,31 @@ impl Model {
         for i in 0..n {
             let (alb, da) = self.albedo.band(temps, i);
             let (olr, dolr) = self.longwave.eval(temps[i]);
+            let (olr, dolr) = d.olr(olr, dolr, temps[i]);
             let s = d.solar_scale * sun[i];
-            out[i] = s * (1.0 - alb) - (olr - d.greenhouse_wm2) + conv[i] + d.extra_wm2;
+            out[i] = s * (1.0 - alb) - (olr - d.greenhouse_wm2) + d.transport_scale * conv[i] + d.extra_wm2;
             jac.diag[i] = -s * da[1] - dolr;
             jac.lower[i] = if i > 0 { -s * da[0] } else { 0.0 };
             jac.upper[i] = if i + 1 < n { -s * da[2] } else { 0.0 };
         }
         ws.conv = conv;
-        self.transport.add_jacobian(jac);
+        // A time-varying transport factor f scales only the transport part: (J/f + T) f.
+        let f = d.transport_scale;
+        if f == 1.0 {
+            self.transport.add_jacobian(jac);
+        } else if f != 0.0 {
+            let scale = |jac: &mut Tridiag, by: f64| {
+                jac.diag
+                    .iter_mut()
+                    .chain(jac.lower.iter_mut())
+                    .chain(jac.upper.iter_mut())
+                    .for_each(|v| *v *= by);
+                jac.rank_one = jac.rank_one.map(|r| r * by);
+            };
+            scale(jac, 1.0 / f);
+            self.transport.add_jacobian(jac);
+            scale(jac, f);
+        }
     }
 
     /// The parts of the net heating at a state.

@@ -135,6 +135,7 @@ fn results_are_identical_on_one_and_two_threads() {
     let g = r.read_f64("global_mean_temperature").unwrap();
     let finals: Vec<f64> = g.chunks(31).map(|c| c[30]).collect();
     assert!(finals.iter().any(|f| (f - finals[0]).abs() > 0.1), "{finals:?}");
+    let _ = std::fs::remove_dir_all(&dir);
 }
 
 #[test]
@@ -234,6 +235,7 @@ fn merged_shards_are_the_single_run_value_for_value() {
     ] {
         assert!(text.contains(line), "no `{line}` in\n{text}");
     }
+    let _ = std::fs::remove_dir_all(&dir);
 }
 
 #[test]
@@ -292,6 +294,7 @@ fn samples_form_a_latin_hypercube_of_each_distribution() {
             .as_deref(),
         Some("albedo.ice")
     );
+    let _ = std::fs::remove_dir_all(&dir);
 }
 
 #[test]
@@ -369,6 +372,7 @@ fn gregory_regression_and_sensitivity_of_a_linear_model_without_ice() {
         text.contains("2xCO2:      equilibrium warming 1.7743 K"),
         "{text}"
     );
+    let _ = std::fs::remove_dir_all(&dir);
 }
 
 #[test]
@@ -409,6 +413,7 @@ fn ice_edge_sensitivity_is_the_derivative_of_the_equilibrium_edge() {
     );
     let base = edge(0.0, "ice_edge_base_deg");
     assert!(base > 65.0 && base < 80.0, "{base}");
+    let _ = std::fs::remove_dir_all(&dir);
 }
 
 #[test]
@@ -459,4 +464,5 @@ fn bad_ensemble_input_exits_2() {
         assert!(err.contains(fragment), "{what}: no `{fragment}` in {err}");
         assert!(!out.exists(), "{what}");
     }
+    let _ = std::fs::remove_dir_all(&dir);
 }

@@ -87,6 +87,7 @@ fn linear_and_step_interpolation_and_holding_the_end_values() {
         e.contains("co2.csv") && e.contains("covers years 0 to 20") && e.contains("forcing.outside"),
         "{e}"
     );
+    let _ = std::fs::remove_dir_all(&dir);
 }
 
 #[test]
@@ -131,6 +132,7 @@ fn analytic_pieces_combine_with_the_csv_and_are_written() {
             extra[k]
         );
     }
+    let _ = std::fs::remove_dir_all(&dir);
 }
 
 #[test]
@@ -198,6 +200,7 @@ fn time_varying_parameters_change_the_model_exactly() {
             "{key}: the step must change the climate (by {change} K)"
         );
     }
+    let _ = std::fs::remove_dir_all(&dir);
 }
 
 #[test]
@@ -216,6 +219,7 @@ fn csv_columns_may_be_dotted_keys() {
         assert!((d[k] - (0.5 + 0.1 * k as f64)).abs() < 1e-12);
         assert!((b[k] - (2.0 + 0.05 * k as f64)).abs() < 1e-12);
     }
+    let _ = std::fs::remove_dir_all(&dir);
 }
 
 /// Run the binary; returns (exit code, stderr).
@@ -333,4 +337,5 @@ fn bad_forcing_files_exit_2_naming_the_file_and_line() {
         err.contains("greenhouse.co2_ppm") && err.contains("above 0"),
         "{err}"
     );
+    let _ = std::fs::remove_dir_all(&dir);
 }
