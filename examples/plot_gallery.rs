@@ -8,8 +8,8 @@
 use std::path::PathBuf;
 
 use icefold::plot::{
-    figure_svg, heatmap_svg, save_svg_and_png, Band, Figure, HeatMap, Marker, Panel, PlotError,
-    Series, Stroke,
+    figure_svg, heatmap_svg, save_svg_and_png, Band, Figure, HeatMap, Marker, Panel, PlotError, Series,
+    Stroke,
 };
 
 fn hysteresis() -> Result<String, PlotError> {

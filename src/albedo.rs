@@ -78,28 +78,28 @@ fn half_bands(grid: &Grid) -> (Vec<(f64, f64)>, Vec<(f64, f64)>) {
 /// Cold length (where T < `tf`) of the half band of length `h` that starts at a band centre with
 /// temperature `ti` and points toward a neighbour centre at distance `l` with temperature `tj`
 /// (`l = 0`: no neighbour, T constant). Returns the length and its derivatives by `ti`, `tj`.
-#[inline]
+#[inline(always)]
 fn half_cold(ti: f64, tj: f64, h: f64, l: f64, tf: f64) -> (f64, f64, f64) {
     let cold_i = ti < tf;
-    if l == 0.0 {
+    // The far end's value lies between ti and tj (h <= l), so equal sides decide without
+    // computing it: the common case, away from the ice edge.
+    if l == 0.0 || cold_i == (tj < tf) {
         return (if cold_i { h } else { 0.0 }, 0.0, 0.0);
     }
     let te = ti + (tj - ti) * h / l;
     let cold_e = te < tf;
-    match (cold_i, cold_e) {
-        (true, true) => (h, 0.0, 0.0),
-        (false, false) => (0.0, 0.0, 0.0),
-        _ => {
-            let d = tj - ti;
-            let s = l * (tf - ti) / d;
-            let ds_i = l * (tf - tj) / (d * d);
-            let ds_j = -l * (tf - ti) / (d * d);
-            if cold_i {
-                (s, ds_i, ds_j)
-            } else {
-                (h - s, -ds_i, -ds_j)
-            }
-        }
+    if cold_i == cold_e {
+        return (if cold_i { h } else { 0.0 }, 0.0, 0.0);
+    }
+    let d = tj - ti;
+    let inv = 1.0 / (d * d);
+    let s = l * (tf - ti) * d * inv;
+    let ds_i = l * (tf - tj) * inv;
+    let ds_j = -l * (tf - ti) * inv;
+    if cold_i {
+        (s, ds_i, ds_j)
+    } else {
+        (h - s, -ds_i, -ds_j)
     }
 }
 
@@ -129,7 +129,7 @@ impl Albedo {
 
     /// Ice fraction of band `i` (0..1) under the sub-band interpolation rule, with its
     /// derivatives by `T_{i-1}`, `T_i`, `T_{i+1}` (per K).
-    #[inline]
+    #[inline(always)]
     pub fn ice_fraction(&self, temps: &[f64], i: usize) -> (f64, [f64; 3]) {
         let n = temps.len();
         let ti = temps[i];
@@ -166,7 +166,7 @@ impl Albedo {
     }
 
     /// Albedo of band `i` and its derivatives by `T_{i-1}`, `T_i`, `T_{i+1}` (per K).
-    #[inline]
+    #[inline(always)]
     pub fn band(&self, temps: &[f64], i: usize) -> (f64, [f64; 3]) {
         let af = self.ice_free[i];
         let ai = self.ice;
@@ -270,7 +270,7 @@ mod tests {
             for i in 0..12 {
                 let (_, d) = alb.band(&t, i);
                 for (k, j) in [(0usize, i as isize - 1), (1, i as isize), (2, i as isize + 1)] {
-                    if j < 0 || j >= 12 {
+                    if !(0..12).contains(&j) {
                         continue;
                     }
                     let h = 1e-6;

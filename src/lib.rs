@@ -7,15 +7,23 @@
 //! and `equilibrium` solve; `jobs` put a model, a solver and an `output` file together for the
 //! commands in `cli`. Physics modules are pure functions over slices and do no I/O.
 
+// Numerical loops index several band arrays in step, as the discrete equations do.
+#![allow(clippy::needless_range_loop)]
+// `!(x > 0.0)` is used on purpose where NaN must fail a check.
+#![allow(clippy::neg_cmp_op_on_partial_ord)]
+#![allow(clippy::type_complexity, clippy::too_many_arguments)]
+
 pub mod albedo;
 pub mod cli;
 pub mod config;
+pub mod ensemble;
 pub mod equilibrium;
 pub mod error;
 pub mod forcing;
 pub mod grid;
 pub mod insolation;
 pub mod integrate;
+pub mod interpolation;
 pub mod jobs;
 pub mod linalg;
 pub mod longwave;

@@ -52,19 +52,14 @@ impl OlrTable {
         let k = x.partition_point(|&v| v <= t) - 1;
         let h = x[k + 1] - x[k];
         let s = (t - x[k]) / h;
-        let (y0, y1, d0, d1) = (self.olr[k], self.olr[k + 1], self.slopes[k], self.slopes[k + 1]);
-        // Cubic Hermite basis.
-        let s2 = s * s;
-        let s3 = s2 * s;
-        let h00 = 2.0 * s3 - 3.0 * s2 + 1.0;
-        let h10 = s3 - 2.0 * s2 + s;
-        let h01 = -2.0 * s3 + 3.0 * s2;
-        let h11 = s3 - s2;
-        let v = h00 * y0 + h10 * h * d0 + h01 * y1 + h11 * h * d1;
-        let dv = ((6.0 * s2 - 6.0 * s) * (y0 - y1)) / h
-            + (3.0 * s2 - 4.0 * s + 1.0) * d0
-            + (3.0 * s2 - 2.0 * s) * d1;
-        (v, dv)
+        crate::interpolation::hermite(
+            self.olr[k],
+            self.olr[k + 1],
+            self.slopes[k],
+            self.slopes[k + 1],
+            h,
+            s,
+        )
     }
 }
 
@@ -130,7 +125,7 @@ pub enum Longwave {
 
 impl Longwave {
     /// OLR (W m-2) and dOLR/dT (W m-2 K-1) at surface temperature `t` (K).
-    #[inline]
+    #[inline(always)]
     pub fn eval(&self, t: f64) -> (f64, f64) {
         match self {
             Longwave::Linear { a, b } => (a + b * (t - ZERO_CELSIUS), *b),

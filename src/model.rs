@@ -7,7 +7,7 @@
 
 use crate::albedo::Albedo;
 use crate::grid::Grid;
-use crate::insolation::{self, ClusteredRuleCache};
+use crate::insolation::{self, SeasonalTable};
 use crate::linalg::Tridiag;
 use crate::longwave::Longwave;
 use crate::transport::Transport;
@@ -20,19 +20,8 @@ pub const YEAR_SECONDS: f64 = 365.25 * 86400.0;
 pub enum Sunlight {
     /// Fixed in time: band means in W m-2 for `solar_scale = 1`.
     Fixed(Vec<f64>),
-    /// Daily mean at the model time (seasonal cycle).
-    Seasonal {
-        /// Solar constant, W m-2.
-        s0: f64,
-        /// Obliquity, radians.
-        obliquity: f64,
-        /// Eccentricity.
-        eccentricity: f64,
-        /// True longitude of perihelion from the northern spring equinox, radians.
-        perihelion: f64,
-        /// Quadrature rule for the band means.
-        rule: ClusteredRuleCache,
-    },
+    /// Daily mean at the model time (seasonal cycle), from a table over the orbit.
+    Seasonal(std::sync::Arc<SeasonalTable>),
 }
 
 /// Time-dependent drivers at one instant.
@@ -44,12 +33,54 @@ pub struct Drivers {
     pub greenhouse_wm2: f64,
     /// Additive forcing, W m-2.
     pub extra_wm2: f64,
+    /// Multiplies the OLR (1 = as configured; a time-varying emissivity).
+    pub olr_scale: f64,
+    /// Added to the OLR, W m-2 (a time-varying `longwave.a`).
+    pub olr_offset_wm2: f64,
+    /// Added OLR slope, W m-2 K-1, times `T - 273.15 K` (a time-varying `longwave.b`).
+    pub olr_slope_wm2_per_k: f64,
+    /// Multiplies the transport (1 = as configured; a time-varying diffusivity or rate).
+    pub transport_scale: f64,
+}
+
+impl Drivers {
+    /// Drivers with the three configured values and every parameter override neutral.
+    pub fn plain(solar_scale: f64, greenhouse_wm2: f64, extra_wm2: f64) -> Drivers {
+        Drivers {
+            solar_scale,
+            greenhouse_wm2,
+            extra_wm2,
+            olr_scale: 1.0,
+            olr_offset_wm2: 0.0,
+            olr_slope_wm2_per_k: 0.0,
+            transport_scale: 1.0,
+        }
+    }
+
+    /// Effective OLR (W m-2, before the greenhouse forcing) and its derivative (W m-2 K-1) from
+    /// the model's OLR and derivative at `t_k` (K).
+    #[inline]
+    pub fn olr(&self, olr: f64, dolr: f64, t_k: f64) -> (f64, f64) {
+        (
+            self.olr_scale * olr
+                + self.olr_offset_wm2
+                + self.olr_slope_wm2_per_k * (t_k - crate::longwave::ZERO_CELSIUS),
+            self.olr_scale * dolr + self.olr_slope_wm2_per_k,
+        )
+    }
 }
 
 /// Supplies the drivers at a model time (years). The constant case is `Drivers` itself.
 pub trait DriverSource: Send + Sync + std::fmt::Debug {
     /// Drivers at `t_years`.
     fn at(&self, t_years: f64) -> Drivers;
+    /// Dotted config keys this source varies in time besides the three drivers (written to
+    /// run files as applied parameters).
+    fn parameter_keys(&self) -> Vec<String> {
+        Vec::new()
+    }
+    /// Values of `parameter_keys` at `t_years`, in the same order, into `out`.
+    fn parameter_values(&self, _t_years: f64, _out: &mut [f64]) {}
 }
 
 /// The model.
@@ -130,17 +161,9 @@ impl Model {
     /// Insolation (W m-2, before `solar_scale`) at a model time, cached in `ws`.
     #[inline]
     fn refresh_sun(&self, t_years: f64, ws: &mut Workspace) {
-        if let Sunlight::Seasonal {
-            s0,
-            obliquity,
-            eccentricity,
-            perihelion,
-            rule,
-        } = &self.sunlight
-        {
+        if let Sunlight::Seasonal(table) = &self.sunlight {
             if ws.sun_time != t_years {
-                let at = insolation::orbit_at(t_years, *obliquity, *eccentricity, *perihelion);
-                insolation::daily_mean_bands(&self.grid, rule.rule(), *s0, at, &mut ws.sun);
+                table.eval(t_years, &mut ws.sun);
                 ws.sun_time = t_years;
             }
         }
@@ -150,7 +173,7 @@ impl Model {
     fn sun<'a>(&'a self, ws: &'a Workspace) -> &'a [f64] {
         match &self.sunlight {
             Sunlight::Fixed(s) => s,
-            Sunlight::Seasonal { .. } => &ws.sun,
+            Sunlight::Seasonal(_) => &ws.sun,
         }
     }
 
@@ -163,8 +186,11 @@ impl Model {
         let sun = self.sun(ws);
         for i in 0..temps.len() {
             let (alb, _) = self.albedo.band(temps, i);
-            let (olr, _) = self.longwave.eval(temps[i]);
-            out[i] = d.solar_scale * sun[i] * (1.0 - alb) - (olr - d.greenhouse_wm2) + conv[i] + d.extra_wm2;
+            let (olr, dolr) = self.longwave.eval(temps[i]);
+            let (olr, _) = d.olr(olr, dolr, temps[i]);
+            out[i] = d.solar_scale * sun[i] * (1.0 - alb) - (olr - d.greenhouse_wm2)
+                + d.transport_scale * conv[i]
+                + d.extra_wm2;
         }
         ws.conv = conv;
     }
@@ -181,24 +207,83 @@ impl Model {
     pub fn heating_jacobian(&self, t_years: f64, temps: &[f64], ws: &mut Workspace, jac: &mut Tridiag) {
         self.refresh_sun(t_years, ws);
         let d = self.drivers_at(t_years);
+        jac.diag.iter_mut().for_each(|v| *v = 0.0);
         jac.lower.iter_mut().for_each(|v| *v = 0.0);
         jac.upper.iter_mut().for_each(|v| *v = 0.0);
         jac.rank_one = None;
+        // Transport first (then scaled by a time-varying transport factor), local terms added.
+        self.transport.add_jacobian(jac);
+        if d.transport_scale != 1.0 {
+            let f = d.transport_scale;
+            jac.diag
+                .iter_mut()
+                .chain(jac.lower.iter_mut())
+                .chain(jac.upper.iter_mut())
+                .for_each(|v| *v *= f);
+            jac.rank_one = jac.rank_one.map(|r| r * f);
+        }
         let sun = self.sun(ws);
         let n = temps.len();
         for i in 0..n {
             let (_, da) = self.albedo.band(temps, i);
-            let (_, dolr) = self.longwave.eval(temps[i]);
+            let (olr, dolr) = self.longwave.eval(temps[i]);
+            let (_, dolr) = d.olr(olr, dolr, temps[i]);
             let s = d.solar_scale * sun[i];
-            jac.diag[i] = -s * da[1] - dolr;
+            jac.diag[i] += -s * da[1] - dolr;
             if i > 0 {
-                jac.lower[i] = -s * da[0];
+                jac.lower[i] += -s * da[0];
             }
             if i + 1 < n {
-                jac.upper[i] = -s * da[2];
+                jac.upper[i] += -s * da[2];
             }
         }
-        self.transport.add_jacobian(jac);
+    }
+
+    /// Net heating `G` (W m-2) and its Jacobian (W m-2 K-1) at one state in one pass (the
+    /// albedo and OLR of each band are evaluated once for both).
+    pub fn heating_with_jacobian(
+        &self,
+        t_years: f64,
+        temps: &[f64],
+        ws: &mut Workspace,
+        out: &mut [f64],
+        jac: &mut Tridiag,
+    ) {
+        self.refresh_sun(t_years, ws);
+        let d = self.drivers_at(t_years);
+        let mut conv = std::mem::take(&mut ws.conv);
+        self.transport.convergence(&self.grid, temps, &mut conv);
+        jac.rank_one = None;
+        let sun = self.sun(ws);
+        let n = temps.len();
+        for i in 0..n {
+            let (alb, da) = self.albedo.band(temps, i);
+            let (olr, dolr) = self.longwave.eval(temps[i]);
+            let (olr, dolr) = d.olr(olr, dolr, temps[i]);
+            let s = d.solar_scale * sun[i];
+            out[i] = s * (1.0 - alb) - (olr - d.greenhouse_wm2) + d.transport_scale * conv[i] + d.extra_wm2;
+            jac.diag[i] = -s * da[1] - dolr;
+            jac.lower[i] = if i > 0 { -s * da[0] } else { 0.0 };
+            jac.upper[i] = if i + 1 < n { -s * da[2] } else { 0.0 };
+        }
+        ws.conv = conv;
+        // A time-varying transport factor f scales only the transport part: (J/f + T) f.
+        let f = d.transport_scale;
+        if f == 1.0 {
+            self.transport.add_jacobian(jac);
+        } else if f != 0.0 {
+            let scale = |jac: &mut Tridiag, by: f64| {
+                jac.diag
+                    .iter_mut()
+                    .chain(jac.lower.iter_mut())
+                    .chain(jac.upper.iter_mut())
+                    .for_each(|v| *v *= by);
+                jac.rank_one = jac.rank_one.map(|r| r * by);
+            };
+            scale(jac, 1.0 / f);
+            self.transport.add_jacobian(jac);
+            scale(jac, f);
+        }
     }
 
     /// The parts of the net heating at a state.
@@ -208,12 +293,14 @@ impl Model {
         let n = temps.len();
         let mut transport = vec![0.0; n];
         self.transport.convergence(&self.grid, temps, &mut transport);
+        transport.iter_mut().for_each(|v| *v *= d.transport_scale);
         let sun = self.sun(ws);
         let mut absorbed = vec![0.0; n];
         let mut olr = vec![0.0; n];
         for i in 0..n {
             absorbed[i] = d.solar_scale * sun[i] * (1.0 - self.albedo.band(temps, i).0);
-            olr[i] = self.longwave.eval(temps[i]).0 - d.greenhouse_wm2;
+            let (o, dolr) = self.longwave.eval(temps[i]);
+            olr[i] = d.olr(o, dolr, temps[i]).0 - d.greenhouse_wm2;
         }
         Budget {
             absorbed,
@@ -281,13 +368,13 @@ impl Model {
                 );
                 Sunlight::Fixed(s)
             }
-            InsolationForm::Seasonal => Sunlight::Seasonal {
-                s0: ins.solar_constant,
-                obliquity: ins.obliquity,
-                eccentricity: ins.eccentricity,
-                perihelion: ins.perihelion,
-                rule: ClusteredRuleCache::new(12),
-            },
+            InsolationForm::Seasonal => Sunlight::Seasonal(std::sync::Arc::new(SeasonalTable::new(
+                &grid,
+                ins.solar_constant,
+                ins.obliquity,
+                ins.eccentricity,
+                ins.perihelion,
+            ))),
         };
         let a = &spec.albedo;
         let ice_free = grid
@@ -314,25 +401,10 @@ impl Model {
             longwave: spec.longwave.clone(),
             transport,
             heat_capacity,
-            drivers: Drivers {
-                solar_scale: spec.solar_scale,
-                greenhouse_wm2: spec.greenhouse_wm2,
-                extra_wm2: spec.extra_wm2,
-            },
-            forcing: spec.forcing.as_ref().map(|series| {
-                let base = Drivers {
-                    solar_scale: spec.solar_scale,
-                    greenhouse_wm2: spec.greenhouse_wm2,
-                    extra_wm2: spec.extra_wm2,
-                };
-                let (co2, reference, k) = spec.co2;
-                std::sync::Arc::new(crate::forcing::SeriesDrivers::new(
-                    (**series).clone(),
-                    base,
-                    co2,
-                    reference,
-                    k,
-                )) as _
+            drivers: Drivers::plain(spec.solar_scale, spec.greenhouse_wm2, spec.extra_wm2),
+            forcing: spec.forcing.as_ref().map(|f| {
+                let base = Drivers::plain(spec.solar_scale, spec.greenhouse_wm2, spec.extra_wm2);
+                std::sync::Arc::new(crate::forcing::TimeDrivers::new(f.clone(), base)) as _
             }),
         }
     }

@@ -381,6 +381,23 @@ fn leading_eigenvalue_matches_the_decay_of_a_small_perturbation() {
         (rate / lead - 1.0).abs() < 0.02,
         "measured {rate} vs leading eigenvalue {lead}"
     );
+    // The same with the smooth albedo (its own band's temperature only: symmetric operator).
+    let smooth = load(
+        &config_text("classic-step-albedo.toml"),
+        &["albedo.kind=\"smooth\"", "albedo.width_k=3"],
+    );
+    let ms = Model::from_spec(&smooth.spec.model);
+    let start_s = ms.initial_state(&smooth.spec.initial);
+    let eqs = newton(&ms, 0.0, &start_s, NewtonOptions::default())
+        .unwrap()
+        .state;
+    let (lead_s, _) = leading_eigenvalue(&ms, 0.0, &eqs);
+    assert!(lead_s < 0.0);
+    let rate_s = measured_rate(&ms, &eqs, 1e-3, 60.0, 120.0);
+    assert!(
+        (rate_s / lead_s - 1.0).abs() < 0.02,
+        "smooth: measured {rate_s} vs {lead_s}"
+    );
     // Unstable large ice cap (the branch between the fold and the snowball): growth.
     let fam = Controlled::new(&cfg, "insolation.solar_constant").unwrap();
     let mut tr = Tracer::new(&fam, options(1100.0, 1800.0, 0.02));

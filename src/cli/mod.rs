@@ -3,10 +3,14 @@
 
 mod branches;
 mod check;
+mod demo;
+mod ensemble;
 mod equilibrium;
+mod merge;
 mod sweep;
 
 mod inspect;
+mod plot;
 pub mod progress;
 mod run;
 
@@ -79,6 +83,31 @@ pub enum Command {
         #[command(flatten)]
         output: OutputArgs,
     },
+    /// Latin hypercube ensemble over the `[ensemble]` keys, members in parallel.
+    Ensemble {
+        #[command(flatten)]
+        config: ConfigArgs,
+        #[command(flatten)]
+        output: OutputArgs,
+        /// Run only slice K of N (K from 0 to N-1, e.g. $SLURM_ARRAY_TASK_ID/N).
+        #[arg(long, value_name = "K/N")]
+        shard: Option<String>,
+        /// Worker threads (default: all cores, or RAYON_NUM_THREADS).
+        #[arg(long, value_name = "N")]
+        threads: Option<usize>,
+    },
+    /// Join ensemble shard files into the file a single run writes.
+    Merge {
+        /// The shard files (any order).
+        #[arg(required = true)]
+        files: Vec<PathBuf>,
+        /// The merged file.
+        #[arg(short = 'o', long = "output", value_name = "FILE")]
+        output: PathBuf,
+        /// Replace an existing output file.
+        #[arg(long)]
+        overwrite: bool,
+    },
     /// Validate a config and print it with every default filled in.
     Check {
         #[command(flatten)]
@@ -88,6 +117,14 @@ pub enum Command {
     Inspect {
         /// The file.
         file: PathBuf,
+    },
+    /// Draw the pictures of an output file (SVG and PNG).
+    Plot {
+        /// The file.
+        file: PathBuf,
+        /// Where to write the pictures (default: beside the file).
+        #[arg(long)]
+        out_dir: Option<PathBuf>,
     },
     /// Run the built-in demonstration scenario and draw its pictures.
     Demo {
@@ -134,9 +171,21 @@ fn dispatch(cli: Cli) -> Result<(), Error> {
         } => equilibrium::main(&config, &output, start),
         Command::Sweep { config, output } => sweep::main(&config, &output),
         Command::Branches { config, output } => branches::main(&config, &output),
+        Command::Ensemble {
+            config,
+            output,
+            shard,
+            threads,
+        } => ensemble::main(&config, &output, shard.as_deref(), threads),
+        Command::Merge {
+            files,
+            output,
+            overwrite,
+        } => merge::main(&files, &output, overwrite),
         Command::Check { config } => check::main(&config),
         Command::Inspect { file } => inspect::main(&file),
-        Command::Demo { out_dir } => Err(Error::Other(format!("demo not built yet: {}", out_dir.display()))),
+        Command::Demo { out_dir } => demo::main(&out_dir),
+        Command::Plot { file, out_dir } => plot::main(&file, out_dir.as_deref()),
     }
 }
 

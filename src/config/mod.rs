@@ -105,6 +105,19 @@ impl Loaded {
         from_tree(tree, &self.source, &self.base_dir)
     }
 
+    /// A copy with several dotted numeric keys set, validated once (used by ensembles).
+    pub fn with_values(&self, values: &[(&str, f64)]) -> Result<Loaded, ConfigError> {
+        let mut tree = self.resolved.clone();
+        for (key, value) in values {
+            set_dotted(&mut tree, key, toml::Value::Float(*value)).map_err(|m| ConfigError::Key {
+                path: self.source.clone(),
+                key: key.to_string(),
+                message: m,
+            })?;
+        }
+        from_tree(tree, &self.source, &self.base_dir)
+    }
+
     /// The value of a numeric dotted key in the resolved configuration.
     pub fn number(&self, key: &str) -> Option<f64> {
         let mut v = &self.resolved;

@@ -63,6 +63,9 @@ pub struct RawConfig {
     /// `[branches]`.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub branches: Option<RawBranches>,
+    /// `[ensemble]`.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub ensemble: Option<RawEnsemble>,
 }
 
 /// `[grid]`.
@@ -213,6 +216,10 @@ pub struct RawTime {
     pub stiffness_check: Option<bool>,
     /// Step limit of the whole run.
     pub max_steps: Option<i64>,
+    /// What the records hold: "instant" (the state at each output time), "every_step" (every
+    /// accepted step of the implicit scheme) or "annual_mean" (means over each model year of
+    /// samples at the output cadence).
+    pub output: Option<String>,
 }
 
 /// `[forcing]`: constant additive forcing (time histories come with `file`).
@@ -230,6 +237,70 @@ pub struct RawForcing {
     pub interpolation: Option<String>,
     /// Outside the file's years: "error" or "hold" (keep the end values).
     pub outside: Option<String>,
+    /// Analytic pieces added to (or, exponential, multiplying) the forcing channels.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub pieces: Option<Vec<RawPiece>>,
+}
+
+/// One `[[forcing.pieces]]` entry.
+#[derive(Debug, Clone, Default, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawPiece {
+    /// Channel: `co2_ppm`, `solar_scale`, `forcing_wm2` or a time-varying dotted key.
+    pub target: Option<String>,
+    /// "step", "ramp", "exponential" or "sinusoid".
+    pub kind: Option<String>,
+    /// Start, years.
+    pub start_year: Option<f64>,
+    /// End, years (steps and sinusoids stop, ramps hold; absent: never).
+    pub end_year: Option<f64>,
+    /// Step size, target units.
+    pub size: Option<f64>,
+    /// Ramp: change per year (target units); exponential: fractional growth per year.
+    pub rate_per_year: Option<f64>,
+    /// Sinusoid amplitude, target units.
+    pub amplitude: Option<f64>,
+    /// Sinusoid period, years.
+    pub period_years: Option<f64>,
+    /// Sinusoid phase, degrees.
+    pub phase_deg: Option<f64>,
+}
+
+/// `[ensemble]`.
+#[derive(Debug, Clone, Default, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawEnsemble {
+    /// Number of members.
+    pub members: Option<i64>,
+    /// Seed of the Latin hypercube.
+    pub seed: Option<i64>,
+    /// Write every member's surface temperature field.
+    pub fields: Option<bool>,
+    /// Compute each member's equilibrium sensitivity to doubled CO2.
+    pub sensitivity: Option<bool>,
+    /// Sampled keys.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub parameters: Option<Vec<RawEnsembleParameter>>,
+}
+
+/// One `[[ensemble.parameters]]` entry.
+#[derive(Debug, Clone, Default, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawEnsembleParameter {
+    /// Dotted numeric config key.
+    pub key: Option<String>,
+    /// "uniform", "normal", "log_uniform" or "values".
+    pub distribution: Option<String>,
+    /// Lower end (uniform, log-uniform).
+    pub min: Option<f64>,
+    /// Upper end (uniform, log-uniform).
+    pub max: Option<f64>,
+    /// Mean (normal).
+    pub mean: Option<f64>,
+    /// Standard deviation (normal).
+    pub sd: Option<f64>,
+    /// Listed values ("values").
+    pub values: Option<Vec<f64>>,
 }
 
 /// `[equilibrium]`.
@@ -240,6 +311,8 @@ pub struct RawEquilibrium {
     pub tolerance_wm2: Option<f64>,
     /// Newton iteration limit.
     pub max_iterations: Option<i64>,
+    /// Also write the doubled-CO2 equilibrium sensitivity into run files.
+    pub sensitivity: Option<bool>,
 }
 
 /// `[sweep]`.

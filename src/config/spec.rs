@@ -104,8 +104,8 @@ pub struct ModelSpec {
     pub solar_scale: f64,
     /// CO2 (ppm), its reference (ppm) and the log coefficient (W m-2).
     pub co2: (f64, f64, f64),
-    /// Forcing history, if any.
-    pub forcing: Option<std::sync::Arc<crate::forcing::ForcingSeries>>,
+    /// Forcing history (CSV and analytic pieces), if any.
+    pub forcing: Option<std::sync::Arc<crate::forcing::ForcingSpec>>,
 }
 
 /// Time-stepping scheme.
@@ -117,6 +117,21 @@ pub enum Method {
     Dopri5,
     /// Dormand-Prince 8(5,3) through `ode_solvers`.
     Dop853,
+}
+
+/// What the records of a run file hold (`time.output`).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum OutputMode {
+    /// The state at each output time.
+    Instant,
+    /// The state after every accepted step (implicit scheme).
+    EveryStep,
+    /// Means over each whole model year of samples taken this many times a year (trapezoid
+    /// rule over the year, end samples shared by neighbouring years).
+    AnnualMean {
+        /// Samples per year (`1 / time.output_every_years`).
+        samples_per_year: usize,
+    },
 }
 
 /// `[time]`, validated.
@@ -138,6 +153,8 @@ pub struct TimeSpec {
     pub stiffness_check: bool,
     /// Step limit.
     pub max_steps: u64,
+    /// What the records hold.
+    pub output: OutputMode,
 }
 
 /// `[initial]`, validated.
@@ -156,6 +173,8 @@ pub struct EquilibriumSpec {
     pub tolerance_wm2: f64,
     /// Iteration limit.
     pub max_iterations: usize,
+    /// Write the doubled-CO2 sensitivity into run files.
+    pub sensitivity: bool,
 }
 
 /// `[sweep]`, validated.
@@ -211,4 +230,21 @@ pub struct Spec {
     pub sweep: Option<SweepSpec>,
     /// Continuation, if configured.
     pub branches: Option<BranchesSpec>,
+    /// Ensemble, if configured.
+    pub ensemble: Option<EnsembleSpec>,
+}
+
+/// `[ensemble]`, validated.
+#[derive(Debug, Clone, PartialEq)]
+pub struct EnsembleSpec {
+    /// Number of members.
+    pub members: usize,
+    /// Seed of the Latin hypercube.
+    pub seed: u64,
+    /// Write every member's surface temperature field.
+    pub fields: bool,
+    /// Compute each member's equilibrium sensitivity to doubled CO2.
+    pub sensitivity: bool,
+    /// Sampled keys with their distributions, in config order.
+    pub parameters: Vec<(String, crate::ensemble::Distribution)>,
 }

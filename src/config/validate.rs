@@ -422,6 +422,7 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
     };
     let hold = c.choice("forcing.outside", &mut f.outside, "error", &["error", "hold"])? == "hold";
     let forcing_file = f.file.clone();
+    let pieces = forcing_pieces(&c, f.pieces.as_mut())?;
 
     // [initial]
     let i = &mut raw.initial;
@@ -445,10 +446,16 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
     // [time]
     let tm = &mut raw.time;
     let years = c.num("time.years", &mut tm.years, 100.0, Range::AboveUpTo(0.0, 1e9))?;
+    // Annual means sample 24 times a year unless told otherwise.
+    let default_every = if tm.output.as_deref() == Some("annual_mean") {
+        1.0 / 24.0
+    } else {
+        1.0_f64.min(years)
+    };
     let output_every = c.num(
         "time.output_every_years",
         &mut tm.output_every_years,
-        1.0_f64.min(years),
+        default_every,
         Range::AboveUpTo(0.0, 1e9),
     )?;
     if years / output_every > 1e8 {
@@ -500,7 +507,50 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
         ));
     }
     tm.max_steps = Some(max_steps);
-    let forcing = match forcing_file {
+    let output = match c.choice(
+        "time.output",
+        &mut tm.output,
+        "instant",
+        &["instant", "every_step", "annual_mean"],
+    )? {
+        "every_step" => {
+            if method != Method::Implicit {
+                return Err(c.range_err(
+                    "time.output",
+                    "\"every_step\"".into(),
+                    "allowed only with time.method = \"implicit\" (the explicit schemes step inside ode_solvers)".into(),
+                ));
+            }
+            OutputMode::EveryStep
+        }
+        "annual_mean" => {
+            let per_year = (1.0 / output_every).round();
+            if per_year < 1.0 || (per_year * output_every - 1.0).abs() > 1e-9 {
+                return Err(c.range_err(
+                    "time.output_every_years",
+                    output_every.to_string(),
+                    "with time.output = \"annual_mean\" the sampling interval must divide a year: 1/n years for a whole number n (e.g. 0.0833333333333333 for monthly samples)".into(),
+                ));
+            }
+            if years < 1.0 {
+                return Err(c.range_err(
+                    "time.years",
+                    years.to_string(),
+                    "with time.output = \"annual_mean\" allowed: at least 1 (only whole model years are written)".into(),
+                ));
+            }
+            OutputMode::AnnualMean {
+                samples_per_year: per_year as usize,
+            }
+        }
+        _ => OutputMode::Instant,
+    };
+    // Annual means sample at exactly 1/n years.
+    let output_every = match output {
+        OutputMode::AnnualMean { samples_per_year } => 1.0 / samples_per_year as f64,
+        _ => output_every,
+    };
+    let series = match forcing_file {
         None => None,
         Some(rel) => {
             let path = base_dir.join(&rel);
@@ -529,8 +579,55 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
                     },
                     message: e.message,
                 })?;
-            Some(std::sync::Arc::new(series))
+            Some((series, shown))
         }
+    };
+    let forcing = if series.is_none() && pieces.is_empty() {
+        None
+    } else {
+        let bases = crate::forcing::Bases {
+            co2_ppm: co2,
+            reference_co2_ppm: co2_ref,
+            log_coefficient_wm2: k,
+            constant_wm2: extra_wm2,
+            solar_scale,
+            solar_constant: s0,
+            linear_a: match &longwave {
+                Longwave::Linear { a, .. } => Some(*a),
+                _ => None,
+            },
+            linear_b: match &longwave {
+                Longwave::Linear { b, .. } => Some(*b),
+                _ => None,
+            },
+            emissivity: match &longwave {
+                Longwave::GrayBody { emissivity } => Some(*emissivity),
+                _ => None,
+            },
+            diffusivity: match transport {
+                TransportSpec::Diffusive { d0, .. } => Some(d0),
+                _ => None,
+            },
+            relaxation_rate: match transport {
+                TransportSpec::Relaxation { rate } => Some(rate),
+                _ => None,
+            },
+        };
+        let shown = series.as_ref().map(|(_, p)| p.clone());
+        let fspec = crate::forcing::ForcingSpec::new(series.map(|(s, _)| s), pieces, bases)
+            .and_then(|f| f.check_values(years).map(|_| f))
+            .map_err(|message| match &shown {
+                Some(p) => ConfigError::DataFile {
+                    path: p.clone(),
+                    message,
+                },
+                None => ConfigError::Key {
+                    path: c.source.to_string(),
+                    key: "forcing.pieces".into(),
+                    message,
+                },
+            })?;
+        Some(std::sync::Arc::new(fspec))
     };
     let time = TimeSpec {
         years,
@@ -541,6 +638,7 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
         max_step,
         stiffness_check,
         max_steps: max_steps as u64,
+        output,
     };
 
     // [equilibrium]
@@ -563,6 +661,7 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
     let equilibrium = EquilibriumSpec {
         tolerance_wm2: eq_tol,
         max_iterations: eq_it as usize,
+        sensitivity: *e.sensitivity.get_or_insert(false),
     };
 
     // [sweep]
@@ -647,6 +746,8 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
         }
     };
 
+    let ensemble = ensemble_spec(&c, raw.ensemble.as_mut())?;
+
     let spec = Spec {
         title: raw.title.clone().unwrap_or_else(|| "icefold scenario".into()),
         model: ModelSpec {
@@ -669,8 +770,225 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
         equilibrium,
         sweep,
         branches,
+        ensemble,
     };
     Ok((raw, spec))
+}
+
+/// `[[forcing.pieces]]`: kinds, targets and numbers checked, defaults filled in.
+fn forcing_pieces(
+    c: &Checker,
+    pieces: Option<&mut Vec<RawPiece>>,
+) -> Result<Vec<crate::forcing::Piece>, ConfigError> {
+    use crate::forcing::{Piece, PieceShape, COLUMNS, TIME_VARYING_KEYS};
+    let mut out = Vec::new();
+    for (i, p) in pieces.into_iter().flatten().enumerate() {
+        let key = |k: &str| format!("forcing.pieces[{i}].{k}");
+        let target = p.target.clone().unwrap_or_else(|| "forcing_wm2".into());
+        if !COLUMNS.contains(&target.as_str()) && !TIME_VARYING_KEYS.contains(&target.as_str()) {
+            return Err(c.range_err(
+                &key("target"),
+                format!("\"{target}\""),
+                format!("allowed: {}", crate::forcing::allowed_names()),
+            ));
+        }
+        p.target = Some(target.clone());
+        let kind = c.choice(
+            &key("kind"),
+            &mut p.kind,
+            "step",
+            &["step", "ramp", "exponential", "sinusoid"],
+        )?;
+        let start = c.num(
+            &key("start_year"),
+            &mut p.start_year,
+            0.0,
+            Range::Closed(-1e9, 1e9),
+        )?;
+        let end = match p.end_year {
+            None => f64::INFINITY,
+            Some(e) => {
+                if !(e.is_finite() && e > start) {
+                    return Err(c.range_err(
+                        &key("end_year"),
+                        e.to_string(),
+                        format!("allowed: a year after start_year = {start}"),
+                    ));
+                }
+                e
+            }
+        };
+        let need = |slot: &mut Option<f64>, name: &str, range: Range| -> Result<f64, ConfigError> {
+            match *slot {
+                None => Err(c.range_err(
+                    &key(name),
+                    "(missing)".into(),
+                    format!("required with kind = \"{kind}\"; {}", range.describe()),
+                )),
+                Some(_) => c.num(&key(name), slot, 0.0, range),
+            }
+        };
+        let shape = match kind {
+            "step" => PieceShape::Step {
+                size: need(&mut p.size, "size", Range::Closed(-1e6, 1e6))?,
+            },
+            "ramp" => PieceShape::Ramp {
+                rate: need(&mut p.rate_per_year, "rate_per_year", Range::Closed(-1e6, 1e6))?,
+            },
+            "exponential" => PieceShape::Exponential {
+                rate: need(
+                    &mut p.rate_per_year,
+                    "rate_per_year",
+                    Range::AboveUpTo(-1.0, 10.0),
+                )?,
+            },
+            _ => PieceShape::Sinusoid {
+                amplitude: need(&mut p.amplitude, "amplitude", Range::Closed(-1e6, 1e6))?,
+                period: need(&mut p.period_years, "period_years", Range::AboveUpTo(0.0, 1e9))?,
+                phase: c
+                    .num(
+                        &key("phase_deg"),
+                        &mut p.phase_deg,
+                        0.0,
+                        Range::Closed(-360.0, 360.0),
+                    )?
+                    .to_radians(),
+            },
+        };
+        out.push(Piece {
+            target,
+            shape,
+            start,
+            end,
+        });
+    }
+    Ok(out)
+}
+
+/// `[ensemble]`, if present.
+fn ensemble_spec(c: &Checker, e: Option<&mut RawEnsemble>) -> Result<Option<EnsembleSpec>, ConfigError> {
+    use crate::ensemble::Distribution;
+    let Some(e) = e else { return Ok(None) };
+    let members = e.members.unwrap_or(100);
+    if !(1..=10_000_000).contains(&members) {
+        return Err(c.range_err(
+            "ensemble.members",
+            members.to_string(),
+            "allowed: a whole number from 1 to 10000000".into(),
+        ));
+    }
+    e.members = Some(members);
+    let seed = e.seed.unwrap_or(1);
+    if seed < 0 {
+        return Err(c.range_err(
+            "ensemble.seed",
+            seed.to_string(),
+            "allowed: a whole number of 0 or more".into(),
+        ));
+    }
+    e.seed = Some(seed);
+    let fields = *e.fields.get_or_insert(false);
+    let sensitivity = *e.sensitivity.get_or_insert(false);
+    let mut parameters = Vec::new();
+    let raw_params = e.parameters.get_or_insert_with(Vec::new);
+    if raw_params.is_empty() {
+        return Err(c.range_err(
+            "ensemble.parameters",
+            "(none)".into(),
+            "allowed: one or more [[ensemble.parameters]] tables with `key` and `distribution`".into(),
+        ));
+    }
+    for (i, p) in raw_params.iter_mut().enumerate() {
+        let key = |k: &str| format!("ensemble.parameters[{i}].{k}");
+        let name = p.key.clone().unwrap_or_default();
+        let top = name.split('.').next().unwrap_or("");
+        let shape_ok = name.split('.').count() >= 2
+            && name
+                .split('.')
+                .all(|s| !s.is_empty() && s.chars().all(|ch| ch.is_ascii_alphanumeric() || ch == '_'));
+        if !shape_ok
+            || ["grid", "time", "ensemble", "sweep", "branches"].contains(&top)
+            || INTEGER_KEYS.contains(&name.as_str())
+        {
+            return Err(c.range_err(
+                &key("key"),
+                format!("\"{name}\""),
+                "allowed: a dotted numeric model key such as \"transport.diffusivity\" (not grid.*, time.*, ensemble.*, sweep.*, branches.* or whole-number keys)".into(),
+            ));
+        }
+        if parameters
+            .iter()
+            .any(|(k, _): &(String, Distribution)| *k == name)
+        {
+            return Err(c.range_err(
+                &key("key"),
+                format!("\"{name}\""),
+                "allowed: each key once".into(),
+            ));
+        }
+        let dist = c.choice(
+            &key("distribution"),
+            &mut p.distribution,
+            "uniform",
+            &["uniform", "normal", "log_uniform", "values"],
+        )?;
+        let req = |slot: &mut Option<f64>, n: &str, range: Range| -> Result<f64, ConfigError> {
+            match *slot {
+                None => Err(c.range_err(
+                    &key(n),
+                    "(missing)".into(),
+                    format!("required with distribution = \"{dist}\""),
+                )),
+                Some(_) => c.num(&key(n), slot, 0.0, range),
+            }
+        };
+        let d = match dist {
+            "uniform" | "log_uniform" => {
+                let lo_range = if dist == "log_uniform" {
+                    Range::Above(0.0)
+                } else {
+                    Range::Any
+                };
+                let min = req(&mut p.min, "min", lo_range)?;
+                let max = req(&mut p.max, "max", Range::Any)?;
+                if max <= min {
+                    return Err(c.range_err(
+                        &key("max"),
+                        max.to_string(),
+                        format!("allowed: above min = {min}"),
+                    ));
+                }
+                if dist == "uniform" {
+                    Distribution::Uniform { min, max }
+                } else {
+                    Distribution::LogUniform { min, max }
+                }
+            }
+            "normal" => Distribution::Normal {
+                mean: req(&mut p.mean, "mean", Range::Any)?,
+                sd: req(&mut p.sd, "sd", Range::Above(0.0))?,
+            },
+            _ => {
+                let v = p.values.clone().unwrap_or_default();
+                if v.is_empty() || v.iter().any(|x| !x.is_finite()) {
+                    return Err(c.range_err(
+                        &key("values"),
+                        format!("{v:?}"),
+                        "allowed: a non-empty list of finite numbers".into(),
+                    ));
+                }
+                Distribution::Values(v)
+            }
+        };
+        parameters.push((name, d));
+    }
+    Ok(Some(EnsembleSpec {
+        members: members as usize,
+        seed: seed as u64,
+        fields,
+        sensitivity,
+        parameters,
+    }))
 }
 
 /// Keys that can be a sweep or continuation control: every numeric model key.

@@ -55,7 +55,10 @@ pub struct Ros2<'m> {
     h: f64,
     max_steps: u64,
     cap: Vec<f64>,
+    inv_cap: Vec<f64>,
+    /// Jacobian at `(t, y)`, valid when `jac_fresh`.
     jac: Tridiag,
+    jac_fresh: bool,
     mat: Tridiag,
     lu: TridiagLu,
     k1: Vec<f64>,
@@ -111,8 +114,10 @@ impl<'m> Ros2<'m> {
             y_prev: y0.to_vec(),
             h,
             max_steps,
+            inv_cap: cap.iter().map(|c| 1.0 / c).collect(),
             cap,
             jac: Tridiag::zeros(n),
+            jac_fresh: false,
             mat: Tridiag::zeros(n),
             lu: TridiagLu::new(n, &model.grid.weights),
             k1: vec![0.0; n],
@@ -147,8 +152,10 @@ impl<'m> Ros2<'m> {
                 limit: self.max_steps,
             });
         }
-        model.heating_jacobian(self.t, &self.y, &mut self.ws, &mut self.jac);
-        let mut jac_fresh = true;
+        if !self.jac_fresh {
+            model.heating_jacobian(self.t, &self.y, &mut self.ws, &mut self.jac);
+            self.jac_fresh = true;
+        }
         loop {
             let remaining = self.t_end - self.t;
             let (h, last) = match self.policy {
@@ -168,10 +175,6 @@ impl<'m> Ros2<'m> {
                     }
                 }
             };
-            if !jac_fresh {
-                model.heating_jacobian(self.t, &self.y, &mut self.ws, &mut self.jac);
-                jac_fresh = true;
-            }
             // M = C/yr - gamma h J.
             let gh = GAMMA * h;
             for i in 0..n {
@@ -224,10 +227,12 @@ impl<'m> Ros2<'m> {
                 }
                 self.t = if last { self.t_end } else { self.t + h };
                 check_state(model, self.t, &self.y)?;
-                model.heating(self.t, &self.y, &mut self.ws, &mut self.f);
+                // FSAL: the new state's heating starts the next step, and its Jacobian with it.
+                model.heating_with_jacobian(self.t, &self.y, &mut self.ws, &mut self.f, &mut self.jac);
+                self.jac_fresh = true;
                 self.stats.rhs_evals += 1;
-                for (fi, c) in self.f.iter_mut().zip(&self.cap) {
-                    *fi /= c;
+                for (fi, c) in self.f.iter_mut().zip(&self.inv_cap) {
+                    *fi *= c;
                 }
                 self.stats.steps += 1;
                 match self.policy {
@@ -278,12 +283,7 @@ impl<'m> Ros2<'m> {
             return;
         }
         let s = ((t - self.t_prev) / h).clamp(0.0, 1.0);
-        let s2 = s * s;
-        let s3 = s2 * s;
-        let h00 = 2.0 * s3 - 3.0 * s2 + 1.0;
-        let h10 = s3 - 2.0 * s2 + s;
-        let h01 = -2.0 * s3 + 3.0 * s2;
-        let h11 = s3 - s2;
+        let [h00, h10, h01, h11] = crate::interpolation::hermite_basis(s);
         for i in 0..out.len() {
             out[i] = h00 * self.y_prev[i] + h10 * h * self.f_prev[i] + h01 * self.y[i] + h11 * h * self.f[i];
         }

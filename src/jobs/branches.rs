@@ -14,21 +14,19 @@ use std::path::Path;
 
 /// The validated `[branches]` section, or a config error naming what is missing.
 pub fn branches_spec(cfg: &Loaded) -> Result<&BranchesSpec, ConfigError> {
-    let spec = cfg.spec.branches.as_ref().ok_or_else(|| ConfigError::Key {
-        path: cfg.source.clone(),
-        key: "branches".into(),
-        message: "icefold branches needs a [branches] section with control (a dotted key such as \"insolation.solar_constant\"), from and to".into(),
-    })?;
-    for (key, v) in [("branches.from", spec.from), ("branches.to", spec.to)] {
-        if !v.is_finite() {
-            return Err(ConfigError::Key {
-                path: cfg.source.clone(),
-                key: key.into(),
-                message: "missing: give the control value as a number".into(),
-            });
-        }
-    }
-    Ok(spec)
+    let ends = cfg
+        .spec
+        .branches
+        .as_ref()
+        .map(|s| [s.from, s.to])
+        .unwrap_or([0.0; 2]);
+    super::control_section(
+        cfg,
+        cfg.spec.branches.as_ref(),
+        "branches",
+        "control (a dotted key such as \"insolation.solar_constant\"), from and to",
+        ends,
+    )
 }
 
 /// Trace the branches of a loaded config (no file).

@@ -48,6 +48,9 @@ pub fn run_to_file(
     let y0 = model.initial_state(&cfg.spec.initial);
     let mut writer = RunWriter::create(path, &model, &provenance(cfg, command_line))?;
     let time = &cfg.spec.time;
+    if let crate::config::spec::OutputMode::AnnualMean { samples_per_year } = time.output {
+        writer.annual_means(samples_per_year)?;
+    }
     let total = driver::output_count(time.years, time.output_every);
     let pb = if show_progress {
         progress::bar(total, "model years")
@@ -62,6 +65,9 @@ pub fn run_to_file(
         Ok(summary) => {
             writer.set_attr("steps", Attr::I64(summary.stats.steps as i64))?;
             writer.set_attr("rhs_evaluations", Attr::I64(summary.stats.rhs_evals as i64))?;
+            for (name, value) in super::diagnostics::run_attrs(cfg, &model, &y0, &writer.regression()) {
+                writer.set_attr(name, value)?;
+            }
             writer.finish(true)?;
             let final_global_mean = model.global_mean(&summary.final_state);
             let final_ice_edge_north = model.ice_edges(&summary.final_state).0;

@@ -13,21 +13,19 @@ use std::path::Path;
 
 /// The validated `[sweep]` section, or a config error naming what is missing.
 pub fn sweep_spec(cfg: &Loaded) -> Result<&SweepSpec, ConfigError> {
-    let spec = cfg.spec.sweep.as_ref().ok_or_else(|| ConfigError::Key {
-        path: cfg.source.clone(),
-        key: "sweep".into(),
-        message: "icefold sweep needs a [sweep] section with control (a dotted key such as \"insolation.solar_constant\"), from, to and steps".into(),
-    })?;
-    for (key, v) in [("sweep.from", spec.from), ("sweep.to", spec.to)] {
-        if !v.is_finite() {
-            return Err(ConfigError::Key {
-                path: cfg.source.clone(),
-                key: key.into(),
-                message: "missing: give the control value as a number".into(),
-            });
-        }
-    }
-    Ok(spec)
+    let ends = cfg
+        .spec
+        .sweep
+        .as_ref()
+        .map(|s| [s.from, s.to])
+        .unwrap_or([0.0; 2]);
+    super::control_section(
+        cfg,
+        cfg.spec.sweep.as_ref(),
+        "sweep",
+        "control (a dotted key such as \"insolation.solar_constant\"), from, to and steps",
+        ends,
+    )
 }
 
 /// Run the sweep of a loaded config (no file).

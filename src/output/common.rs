@@ -73,9 +73,21 @@ pub fn mark_complete(w: &mut NcWriter, complete: bool) -> Result<(), OutputError
 /// The `lat` coordinate (band centres, degrees_north) with `lat_bnds`, and the area weights.
 pub fn write_latitude(w: &mut NcWriter, grid: &Grid) -> Result<(), OutputError> {
     let faces = grid.lat_faces_deg();
+    let bnds: Vec<f64> = (0..grid.len()).flat_map(|i| [faces[i], faces[i + 1]]).collect();
+    write_latitude_values(w, &grid.lat_centres_deg(), &bnds, &grid.weights)
+}
+
+/// The same from stored values: centres (degrees_north), bounds (row-major `[lat, 2]`) and area
+/// weights, e.g. when merging files.
+pub fn write_latitude_values(
+    w: &mut NcWriter,
+    lat: &[f64],
+    lat_bnds: &[f64],
+    weights: &[f64],
+) -> Result<(), OutputError> {
     w.add_coordinate(
         "lat",
-        &grid.lat_centres_deg(),
+        lat,
         &[
             ("units", Attr::from("degrees_north")),
             ("standard_name", Attr::from("latitude")),
@@ -90,20 +102,13 @@ pub fn write_latitude(w: &mut NcWriter, grid: &Grid) -> Result<(), OutputError> 
         &["lat", "bnds"],
         &[("units", Attr::from("degrees_north"))],
     )?;
-    let bnds: Vec<f64> = (0..grid.len()).flat_map(|i| [faces[i], faces[i + 1]]).collect();
-    w.write_f64("lat_bnds", &bnds)?;
+    w.write_f64("lat_bnds", lat_bnds)?;
     w.add_variable_f64(
         "area_weight",
         &["lat"],
-        &[
-            ("units", Attr::from("1")),
-            (
-                "long_name",
-                Attr::from("fraction of the model domain's area in each band"),
-            ),
-        ],
+        &attrs("1", "fraction of the model domain's area in each band", None),
     )?;
-    w.write_f64("area_weight", &grid.weights)?;
+    w.write_f64("area_weight", weights)?;
     Ok(())
 }
 

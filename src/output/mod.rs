@@ -37,6 +37,7 @@
 
 pub mod branches_file;
 pub mod common;
+pub mod ensemble_file;
 pub mod equilibrium_file;
 mod reader;
 pub mod run_file;

@@ -4,6 +4,7 @@
 use super::common::{attrs, mark_complete, write_latitude, write_provenance, Provenance};
 use super::OutputError;
 use super::{Attr, NcWriter};
+use crate::ensemble::stats::Ols;
 use crate::grid::Domain;
 use crate::integrate::Observer;
 use crate::model::{Model, Workspace};
@@ -18,6 +19,67 @@ pub struct RunWriter<'m> {
     /// Model time of the last record, years.
     pub last_time: f64,
     records: u64,
+    /// Time-varying parameter keys written as `applied_*` series.
+    params: Vec<String>,
+    /// One record's values in write order (per-band fields, series, edges, parameters).
+    rec: Vec<f64>,
+    /// Annual-mean accumulator (`time.output = "annual_mean"`).
+    annual: Option<YearMean>,
+    /// Regression of the written `toa_imbalance` on `global_mean_temperature`.
+    regression: Ols,
+}
+
+/// Trapezoid-rule means over whole model years of samples taken `per_year` times a year; the
+/// sample at a year boundary counts half for each of the two years.
+pub(crate) struct YearMean {
+    per_year: usize,
+    year: i64,
+    /// Sum of weighted samples (sized by the caller to the record length).
+    pub(crate) sum: Vec<f64>,
+    /// Weight collected, in half samples.
+    halves: usize,
+}
+
+impl YearMean {
+    /// An accumulator for `per_year` samples a year, starting at time 0.
+    pub(crate) fn new(per_year: usize) -> YearMean {
+        YearMean {
+            per_year,
+            year: -1,
+            sum: Vec::new(),
+            halves: 0,
+        }
+    }
+
+    /// Add a sample at `t`; when this sample closes a whole year, writes that year's mean into
+    /// `out` and returns the year's index.
+    pub(crate) fn add(&mut self, t: f64, rec: &[f64], out: &mut Vec<f64>) -> Option<i64> {
+        let j = (t * self.per_year as f64).round() as i64;
+        let (y, pos) = (
+            j.div_euclid(self.per_year as i64),
+            j.rem_euclid(self.per_year as i64),
+        );
+        let mut done = None;
+        if pos == 0 {
+            if y == self.year + 1 && self.halves + 1 == 2 * self.per_year {
+                out.clear();
+                out.extend(
+                    self.sum
+                        .iter()
+                        .zip(rec)
+                        .map(|(s, r)| (s + 0.5 * r) / self.per_year as f64),
+                );
+                done = Some(self.year);
+            }
+            self.year = y;
+            self.sum.iter_mut().zip(rec).for_each(|(s, r)| *s = 0.5 * r);
+            self.halves = 1;
+        } else if y == self.year {
+            self.sum.iter_mut().zip(rec).for_each(|(s, r)| *s += r);
+            self.halves += 2;
+        }
+        done
+    }
 }
 
 const PER_BAND: [(&str, &str, &str, Option<&str>); 4] = [
@@ -125,6 +187,20 @@ impl<'m> RunWriter<'m> {
                 &edge_attrs("ice-edge latitude, southern hemisphere"),
             )?;
         }
+        let params = model
+            .forcing
+            .as_ref()
+            .map(|f| f.parameter_keys())
+            .unwrap_or_default();
+        for key in &params {
+            let mut a = attrs(
+                crate::forcing::units_of(key),
+                &format!("value of config key {key} applied by the forcing history"),
+                None,
+            );
+            a.push(("config_key", Attr::from(key.as_str())));
+            w.add_variable_f64(&applied_name(key), &["time"], &a)?;
+        }
         Ok(RunWriter {
             w: Some(w),
             model,
@@ -132,7 +208,47 @@ impl<'m> RunWriter<'m> {
             row: vec![0.0; model.len()],
             last_time: f64::NAN,
             records: 0,
+            params,
+            rec: Vec::new(),
+            annual: None,
+            regression: Ols::default(),
         })
+    }
+
+    /// Write annual means of samples taken `samples_per_year` times a year instead of the
+    /// samples (call before the first record): records at mid-year with `time_bnds`, every
+    /// variable marked `cell_methods = "time: mean"`; a last partial year is not written.
+    pub fn annual_means(&mut self, samples_per_year: usize) -> Result<(), OutputError> {
+        let w = self.writer();
+        w.set_var_attr_str("time", "bounds", "time_bnds")?;
+        w.add_variable_f64(
+            "time_bnds",
+            &["time", "bnds"],
+            &attrs("year", "start and end of each averaging year", None),
+        )?;
+        let mut names: Vec<String> = PER_BAND.iter().map(|p| p.0.to_string()).collect();
+        names.extend(SERIES.iter().map(|p| p.0.to_string()));
+        names.push("ice_edge_latitude_north".into());
+        if self.model.grid.domain == Domain::Globe {
+            names.push("ice_edge_latitude_south".into());
+        }
+        names.extend(self.params.iter().map(|k| applied_name(k)));
+        for name in names {
+            self.writer()
+                .set_var_attr_str(&name, "cell_methods", "time: mean")?;
+        }
+        self.writer().set_attr_str(
+            "time_averaging",
+            &format!("annual means, trapezoid rule over {samples_per_year} samples a year"),
+        )?;
+        self.annual = Some(YearMean::new(samples_per_year));
+        Ok(())
+    }
+
+    /// The least-squares fit data of `toa_imbalance` on `global_mean_temperature` over the
+    /// records written so far (for the Gregory regression).
+    pub fn regression(&self) -> Ols {
+        self.regression
     }
 
     fn writer(&mut self) -> &mut NcWriter {
@@ -173,14 +289,13 @@ impl<'m> RunWriter<'m> {
         let d = model.drivers_at(t);
         let g = &model.grid;
         let (north, south) = model.ice_edges(temps);
-        let w = self.w.as_mut().expect("open");
-        w.append_coordinate("time", t)?;
-        w.append_row_f64("surface_temperature", temps)?;
-        w.append_row_f64("absorbed_sunlight", &b.absorbed)?;
-        w.append_row_f64("outgoing_longwave", &b.olr)?;
-        w.append_row_f64("transport_convergence", &b.transport)?;
+        let mut rec = std::mem::take(&mut self.rec);
+        rec.clear();
+        for part in [temps, &b.absorbed, &b.olr, &b.transport] {
+            rec.extend_from_slice(part);
+        }
         let (ma, mo, mt) = (g.mean(&b.absorbed), g.mean(&b.olr), g.mean(&b.transport));
-        let vals = [
+        rec.extend_from_slice(&[
             g.mean(temps),
             ma,
             mo,
@@ -189,16 +304,67 @@ impl<'m> RunWriter<'m> {
             d.solar_scale,
             d.greenhouse_wm2,
             d.extra_wm2,
-        ];
-        for ((name, _, _), v) in SERIES.iter().zip(vals) {
-            w.append_row_f64(name, &[v])?;
-        }
-        w.append_row_f64("ice_edge_latitude_north", &[north])?;
+            north,
+        ]);
         if let Some(s) = south {
-            w.append_row_f64("ice_edge_latitude_south", &[s])?;
+            rec.push(s);
+        }
+        if let Some(f) = &model.forcing {
+            let start = rec.len();
+            rec.resize(start + self.params.len(), 0.0);
+            f.parameter_values(t, &mut rec[start..]);
         }
         self.row.copy_from_slice(temps);
         self.last_time = t;
+        let result = match self.annual.as_mut() {
+            None => self.emit(t, None, &rec),
+            Some(acc) => {
+                if acc.sum.len() != rec.len() {
+                    acc.sum = vec![0.0; rec.len()];
+                }
+                let mut mean = Vec::new();
+                match acc.add(t, &rec, &mut mean) {
+                    Some(year) => self.emit(year as f64 + 0.5, Some((year as f64, year as f64 + 1.0)), &mean),
+                    None => Ok(()),
+                }
+            }
+        };
+        self.rec = rec;
+        result
+    }
+
+    /// Append one record (`rec` in the order of `write_record`).
+    fn emit(&mut self, t: f64, bounds: Option<(f64, f64)>, rec: &[f64]) -> Result<(), OutputError> {
+        let n = self.model.len();
+        let globe = self.model.grid.domain == Domain::Globe;
+        let params = std::mem::take(&mut self.params);
+        let w = self.w.as_mut().expect("open");
+        w.append_coordinate("time", t)?;
+        if let Some((a, b)) = bounds {
+            w.append_row_f64("time_bnds", &[a, b])?;
+        }
+        for (k, (name, _, _, _)) in PER_BAND.iter().enumerate() {
+            w.append_row_f64(name, &rec[k * n..(k + 1) * n])?;
+        }
+        let mut at = PER_BAND.len() * n;
+        for (name, _, _) in SERIES.iter() {
+            w.append_row_f64(name, &[rec[at]])?;
+            at += 1;
+        }
+        w.append_row_f64("ice_edge_latitude_north", &[rec[at]])?;
+        at += 1;
+        if globe {
+            w.append_row_f64("ice_edge_latitude_south", &[rec[at]])?;
+            at += 1;
+        }
+        for key in &params {
+            w.append_row_f64(&applied_name(key), &[rec[at]])?;
+            at += 1;
+        }
+        self.params = params;
+        let gmt = rec[PER_BAND.len() * n];
+        let toa = rec[PER_BAND.len() * n + 4];
+        self.regression.add(gmt, toa);
         self.records += 1;
         Ok(())
     }
@@ -213,4 +379,10 @@ impl Observer for RunWriter<'_> {
     fn record(&mut self, t: f64, temps: &[f64]) -> Result<(), Box<dyn std::error::Error + Send + Sync>> {
         self.write_record(t, temps).map_err(|e| Box::new(e) as _)
     }
+}
+
+/// Variable name of a time-varying config key in a run file: `applied_` and the key with dots
+/// as underscores (`transport.diffusivity` -> `applied_transport_diffusivity`).
+pub fn applied_name(key: &str) -> String {
+    format!("applied_{}", key.replace('.', "_"))
 }

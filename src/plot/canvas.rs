@@ -266,13 +266,7 @@ impl Canvas<'_> {
     }
 
     /// Open circle (a ring) of radius `r`.
-    pub fn ring(
-        &self,
-        c: (f64, f64),
-        r: f64,
-        colour: RGBAColor,
-        width: f64,
-    ) -> Result<(), PlotError> {
+    pub fn ring(&self, c: (f64, f64), r: f64, colour: RGBAColor, width: f64) -> Result<(), PlotError> {
         self.root
             .draw(&Circle::new(kp(c), k(r).max(1), stroke(colour, width)))
             .map_err(draw_err)
@@ -362,8 +356,7 @@ fn finish_svg(
         .find("/>\n")
         .map(|i| i + 3)
         .ok_or_else(|| PlotError::Drawing("SVG background missing".into()))?;
-    let mut out =
-        String::with_capacity(svg.len() + bitmaps.iter().map(|b| b.png.len() * 2).sum::<usize>());
+    let mut out = String::with_capacity(svg.len() + bitmaps.iter().map(|b| b.png.len() * 2).sum::<usize>());
     out.push_str(&new_root);
     out.push_str(&rest[..bg_end]);
     for b in bitmaps {
@@ -403,21 +396,15 @@ pub fn base64(bytes: &[u8]) -> String {
 }
 
 /// Encodes an RGBA image (`None` = transparent pixel), row by row from the top, as PNG.
-pub fn encode_rgba_png(
-    width: u32,
-    height: u32,
-    pixels: &[Option<RGBColor>],
-) -> Result<Vec<u8>, PlotError> {
-    let mut pm =
-        tiny_skia::Pixmap::new(width, height).ok_or(PlotError::Render { width, height })?;
+pub fn encode_rgba_png(width: u32, height: u32, pixels: &[Option<RGBColor>]) -> Result<Vec<u8>, PlotError> {
+    let mut pm = tiny_skia::Pixmap::new(width, height).ok_or(PlotError::Render { width, height })?;
     for (dst, src) in pm.pixels_mut().iter_mut().zip(pixels) {
         *dst = match src {
             Some(c) => tiny_skia::ColorU8::from_rgba(c.0, c.1, c.2, 255).premultiply(),
             None => tiny_skia::ColorU8::from_rgba(0, 0, 0, 0).premultiply(),
         };
     }
-    pm.encode_png()
-        .map_err(|e| PlotError::PngEncode(e.to_string()))
+    pm.encode_png().map_err(|e| PlotError::PngEncode(e.to_string()))
 }
 
 // ----------------------------------------------------------------------------------------
@@ -500,10 +487,7 @@ pub fn tick_labels(ticks: &[f64]) -> Vec<String> {
             (false, _) => fmt(v, decimals),
         })
         .collect();
-    labels
-        .into_iter()
-        .map(|s| s.replace('-', "\u{2212}"))
-        .collect()
+    labels.into_iter().map(|s| s.replace('-', "\u{2212}")).collect()
 }
 
 /// Ticks and labels along a horizontal axis of `len_px` pixels, thinned until neighbouring
@@ -534,13 +518,7 @@ pub fn y_ticks(lo: f64, hi: f64, len_px: f64, sizes: &Sizes) -> (Vec<f64>, Vec<S
 }
 
 /// Draws light grid lines at the ticks.
-pub fn draw_grid(
-    c: &Canvas,
-    map: &Mapping,
-    xt: &[f64],
-    yt: &[f64],
-    sizes: &Sizes,
-) -> Result<(), PlotError> {
+pub fn draw_grid(c: &Canvas, map: &Mapping, xt: &[f64], yt: &[f64], sizes: &Sizes) -> Result<(), PlotError> {
     let a = map.area;
     for &t in xt {
         let (px, _) = map.px(t, map.y.0);
@@ -738,10 +716,7 @@ fn clip_segment(a: (f64, f64), b: (f64, f64), r: &Rect) -> Option<((f64, f64), (
     if t0 > t1 {
         return None;
     }
-    Some((
-        (a.0 + t0 * dx, a.1 + t0 * dy),
-        (a.0 + t1 * dx, a.1 + t1 * dy),
-    ))
+    Some(((a.0 + t0 * dx, a.1 + t0 * dy), (a.0 + t1 * dx, a.1 + t1 * dy)))
 }
 
 /// Clips a polygon (pixels) to `r` (Sutherland-Hodgman).
@@ -836,9 +811,7 @@ impl Occupancy {
         }
         for w in pts.windows(2) {
             let (a, b) = (w[0], w[1]);
-            let n = ((b.0 - a.0).hypot(b.1 - a.1) / (0.5 * self.cell))
-                .ceil()
-                .max(1.0) as usize;
+            let n = ((b.0 - a.0).hypot(b.1 - a.1) / (0.5 * self.cell)).ceil().max(1.0) as usize;
             for s in 0..=n {
                 let t = s as f64 / n as f64;
                 self.mark_point(a.0 + t * (b.0 - a.0), a.1 + t * (b.1 - a.1));
@@ -1041,19 +1014,13 @@ mod tests {
     #[test]
     fn tick_labels_use_just_enough_decimals() {
         assert_eq!(tick_labels(&[0.0, 0.5, 1.0]), ["0.0", "0.5", "1.0"]);
-        assert_eq!(
-            tick_labels(&[1280.0, 1300.0, 1320.0]),
-            ["1280", "1300", "1320"]
-        );
+        assert_eq!(tick_labels(&[1280.0, 1300.0, 1320.0]), ["1280", "1300", "1320"]);
         // Float noise from accumulating steps must not leak into labels.
         assert_eq!(
             tick_labels(&[0.1, 0.2, 0.30000000000000004]),
             ["0.1", "0.2", "0.3"]
         );
-        assert_eq!(
-            tick_labels(&[-20.0, -1e-14, 20.0]),
-            ["\u{2212}20", "0", "20"]
-        );
+        assert_eq!(tick_labels(&[-20.0, -1e-14, 20.0]), ["\u{2212}20", "0", "20"]);
         assert_eq!(tick_labels(&[0.0, 2e6, 4e6]), ["0", "2e6", "4e6"]);
     }
 
@@ -1075,13 +1042,7 @@ mod tests {
     fn polyline_clipping_cuts_at_the_frame() {
         let r = Rect::at(0.0, 0.0, 10.0, 10.0);
         let pieces = clip_polyline(
-            &[
-                (-5.0, 5.0),
-                (5.0, 5.0),
-                (5.0, 20.0),
-                (8.0, 20.0),
-                (8.0, 5.0),
-            ],
+            &[(-5.0, 5.0), (5.0, 5.0), (5.0, 20.0), (8.0, 20.0), (8.0, 5.0)],
             &r,
         );
         assert_eq!(pieces.len(), 2, "{pieces:?}");

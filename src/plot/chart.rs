@@ -11,8 +11,8 @@ use plotters::style::text_anchor::{HPos, VPos};
 use plotters::style::{Color, RGBColor};
 
 use super::canvas::{
-    self, clip_polygon, clip_polyline, draw_axes, draw_legend, finite_range, finite_runs,
-    legend_size, padded, Anchor, Canvas, LegendEntry, Mapping, Occupancy, PointShape, Rect, Swatch,
+    self, clip_polygon, clip_polyline, draw_axes, draw_legend, finite_range, finite_runs, legend_size,
+    padded, Anchor, Canvas, LegendEntry, Mapping, Occupancy, PointShape, Rect, Swatch,
 };
 use super::style::{self, em, Sizes, BLACK, WHITE};
 use super::PlotError;
@@ -208,12 +208,7 @@ fn panel_y_range(p: &Panel, xr: (f64, f64)) -> Option<(f64, f64)> {
     let inside = |x: f64| x >= xr.0 && x <= xr.1;
     let mut ys: Vec<f64> = Vec::new();
     for s in &p.series {
-        ys.extend(
-            s.x.iter()
-                .zip(&s.y)
-                .filter(|(x, _)| inside(**x))
-                .map(|(_, y)| *y),
-        );
+        ys.extend(s.x.iter().zip(&s.y).filter(|(x, _)| inside(**x)).map(|(_, y)| *y));
     }
     for b in &p.bands {
         for i in 0..b.x.len() {
@@ -229,14 +224,13 @@ fn panel_y_range(p: &Panel, xr: (f64, f64)) -> Option<(f64, f64)> {
 
 /// Whether a panel shows any finite data at all.
 fn has_data(p: &Panel) -> bool {
-    p.series.iter().any(|s| {
-        s.x.iter()
-            .zip(&s.y)
-            .any(|(x, y)| x.is_finite() && y.is_finite())
-    }) || p.bands.iter().any(|b| {
-        (0..b.x.len())
-            .any(|i| b.x[i].is_finite() && b.lower[i].is_finite() && b.upper[i].is_finite())
-    }) || p.markers.iter().any(|m| m.x.is_finite() && m.y.is_finite())
+    p.series
+        .iter()
+        .any(|s| s.x.iter().zip(&s.y).any(|(x, y)| x.is_finite() && y.is_finite()))
+        || p.bands.iter().any(|b| {
+            (0..b.x.len()).any(|i| b.x[i].is_finite() && b.lower[i].is_finite() && b.upper[i].is_finite())
+        })
+        || p.markers.iter().any(|m| m.x.is_finite() && m.y.is_finite())
 }
 
 fn legend_entries(p: &Panel) -> Vec<LegendEntry> {
@@ -369,9 +363,8 @@ fn layout(
         y += title_h[i];
         let area = Rect::at(left, y, right - left, plot_h);
         y += plot_h;
-        let x_name_y = shows_x_name[i].then(|| {
-            area.y1 + sizes.tick_len + 0.5 * sizes.gap + 1.25 * em(sizes.tick) + 0.5 * sizes.gap
-        });
+        let x_name_y = shows_x_name[i]
+            .then(|| area.y1 + sizes.tick_len + 0.5 * sizes.gap + 1.25 * em(sizes.tick) + 0.5 * sizes.gap);
         y += canvas::x_axis_height(shows_x_name[i], sizes) + sizes.gap;
         panels.push(PanelLayout {
             map: Mapping {
@@ -408,9 +401,8 @@ fn map_series(s: &Series, map: &Mapping) -> Drawn {
         let px: Vec<(f64, f64)> = run.iter().map(|&(x, y)| map.px(x, y)).collect();
         if s.stroke.point_shape().is_some() || px.len() == 1 {
             dots.extend(
-                px.into_iter().filter(|p| {
-                    p.0 >= area.x0 && p.0 <= area.x1 && p.1 >= area.y0 && p.1 <= area.y1
-                }),
+                px.into_iter()
+                    .filter(|p| p.0 >= area.x0 && p.0 <= area.x1 && p.1 >= area.y0 && p.1 <= area.y1),
             );
         } else {
             lines.extend(clip_polyline(&px, &area));
@@ -425,8 +417,7 @@ fn band_polygons(b: &Band, map: &Mapping) -> Vec<Vec<(f64, f64)>> {
     let ok = |i: usize| b.x[i].is_finite() && b.lower[i].is_finite() && b.upper[i].is_finite();
     let mut flush = |run: &mut Vec<usize>| {
         if run.len() >= 2 {
-            let mut poly: Vec<(f64, f64)> =
-                run.iter().map(|&i| map.px(b.x[i], b.upper[i])).collect();
+            let mut poly: Vec<(f64, f64)> = run.iter().map(|&i| map.px(b.x[i], b.upper[i])).collect();
             poly.extend(run.iter().rev().map(|&i| map.px(b.x[i], b.lower[i])));
             let clipped = clip_polygon(&poly, &map.area);
             if clipped.len() >= 3 {
@@ -475,10 +466,7 @@ fn place_labels(p: &Panel, map: &Mapping, occ: &mut Occupancy, sizes: &Sizes) ->
         );
         let mut best: Option<(u64, usize, Rect, bool)> = None;
         let mut order = 0;
-        for (dist, leader) in [
-            (ring + 0.6 * sizes.gap, false),
-            (ring + 4.0 * sizes.gap, true),
-        ] {
+        for (dist, leader) in [(ring + 0.6 * sizes.gap, false), (ring + 4.0 * sizes.gap, true)] {
             let d = dist;
             let cands = [
                 (c.0 + d, c.1 - d - h),       // upper right
@@ -531,20 +519,11 @@ fn legend_candidates(area: &Rect, (w, h): (f64, f64), inset: f64) -> Vec<Rect> {
     let (l, r) = (area.x0 + inset, area.x1 - inset - w);
     let (t, b) = (area.y0 + inset, area.y1 - inset - h);
     let (cx, cy) = (0.5 * (area.x0 + area.x1 - w), 0.5 * (area.y0 + area.y1 - h));
-    [
-        (r, t),
-        (l, t),
-        (r, b),
-        (l, b),
-        (cx, t),
-        (cx, b),
-        (r, cy),
-        (l, cy),
-    ]
-    .into_iter()
-    .map(|(x, y)| Rect::at(x, y, w, h))
-    .filter(|rc| area.contains(rc))
-    .collect()
+    [(r, t), (l, t), (r, b), (l, b), (cx, t), (cx, b), (r, cy), (l, cy)]
+        .into_iter()
+        .map(|(x, y)| Rect::at(x, y, w, h))
+        .filter(|rc| area.contains(rc))
+        .collect()
 }
 
 /// What goes where in one panel once the layout is fixed.
@@ -572,11 +551,9 @@ fn place(p: &Panel, map: &Mapping, sizes: &Sizes) -> Placement {
         for poly in polys {
             // Mark the band's outline and fill it column by column between its x extremes.
             occ.mark_polyline(poly);
-            let (x0, x1) = poly
-                .iter()
-                .fold((f64::INFINITY, f64::NEG_INFINITY), |a, p| {
-                    (a.0.min(p.0), a.1.max(p.0))
-                });
+            let (x0, x1) = poly.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |a, p| {
+                (a.0.min(p.0), a.1.max(p.0))
+            });
             let mut x = x0;
             while x <= x1 {
                 let ys: Vec<f64> = crossings(poly, x);
@@ -633,9 +610,10 @@ pub fn figure_svg(fig: &Figure) -> Result<String, PlotError> {
     let sizes = Sizes::for_picture(fig.width_px, fig.height_px);
     // Shared x range: tight for lines, with a margin when points or markers could sit on
     // the frame.
-    let pointy = fig.panels.iter().any(|p| {
-        !p.markers.is_empty() || p.series.iter().any(|s| s.stroke.point_shape().is_some())
-    });
+    let pointy = fig
+        .panels
+        .iter()
+        .any(|p| !p.markers.is_empty() || p.series.iter().any(|s| s.stroke.point_shape().is_some()));
     let xr = padded(
         finite_range(fig.panels.iter().flat_map(panel_x)),
         if pointy { 0.04 } else { 0.0 },
@@ -643,10 +621,7 @@ pub fn figure_svg(fig: &Figure) -> Result<String, PlotError> {
     let yrs: Vec<(f64, f64)> = fig
         .panels
         .iter()
-        .map(|p| {
-            p.y_range
-                .unwrap_or_else(|| padded(panel_y_range(p, xr), 0.06))
-        })
+        .map(|p| p.y_range.unwrap_or_else(|| padded(panel_y_range(p, xr), 0.06)))
         .collect();
 
     // First try with every legend inside its plot; if one finds no free spot, make a column
@@ -713,10 +688,7 @@ fn draw_panel(
     if let Some(t) = &p.title {
         c.text(
             t,
-            (
-                0.5 * (a.x0 + a.x1),
-                pl.title_y + 0.15 * em(sizes.panel_title),
-            ),
+            (0.5 * (a.x0 + a.x1), pl.title_y + 0.15 * em(sizes.panel_title)),
             sizes.panel_title,
             false,
             Anchor::new(HPos::Center, VPos::Top),
@@ -773,18 +745,10 @@ fn draw_panel(
         let ring = 1.7 * sizes.marker;
         c.ring(spot.point, ring, WHITE.to_rgba(), 2.6 * sizes.frame)?;
         c.ring(spot.point, ring, BLACK.to_rgba(), 1.3 * sizes.frame)?;
-        c.point(
-            PointShape::Disc,
-            spot.point,
-            0.55 * sizes.marker,
-            BLACK.to_rgba(),
-        )?;
+        c.point(PointShape::Disc, spot.point, 0.55 * sizes.marker, BLACK.to_rgba())?;
         let b = spot.text_box;
         if spot.leader {
-            let target = (
-                spot.point.0.clamp(b.x0, b.x1),
-                spot.point.1.clamp(b.y0, b.y1),
-            );
+            let target = (spot.point.0.clamp(b.x0, b.x1), spot.point.1.clamp(b.y0, b.y1));
             let (dx, dy) = (target.0 - spot.point.0, target.1 - spot.point.1);
             let d = dx.hypot(dy).max(1e-9);
             let start = (spot.point.0 + dx / d * ring, spot.point.1 + dy / d * ring);
@@ -823,9 +787,7 @@ pub(crate) mod tests {
     /// A hysteresis-like test figure: an S-shaped curve with stable and unstable parts.
     pub(crate) fn s_curve_figure() -> Figure {
         // x = y^3 - y parametrised by y: folds at y = ±1/sqrt(3).
-        let ys: Vec<f64> = (0..=120)
-            .map(|i| -1.5 + 3.0 * f64::from(i) / 120.0)
-            .collect();
+        let ys: Vec<f64> = (0..=120).map(|i| -1.5 + 3.0 * f64::from(i) / 120.0).collect();
         let fold = 1.0 / 3f64.sqrt();
         let split = |keep: &dyn Fn(f64) -> bool| -> (Vec<f64>, Vec<f64>) {
             ys.iter()
@@ -887,10 +849,7 @@ pub(crate) mod tests {
             "unstable",
             "Branches",
         ] {
-            assert!(
-                t.iter().any(|s| s == want),
-                "missing text {want:?} in {t:?}"
-            );
+            assert!(t.iter().any(|s| s == want), "missing text {want:?} in {t:?}");
         }
         assert!(t.iter().any(|s| s.starts_with("fold x = ")));
         let doc = roxmltree::Document::parse(&svg).unwrap();
@@ -932,9 +891,9 @@ pub(crate) mod tests {
     #[test]
     fn mismatched_lengths_are_reported_with_the_series() {
         let mut fig = s_curve_figure();
-        fig.panels[0].series.push(
-            Series::new(vec![1.0, 2.0, 3.0], vec![1.0, 2.0], Stroke::Solid, 2).labelled("short"),
-        );
+        fig.panels[0]
+            .series
+            .push(Series::new(vec![1.0, 2.0, 3.0], vec![1.0, 2.0], Stroke::Solid, 2).labelled("short"));
         let err = figure_svg(&fig).unwrap_err();
         match &err {
             PlotError::LengthMismatch {
@@ -943,10 +902,7 @@ pub(crate) mod tests {
                 found,
             } => {
                 assert_eq!((*expected, *found), (3, 2));
-                assert!(
-                    what.contains("series 2") && what.contains("short"),
-                    "{what}"
-                );
+                assert!(what.contains("series 2") && what.contains("short"), "{what}");
             }
             other => panic!("unexpected error {other}"),
         }
@@ -962,10 +918,7 @@ pub(crate) mod tests {
             upper: vec![1.0, 2.0],
             colour: 0,
         });
-        assert!(matches!(
-            figure_svg(&fig),
-            Err(PlotError::LengthMismatch { .. })
-        ));
+        assert!(matches!(figure_svg(&fig), Err(PlotError::LengthMismatch { .. })));
     }
 
     #[test]
@@ -1064,14 +1017,12 @@ pub(crate) mod tests {
         let mut p = Panel::new("x (1)", "y (1)");
         p.series
             .push(Series::new(vec![0.0, 1.0], vec![0.0, 1.0], Stroke::Solid, 0).labelled("rising"));
-        p.series.push(
-            Series::new(vec![0.0, 1.0], vec![1.0, 0.0], Stroke::Solid, 1).labelled("falling"),
-        );
+        p.series
+            .push(Series::new(vec![0.0, 1.0], vec![1.0, 0.0], Stroke::Solid, 1).labelled("falling"));
         p.series
             .push(Series::new(vec![0.0, 1.0], vec![0.5, 0.5], Stroke::Dashed, 2).labelled("flat"));
-        p.series.push(
-            Series::new(vec![0.5, 0.5], vec![0.0, 1.0], Stroke::Dashed, 3).labelled("upright"),
-        );
+        p.series
+            .push(Series::new(vec![0.5, 0.5], vec![0.0, 1.0], Stroke::Dashed, 3).labelled("upright"));
         let fig = Figure {
             title: "Crowded".into(),
             panels: vec![p],
@@ -1080,17 +1031,8 @@ pub(crate) mod tests {
         };
         let sizes = Sizes::for_picture(800, 500);
         style::ensure_fonts().unwrap();
-        let lay = layout(
-            &fig,
-            &sizes,
-            (0.0, 1.0),
-            &[padded(Some((0.0, 1.0)), 0.06)],
-            0.0,
-        )
-        .unwrap();
-        assert!(place(&fig.panels[0], &lay.panels[0].map, &sizes)
-            .legend
-            .is_none());
+        let lay = layout(&fig, &sizes, (0.0, 1.0), &[padded(Some((0.0, 1.0)), 0.06)], 0.0).unwrap();
+        assert!(place(&fig.panels[0], &lay.panels[0].map, &sizes).legend.is_none());
         let svg = figure_svg(&fig).unwrap();
         assert!(texts(&svg).iter().any(|s| s == "upright"));
     }

@@ -29,12 +29,7 @@ struct Edge {
 
 /// The lines where the field equals `level`. Errors if `z` does not hold
 /// `x.len() * y.len()` values.
-pub fn contour_lines(
-    x: &[f64],
-    y: &[f64],
-    z: &[f64],
-    level: f64,
-) -> Result<Vec<Polyline>, PlotError> {
+pub fn contour_lines(x: &[f64], y: &[f64], z: &[f64], level: f64) -> Result<Vec<Polyline>, PlotError> {
     let (nx, ny) = (x.len(), y.len());
     if z.len() != nx * ny {
         return Err(PlotError::LengthMismatch {
@@ -50,11 +45,7 @@ pub fn contour_lines(
     let above = |v: f64| v >= level;
     // Crossing point on an edge whose two ends lie on opposite sides of the level.
     let point = |e: Edge| -> (f64, f64) {
-        let (i1, j1) = if e.along_x {
-            (e.i + 1, e.j)
-        } else {
-            (e.i, e.j + 1)
-        };
+        let (i1, j1) = if e.along_x { (e.i + 1, e.j) } else { (e.i, e.j + 1) };
         let (za, zb) = (at(e.i, e.j), at(i1, j1));
         let t = ((level - za) / (zb - za)).clamp(0.0, 1.0);
         (x[e.i] + t * (x[i1] - x[e.i]), y[e.j] + t * (y[j1] - y[e.j]))
@@ -70,11 +61,7 @@ pub fn contour_lines(
             let b = c.map(above);
             // Edges in order bottom, right, top, left; edge k joins corners k and k + 1.
             let edges = [
-                Edge {
-                    along_x: true,
-                    i,
-                    j,
-                },
+                Edge { along_x: true, i, j },
                 Edge {
                     along_x: false,
                     i: i + 1,
@@ -85,11 +72,7 @@ pub fn contour_lines(
                     i,
                     j: j + 1,
                 },
-                Edge {
-                    along_x: false,
-                    i,
-                    j,
-                },
+                Edge { along_x: false, i, j },
             ];
             let cut: Vec<usize> = (0..4).filter(|&k| b[k] != b[(k + 1) % 4]).collect();
             match cut.len() {
@@ -170,12 +153,8 @@ mod tests {
     use super::*;
 
     fn grid(nx: usize, ny: usize, f: impl Fn(f64, f64) -> f64) -> (Vec<f64>, Vec<f64>, Vec<f64>) {
-        let x: Vec<f64> = (0..nx)
-            .map(|i| -1.0 + 2.0 * i as f64 / (nx - 1) as f64)
-            .collect();
-        let y: Vec<f64> = (0..ny)
-            .map(|j| -1.0 + 2.0 * j as f64 / (ny - 1) as f64)
-            .collect();
+        let x: Vec<f64> = (0..nx).map(|i| -1.0 + 2.0 * i as f64 / (nx - 1) as f64).collect();
+        let y: Vec<f64> = (0..ny).map(|j| -1.0 + 2.0 * j as f64 / (ny - 1) as f64).collect();
         let mut z = Vec::with_capacity(nx * ny);
         for &xi in &x {
             for &yj in &y {

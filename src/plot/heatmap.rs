@@ -14,8 +14,8 @@ use plotters::style::text_anchor::{HPos, VPos};
 use plotters::style::{Color, RGBColor};
 
 use super::canvas::{
-    self, draw_legend, encode_rgba_png, finite_range, legend_size, Anchor, Bitmap, Canvas,
-    LegendEntry, Mapping, Occupancy, Pieces, PointShape, Rect, Swatch,
+    self, draw_legend, encode_rgba_png, finite_range, legend_size, Anchor, Bitmap, Canvas, LegendEntry,
+    Mapping, Occupancy, Pieces, PointShape, Rect, Swatch,
 };
 use super::chart::{Series, Stroke};
 use super::contour::contour_lines;
@@ -118,11 +118,7 @@ fn validate(m: &HeatMap) -> Result<(), PlotError> {
     }
     if m.z.len() != m.x.len() * m.y.len() {
         return Err(PlotError::LengthMismatch {
-            what: format!(
-                "heat map z ({} x values times {} y values)",
-                m.x.len(),
-                m.y.len()
-            ),
+            what: format!("heat map z ({} x values times {} y values)", m.x.len(), m.y.len()),
             expected: m.x.len() * m.y.len(),
             found: m.z.len(),
         });
@@ -199,10 +195,7 @@ fn pixel_cells(edges: &[f64]) -> Vec<usize> {
         .map(|p| {
             let v = edges[0] + (p as f64 + 0.5) * span / m as f64;
             // Index of the last edge at or below v, i.e. the cell holding v.
-            edges
-                .partition_point(|e| *e <= v)
-                .saturating_sub(1)
-                .min(n - 1)
+            edges.partition_point(|e| *e <= v).saturating_sub(1).min(n - 1)
         })
         .collect()
 }
@@ -361,12 +354,8 @@ fn layout(m: &HeatMap, scale: &Scale, sizes: &Sizes) -> Result<Layout, PlotError
                 zt.1.iter()
                     .map(|s| style::text_width(s, sizes.tick, false))
                     .fold(0.0, f64::max);
-            let side = bar_w
-                + sizes.tick_len
-                + 0.5 * sizes.gap
-                + widest
-                + sizes.gap
-                + 1.25 * em(sizes.axis_label);
+            let side =
+                bar_w + sizes.tick_len + 0.5 * sizes.gap + widest + sizes.gap + 1.25 * em(sizes.axis_label);
             (zt, side)
         }
         Scale::Classes(cl) => {
@@ -436,10 +425,7 @@ fn point_along(l: &[(f64, f64)], f: f64) -> (f64, f64) {
         let d = (w[1].0 - w[0].0).hypot(w[1].1 - w[0].1);
         if d >= left && d > 0.0 {
             let t = left / d;
-            return (
-                w[0].0 + t * (w[1].0 - w[0].0),
-                w[0].1 + t * (w[1].1 - w[0].1),
-            );
+            return (w[0].0 + t * (w[1].0 - w[0].0), w[0].1 + t * (w[1].1 - w[0].1));
         }
         left -= d;
     }
@@ -569,11 +555,7 @@ pub fn heatmap_svg(m: &HeatMap) -> Result<String, PlotError> {
             &lay.yt,
             Some((
                 &m.x_label,
-                map.area.y1
-                    + sizes.tick_len
-                    + 0.5 * sizes.gap
-                    + 1.25 * em(sizes.tick)
-                    + 0.5 * sizes.gap,
+                map.area.y1 + sizes.tick_len + 0.5 * sizes.gap + 1.25 * em(sizes.tick) + 0.5 * sizes.gap,
             )),
             Some((&m.y_label, sizes.margin)),
             &sizes,
@@ -594,9 +576,7 @@ pub fn heatmap_svg(m: &HeatMap) -> Result<String, PlotError> {
             draw_legend(c, &overlay_entries(m), at, true, false, &sizes)?;
         }
         match &scale {
-            Scale::Continuous { lo, hi } => {
-                draw_colour_bar(c, m, &lay, (*lo, *hi), &contours, &sizes)
-            }
+            Scale::Continuous { lo, hi } => draw_colour_bar(c, m, &lay, (*lo, *hi), &contours, &sizes),
             Scale::Classes(cl) => draw_classes(c, m, &lay, cl, &sizes),
         }
     })
@@ -662,11 +642,7 @@ fn draw_colour_bar(
     for (level, _, _) in contours {
         if *level >= lo && *level <= hi {
             let (_, y) = bar_map.px(0.0, *level);
-            c.line(
-                &[(bar.x0, y), (bar.x1, y)],
-                WHITE.to_rgba(),
-                2.6 * sizes.line,
-            )?;
+            c.line(&[(bar.x0, y), (bar.x1, y)], WHITE.to_rgba(), 2.6 * sizes.line)?;
             c.line(&[(bar.x0, y), (bar.x1, y)], BLACK.to_rgba(), sizes.line)?;
         }
     }
@@ -811,10 +787,7 @@ mod tests {
         ] {
             assert!(texts.iter().any(|s| s == want), "missing {want:?}");
         }
-        let images: Vec<_> = doc
-            .descendants()
-            .filter(|n| n.has_tag_name("image"))
-            .collect();
+        let images: Vec<_> = doc.descendants().filter(|n| n.has_tag_name("image")).collect();
         assert_eq!(images.len(), 2, "field and colour bar");
         assert_eq!(images[0].attribute("image-rendering"), Some("pixelated"));
     }
@@ -862,10 +835,7 @@ mod tests {
         let m = field();
         let lines = contour_lines(&m.x, &m.y, &m.z, 273.15).unwrap();
         assert_eq!(lines.len(), 1);
-        let at_start = lines[0]
-            .iter()
-            .find(|p| p.0 == 0.0)
-            .expect("line reaches t = 0");
+        let at_start = lines[0].iter().find(|p| p.0 == 0.0).expect("line reaches t = 0");
         let want = (26.85f64 / 50.0).sqrt().asin().to_degrees();
         // Linear interpolation between latitudes 5 deg apart of a smooth profile: error well
         // under 0.2 deg here (curvature of sin^2 over one 5 deg step).
@@ -879,10 +849,7 @@ mod tests {
         let cells = pixel_cells(&e);
         // The middle cell spans 1.5 of 4.5 units: a third of the pixels.
         let share = cells.iter().filter(|&&c| c == 1).count() as f64 / cells.len() as f64;
-        assert!(
-            (share - 1.5 / 4.5).abs() < 1.0 / cells.len() as f64,
-            "{share}"
-        );
+        assert!((share - 1.5 / 4.5).abs() < 1.0 / cells.len() as f64, "{share}");
         assert_eq!(pixel_cells(&edges(&[0.0, 1.0, 2.0])), vec![0, 1, 2]);
     }
 
@@ -904,30 +871,21 @@ mod tests {
                 .flat_map(|&t| m.y.iter().map(move |&l| 250.0 + 0.5 * l + 0.1 * t))
                 .collect();
         style::ensure_fonts().unwrap();
-        let scale = Scale::Continuous {
-            lo: 250.0,
-            hi: 300.0,
-        };
+        let scale = Scale::Continuous { lo: 250.0, hi: 300.0 };
         let lay = layout(&m, &scale, &Sizes::for_picture(900, 560)).unwrap();
         assert_eq!(lay.map.y, (0.0, 90.0));
         // The top band (asin(5/6) = 56.4 deg to 90 deg) gets its true share of the pixel rows.
         let rows = pixel_cells(m.y_edges.as_ref().unwrap());
         let top = rows.iter().filter(|&&j| j == 5).count() as f64 / rows.len() as f64;
         let want = (90.0 - (5.0f64 / 6.0).asin().to_degrees()) / 90.0;
-        assert!(
-            (top - want).abs() <= 1.0 / rows.len() as f64,
-            "{top} vs {want}"
-        );
+        assert!((top - want).abs() <= 1.0 / rows.len() as f64, "{top} vs {want}");
     }
 
     #[test]
     fn nan_cells_are_transparent() {
         let mut m = field();
         m.z[5 * 18 + 9] = f64::NAN;
-        let scale = Scale::Continuous {
-            lo: 250.0,
-            hi: 304.0,
-        };
+        let scale = Scale::Continuous { lo: 250.0, hi: 304.0 };
         let png = field_png(&m, &scale).unwrap();
         let pm = resvg::tiny_skia::Pixmap::decode_png(&png).unwrap();
         assert_eq!((pm.width(), pm.height()), (40, 18));
@@ -965,12 +923,8 @@ mod tests {
             Err(PlotError::UnknownClass { i: 0, j: 0, .. })
         ));
         let mut m = field();
-        m.overlay
-            .push(Series::new(vec![1.0], vec![], Stroke::Solid, 0));
-        assert!(matches!(
-            heatmap_svg(&m),
-            Err(PlotError::LengthMismatch { .. })
-        ));
+        m.overlay.push(Series::new(vec![1.0], vec![], Stroke::Solid, 0));
+        assert!(matches!(heatmap_svg(&m), Err(PlotError::LengthMismatch { .. })));
     }
 
     #[test]
@@ -1010,17 +964,9 @@ mod tests {
         };
         let svg = heatmap_svg(&m).unwrap();
         for name in ["snowball", "ice cap", "ice free", "Climate"] {
-            assert!(
-                svg.contains(&format!(">\n{name}\n<")),
-                "missing class {name}"
-            );
+            assert!(svg.contains(&format!(">\n{name}\n<")), "missing class {name}");
         }
         let doc = roxmltree::Document::parse(&svg).unwrap();
-        assert_eq!(
-            doc.descendants()
-                .filter(|n| n.has_tag_name("image"))
-                .count(),
-            1
-        );
+        assert_eq!(doc.descendants().filter(|n| n.has_tag_name("image")).count(), 1);
     }
 }

@@ -97,7 +97,9 @@ pub enum PlotError {
     #[error("figure \"{0}\" has no panels")]
     NoPanels(String),
     /// A categorical map holds a value that is none of its classes.
-    #[error("categorical map: value {value} at x index {i}, y index {j} is not one of the classes {classes:?}")]
+    #[error(
+        "categorical map: value {value} at x index {i}, y index {j} is not one of the classes {classes:?}"
+    )]
     UnknownClass {
         /// The offending value.
         value: f64,

@@ -53,11 +53,10 @@ fn parse(svg: &str) -> Result<usvg::Tree, PlotError> {
 pub fn svg_to_pixmap(svg: &str) -> Result<tiny_skia::Pixmap, PlotError> {
     let tree = parse(svg)?;
     let size = tree.size().to_int_size();
-    let mut pixmap =
-        tiny_skia::Pixmap::new(size.width(), size.height()).ok_or(PlotError::Render {
-            width: size.width(),
-            height: size.height(),
-        })?;
+    let mut pixmap = tiny_skia::Pixmap::new(size.width(), size.height()).ok_or(PlotError::Render {
+        width: size.width(),
+        height: size.height(),
+    })?;
     resvg::render(&tree, tiny_skia::Transform::default(), &mut pixmap.as_mut());
     Ok(pixmap)
 }
@@ -91,12 +90,7 @@ mod tests {
 
     #[test]
     fn text_renders_with_the_embedded_font_under_any_generic_family() {
-        for family in [
-            "DejaVu Sans, sans-serif",
-            "sans-serif",
-            "serif",
-            "NoSuchFont",
-        ] {
+        for family in ["DejaVu Sans, sans-serif", "sans-serif", "serif", "NoSuchFont"] {
             let svg = format!(
                 r#"<svg xmlns="http://www.w3.org/2000/svg" width="200" height="60"><rect width="200" height="60" fill="white"/><text x="10" y="40" font-family="{family}" font-size="28">25 °C</text></svg>"#
             );

@@ -149,11 +149,7 @@ pub fn ensure_fonts() -> Result<(), PlotError> {
 
 /// Font description at `size` (1x pixels, scaled by [`OVERSAMPLE`] here).
 pub fn font(size: f64, bold: bool) -> FontDesc<'static> {
-    let style = if bold {
-        FontStyle::Bold
-    } else {
-        FontStyle::Normal
-    };
+    let style = if bold { FontStyle::Bold } else { FontStyle::Normal };
     FontDesc::new(FontFamily::Name(FONT_FAMILY), size * OVERSAMPLE, style)
 }
 

@@ -1,0 +1,51 @@
+//! `icefold ensemble CONFIG [--shard K/N]`: Latin hypercube ensemble over the `[ensemble]` keys,
+//! members in parallel, one file with a `member` dimension.
+
+use super::{ConfigArgs, OutputArgs};
+use crate::error::Error;
+use crate::jobs::ensemble::{ensemble_to_file, EnsembleOptions};
+
+/// Run the configured ensemble (or one shard of it).
+pub fn main(
+    args: &ConfigArgs,
+    out: &OutputArgs,
+    shard: Option<&str>,
+    threads: Option<usize>,
+) -> Result<(), Error> {
+    let shard = shard
+        .map(crate::ensemble::parse_shard)
+        .transpose()
+        .map_err(Error::Usage)?;
+    if threads == Some(0) {
+        return Err(Error::Usage(
+            "--threads 0: give at least 1 (or leave it out for all cores)".into(),
+        ));
+    }
+    let cfg = super::load(args)?;
+    let command = match shard {
+        Some((k, n)) => format!("ensemble-{k}of{n}"),
+        None => "ensemble".to_string(),
+    };
+    let path = super::output_path(out, &args.config, &command)?;
+    let start = std::time::Instant::now();
+    let report = ensemble_to_file(
+        &cfg,
+        &path,
+        &super::command_line(),
+        EnsembleOptions {
+            shard,
+            threads,
+            progress: true,
+        },
+    )?;
+    eprintln!(
+        "icefold: wrote {} (members {} to {}{}, {} failed) in {:.2} s",
+        path.display(),
+        report.first_member,
+        report.first_member + report.members.max(1) - 1,
+        shard.map(|(k, n)| format!(", shard {k}/{n}")).unwrap_or_default(),
+        report.failed,
+        start.elapsed().as_secs_f64()
+    );
+    Ok(())
+}

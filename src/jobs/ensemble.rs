@@ -1,0 +1,371 @@
+//! The `ensemble` job: sample the `[ensemble]` keys (Latin hypercube), run the members of this
+//! shard in parallel (rayon), collect each member's series and diagnostics, write the file.
+//!
+//! Determinism: the samples are drawn for all members from the seed before anything runs, each
+//! member is computed independently by the same sequential code, and results are collected in
+//! member order, so the file is the same value for value on any number of threads and, after
+//! `merge`, for any split into shards.
+
+use crate::cli::progress;
+use crate::config::spec::{EnsembleSpec, OutputMode};
+use crate::config::{ConfigError, Loaded};
+use crate::ensemble::{sample, shard_range};
+use crate::equilibrium::NewtonOptions;
+use crate::error::Error;
+use crate::integrate::driver::{self, Observer, RunError};
+use crate::model::{Model, Workspace};
+use crate::output::ensemble_file::{self, EnsembleData, SensitivityColumns};
+use crate::output::run_file::YearMean;
+use rayon::prelude::*;
+use std::path::Path;
+
+/// Largest number of field values (members x times x bands) held for `ensemble.fields`.
+pub const MAX_FIELD_VALUES: usize = 400_000_000;
+
+/// How an ensemble job runs.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub struct EnsembleOptions {
+    /// Run only shard `K` of `N`.
+    pub shard: Option<(usize, usize)>,
+    /// Worker threads (`None`: rayon's default, all cores or `RAYON_NUM_THREADS`).
+    pub threads: Option<usize>,
+    /// Show a progress bar across members.
+    pub progress: bool,
+}
+
+/// What one member produced.
+struct MemberResult {
+    /// `[time][gmt, toa, north, south?, field...]` flattened, NaN-filled after a failure.
+    records: Vec<f64>,
+    failure: Option<String>,
+    fit: Option<crate::ensemble::stats::Fit>,
+    sensitivity: Option<[f64; 4]>,
+}
+
+/// Collects a member's records (through annual means if asked).
+struct Collector<'m> {
+    model: &'m Model,
+    ws: Workspace,
+    heat: Vec<f64>,
+    rec: Vec<f64>,
+    width: usize,
+    fields: bool,
+    annual: Option<YearMean>,
+    mean: Vec<f64>,
+    out: Vec<f64>,
+    ols: crate::ensemble::stats::Ols,
+}
+
+impl Collector<'_> {
+    fn push(&mut self, rec: &[f64]) {
+        self.ols.add(rec[0], rec[1]);
+        self.out.extend_from_slice(rec);
+    }
+}
+
+impl Observer for Collector<'_> {
+    fn record(&mut self, t: f64, temps: &[f64]) -> Result<(), Box<dyn std::error::Error + Send + Sync>> {
+        let m = self.model;
+        // The global mean of the net heating is the top-of-atmosphere imbalance (absorbed -
+        // outgoing + transport convergence + additive forcing), without allocating a budget.
+        m.heating(t, temps, &mut self.ws, &mut self.heat);
+        let g = &m.grid;
+        let (north, south) = m.ice_edges(temps);
+        self.rec.clear();
+        self.rec.push(g.mean(temps));
+        self.rec.push(g.mean(&self.heat));
+        self.rec.push(north);
+        if let Some(s) = south {
+            self.rec.push(s);
+        }
+        if self.fields {
+            self.rec.extend_from_slice(temps);
+        }
+        match self.annual.as_mut() {
+            None => {
+                let rec = std::mem::take(&mut self.rec);
+                self.push(&rec);
+                self.rec = rec;
+            }
+            Some(acc) => {
+                if acc.sum.len() != self.rec.len() {
+                    acc.sum = vec![0.0; self.rec.len()];
+                }
+                let mut mean = std::mem::take(&mut self.mean);
+                if acc.add(t, &self.rec, &mut mean).is_some() {
+                    self.push(&mean);
+                }
+                self.mean = mean;
+            }
+        }
+        debug_assert!(self.out.len() % self.width == 0);
+        Ok(())
+    }
+}
+
+/// The output times every member shares.
+fn time_axis(cfg: &Loaded) -> Result<Vec<f64>, Error> {
+    let t = &cfg.spec.time;
+    match t.output {
+        OutputMode::Instant => Ok(driver::output_times(t.years, t.output_every).collect()),
+        OutputMode::AnnualMean { .. } => Ok((0..(t.years * (1.0 + 1e-12)).floor() as u64)
+            .map(|y| y as f64 + 0.5)
+            .collect()),
+        OutputMode::EveryStep => Err(Error::Config(ConfigError::Range {
+            path: cfg.source.clone(),
+            key: "time.output".into(),
+            value: "\"every_step\"".into(),
+            allowed: "allowed in an ensemble: \"instant\" or \"annual_mean\" (members need one time axis)"
+                .into(),
+        })),
+    }
+}
+
+fn run_member(cfg: &Loaded, spec: &EnsembleSpec, times: usize) -> MemberResult {
+    let model = Model::from_spec(&cfg.spec.model);
+    let y0 = model.initial_state(&cfg.spec.initial);
+    let globe = model.grid.domain == crate::grid::Domain::Globe;
+    let width = 3 + usize::from(globe) + if spec.fields { model.len() } else { 0 };
+    let annual = match cfg.spec.time.output {
+        OutputMode::AnnualMean { samples_per_year } => Some(YearMean::new(samples_per_year)),
+        _ => None,
+    };
+    let mut c = Collector {
+        model: &model,
+        ws: Workspace::new(model.len()),
+        heat: vec![0.0; model.len()],
+        rec: Vec::with_capacity(width),
+        width,
+        fields: spec.fields,
+        annual,
+        mean: Vec::new(),
+        out: Vec::with_capacity(width * times),
+        ols: Default::default(),
+    };
+    let result = driver::run(&model, &cfg.spec.time, &y0, &mut c, &mut |_| {});
+    let failure = match result {
+        Ok(_) => None,
+        Err(RunError::Solver(e)) => Some(e.to_string()),
+        Err(e) => Some(e.to_string()),
+    };
+    let mut records = c.out;
+    records.resize(width * times, f64::NAN);
+    let fit = crate::jobs::diagnostics::gregory(&c.ols);
+    let sensitivity = spec.sensitivity.then(|| {
+        let eq = &cfg.spec.equilibrium;
+        let opts = NewtonOptions {
+            tolerance_wm2: eq.tolerance_wm2,
+            max_iterations: eq.max_iterations,
+            ..NewtonOptions::default()
+        };
+        match crate::jobs::diagnostics::co2_doubling(&model, &y0, cfg.spec.model.co2.2, opts) {
+            Ok(s) => [
+                s.ecs_k,
+                s.ice_edge_base_deg,
+                s.ice_edge_doubled_deg,
+                s.ice_edge_per_wm2,
+            ],
+            Err(_) => [f64::NAN; 4],
+        }
+    });
+    MemberResult {
+        records,
+        failure,
+        fit,
+        sensitivity,
+    }
+}
+
+/// Run the ensemble (or one shard of it) and return the file content.
+pub fn run_ensemble(cfg: &Loaded, opts: EnsembleOptions) -> Result<EnsembleData, Error> {
+    let spec = cfg.spec.ensemble.clone().ok_or_else(|| {
+        Error::Config(ConfigError::Key {
+            path: cfg.source.clone(),
+            key: "ensemble".into(),
+            message: "no [ensemble] section; add one with `members` and [[ensemble.parameters]] tables"
+                .into(),
+        })
+    })?;
+    for (key, _) in &spec.parameters {
+        if cfg.number(key).is_none() {
+            return Err(Error::Config(ConfigError::Key {
+                path: cfg.source.clone(),
+                key: key.clone(),
+                message: "not a numeric key of this configuration (is its section's kind using it?); [[ensemble.parameters]] keys must be numeric model keys".into(),
+            }));
+        }
+    }
+    let times = time_axis(cfg)?;
+    let total = spec.members;
+    let range = match opts.shard {
+        Some((k, n)) => shard_range(total, k, n),
+        None => 0..total,
+    };
+    let dists: Vec<_> = spec.parameters.iter().map(|(_, d)| d).collect();
+    let keys: Vec<String> = spec.parameters.iter().map(|(k, _)| k.clone()).collect();
+    let all = sample(&dists, total, spec.seed);
+    let mine = &all[range.clone()];
+    let model0 = Model::from_spec(&cfg.spec.model);
+    let n = model0.len();
+    let globe = model0.grid.domain == crate::grid::Domain::Globe;
+    if spec.fields && range.len().saturating_mul(times.len()).saturating_mul(n) > MAX_FIELD_VALUES {
+        return Err(Error::Usage(format!(
+            "ensemble.fields = true would hold {} x {} x {} values; the limit is {MAX_FIELD_VALUES}: run shards (--shard K/N) or set ensemble.fields = false",
+            range.len(),
+            times.len(),
+            n
+        )));
+    }
+    let pool = match opts.threads {
+        Some(t) => Some(
+            rayon::ThreadPoolBuilder::new()
+                .num_threads(t)
+                .build()
+                .map_err(|e| Error::Other(format!("cannot start {t} worker threads: {e}")))?,
+        ),
+        None => None,
+    };
+    let pb = if opts.progress {
+        progress::bar(range.len() as u64, "members")
+    } else {
+        indicatif::ProgressBar::hidden()
+    };
+    let work = || -> Result<Vec<MemberResult>, Error> {
+        // Validate every member first (a bad sample is bad input, exit 2, before any run).
+        let configs: Vec<Loaded> = mine
+            .par_iter()
+            .enumerate()
+            .map(|(i, values)| {
+                let pairs: Vec<(&str, f64)> = keys
+                    .iter()
+                    .map(String::as_str)
+                    .zip(values.iter().copied())
+                    .collect();
+                cfg.with_values(&pairs).map_err(|e| {
+                    Error::Usage(format!(
+                        "ensemble member {} (sampled {}): {e}",
+                        range.start + i,
+                        pairs
+                            .iter()
+                            .map(|(k, v)| format!("{k} = {v}"))
+                            .collect::<Vec<_>>()
+                            .join(", ")
+                    ))
+                })
+            })
+            .collect::<Result<_, _>>()?;
+        Ok(configs
+            .par_iter()
+            .map(|c| {
+                let r = run_member(c, &spec, times.len());
+                pb.inc(1);
+                r
+            })
+            .collect())
+    };
+    let results = match &pool {
+        Some(p) => p.install(work)?,
+        None => work()?,
+    };
+    pb.finish_and_clear();
+    let count = results.len();
+    let width = 3 + usize::from(globe) + if spec.fields { n } else { 0 };
+    let nt = times.len();
+    let mut data = EnsembleData {
+        config_toml: cfg.resolved_text(),
+        title: cfg.spec.title.clone(),
+        members_total: total,
+        first_member: range.start,
+        seed: spec.seed,
+        keys,
+        distributions: spec.parameters.iter().map(|(_, d)| d.describe()).collect(),
+        samples: mine.iter().flatten().copied().collect(),
+        time: times,
+        annual_means: matches!(cfg.spec.time.output, OutputMode::AnnualMean { .. }),
+        lat: model0.grid.lat_centres_deg(),
+        lat_bnds: {
+            let f = model0.grid.lat_faces_deg();
+            (0..n).flat_map(|i| [f[i], f[i + 1]]).collect()
+        },
+        area_weight: model0.grid.weights.clone(),
+        global_mean_temperature: Vec::with_capacity(count * nt),
+        toa_imbalance: Vec::with_capacity(count * nt),
+        ice_edge_latitude_north: Vec::with_capacity(count * nt),
+        ice_edge_latitude_south: globe.then(|| Vec::with_capacity(count * nt)),
+        status: Vec::with_capacity(count),
+        feedback: Vec::with_capacity(count),
+        effective_forcing: Vec::with_capacity(count),
+        gregory_r2: Vec::with_capacity(count),
+        sensitivity: spec.sensitivity.then(SensitivityColumns::default),
+        fields: spec.fields.then(|| Vec::with_capacity(count * nt * n)),
+        failures: Vec::new(),
+    };
+    for (i, r) in results.into_iter().enumerate() {
+        for rec in r.records.chunks_exact(width) {
+            data.global_mean_temperature.push(rec[0]);
+            data.toa_imbalance.push(rec[1]);
+            data.ice_edge_latitude_north.push(rec[2]);
+            if let Some(s) = data.ice_edge_latitude_south.as_mut() {
+                s.push(rec[3]);
+            }
+            if let Some(f) = data.fields.as_mut() {
+                f.extend_from_slice(&rec[width - n..]);
+            }
+        }
+        data.status.push(i32::from(r.failure.is_some()));
+        if let Some(msg) = r.failure {
+            data.failures.push((range.start + i, msg));
+        }
+        data.feedback.push(r.fit.map_or(f64::NAN, |f| f.slope));
+        data.effective_forcing
+            .push(r.fit.map_or(f64::NAN, |f| f.intercept_at_first));
+        data.gregory_r2.push(r.fit.map_or(f64::NAN, |f| f.r2));
+        if let (Some(cols), Some(s)) = (data.sensitivity.as_mut(), r.sensitivity) {
+            cols.ecs_k.push(s[0]);
+            cols.ice_edge_base_deg.push(s[1]);
+            cols.ice_edge_doubled_deg.push(s[2]);
+            cols.ice_edge_per_wm2.push(s[3]);
+        }
+    }
+    Ok(data)
+}
+
+/// What an ensemble job reports.
+#[derive(Debug, Clone, PartialEq)]
+pub struct EnsembleReport {
+    /// Members run.
+    pub members: usize,
+    /// Members that failed numerically.
+    pub failed: usize,
+    /// Index of the first member.
+    pub first_member: usize,
+}
+
+/// Run and write the file at `path`.
+pub fn ensemble_to_file(
+    cfg: &Loaded,
+    path: &Path,
+    command_line: &str,
+    opts: EnsembleOptions,
+) -> Result<EnsembleReport, Error> {
+    let data = run_ensemble(cfg, opts)?;
+    ensemble_file::write(path, &data, command_line, opts.shard)?;
+    Ok(EnsembleReport {
+        members: data.count(),
+        failed: data.failures.len(),
+        first_member: data.first_member,
+    })
+}
+
+/// Merge shard files into the file a single run writes.
+pub fn merge_files(inputs: &[std::path::PathBuf], output: &Path, command_line: &str) -> Result<usize, Error> {
+    let mut parts = Vec::new();
+    for p in inputs {
+        let (d, _) =
+            ensemble_file::read(p).map_err(|e| Error::Usage(format!("cannot merge {}: {e}", p.display())))?;
+        parts.push((p.display().to_string(), d));
+    }
+    let data = ensemble_file::join(parts).map_err(|e| Error::Usage(format!("cannot merge: {e}")))?;
+    ensemble_file::write(output, &data, command_line, None)?;
+    Ok(data.count())
+}

@@ -1,0 +1,343 @@
+//! Pictures of output files: reads a file, builds the figures that fit its kind, and writes each
+//! as SVG and PNG. Drawing itself lives in `plot` (which reads no files).
+
+use crate::error::Error;
+use crate::output::NcReader;
+use crate::plot::{self, Figure, HeatMap, Panel, Series, Stroke};
+use std::path::{Path, PathBuf};
+
+fn plot_err(e: plot::PlotError) -> Error {
+    Error::Other(format!("plot: {e}"))
+}
+
+fn read(r: &NcReader, name: &str) -> Result<Vec<f64>, Error> {
+    Ok(r.read_f64(name)?)
+}
+
+fn has(r: &NcReader, name: &str) -> Result<bool, Error> {
+    Ok(r.var_names()?.iter().any(|v| v == name))
+}
+
+/// Write the pictures of `file` into `out_dir` (file stem + a suffix per picture); returns the
+/// paths written (SVG and PNG of each picture).
+pub fn pictures(file: &Path, out_dir: &Path) -> Result<Vec<PathBuf>, Error> {
+    let r = NcReader::open(file)?;
+    std::fs::create_dir_all(out_dir).map_err(|e| {
+        Error::Usage(format!(
+            "cannot create picture directory {}: {e}",
+            out_dir.display()
+        ))
+    })?;
+    let stem = file
+        .file_stem()
+        .map(|s| s.to_string_lossy().into_owned())
+        .unwrap_or_else(|| "icefold".into());
+    let kind = r.attr_str("icefold_kind")?.unwrap_or_default();
+    let full_title = r.attr_str("title")?.unwrap_or_default();
+    // Figure titles: the part before a colon, cut at a word boundary near 65 characters.
+    let head = full_title.split(':').next().unwrap_or("");
+    let title = if head.chars().count() <= 65 {
+        head.to_string()
+    } else {
+        let cut: String = head.chars().take(65).collect();
+        format!("{}…", cut.rsplit_once(' ').map(|(a, _)| a).unwrap_or(&cut))
+    };
+    let mut written = Vec::new();
+    let mut save = |suffix: &str, svg: String| -> Result<(), Error> {
+        let (a, b) =
+            plot::save_svg_and_png(&out_dir.join(format!("{stem}-{suffix}")), &svg).map_err(plot_err)?;
+        written.push(a);
+        written.push(b);
+        Ok(())
+    };
+    match kind.as_str() {
+        "run" => {
+            save(
+                "timeseries",
+                plot::figure_svg(&run_timeseries(&r, &title)?).map_err(plot_err)?,
+            )?;
+            save("map", plot::heatmap_svg(&run_map(&r, &title)?).map_err(plot_err)?)?;
+            save(
+                "profile",
+                plot::figure_svg(&run_profile(&r, &title)?).map_err(plot_err)?,
+            )?;
+        }
+        "branches" | "sweep" => {
+            save(
+                "hysteresis",
+                plot::figure_svg(&hysteresis(&r, &title, &kind)?).map_err(plot_err)?,
+            )?;
+        }
+        other => {
+            return Err(Error::Usage(format!(
+                "{}: no pictures for file kind `{other}` (known: run, sweep, branches)",
+                file.display()
+            )))
+        }
+    }
+    Ok(written)
+}
+
+fn run_timeseries(r: &NcReader, title: &str) -> Result<Figure, Error> {
+    let t = read(r, "time")?;
+    let mut temp = Panel::new("Time (year)", "Global mean (K)");
+    temp.series.push(
+        Series::new(t.clone(), read(r, "global_mean_temperature")?, Stroke::Solid, 0)
+            .labelled("global-mean temperature"),
+    );
+    let mut edge = Panel::new("Time (year)", "Ice edge (°N)");
+    edge.series.push(
+        Series::new(t.clone(), read(r, "ice_edge_latitude_north")?, Stroke::Solid, 1)
+            .labelled("northern ice edge"),
+    );
+    if has(r, "ice_edge_latitude_south")? {
+        let south: Vec<f64> = read(r, "ice_edge_latitude_south")?.iter().map(|v| -v).collect();
+        edge.series
+            .push(Series::new(t.clone(), south, Stroke::Dashed, 2).labelled("southern ice edge (°S)"));
+    }
+    edge.y_range = Some((-4.0, 94.0));
+    let mut budget = Panel::new("Time (year)", "Forcing and imbalance (W m⁻²)");
+    budget.series.push(
+        Series::new(t.clone(), read(r, "toa_imbalance")?, Stroke::Solid, 0)
+            .labelled("net heating (global mean)"),
+    );
+    let add = read(r, "additive_forcing")?;
+    if add.iter().any(|v| *v != 0.0) {
+        budget
+            .series
+            .push(Series::new(t.clone(), add, Stroke::Dashed, 1).labelled("additive forcing"));
+    }
+    let gh = read(r, "greenhouse_forcing")?;
+    if gh.iter().any(|v| *v != 0.0) {
+        budget
+            .series
+            .push(Series::new(t.clone(), gh, Stroke::Dashed, 2).labelled("greenhouse forcing"));
+    }
+    let mut panels = vec![temp, edge, budget];
+    let scale = read(r, "solar_scale")?;
+    if scale.iter().any(|v| (*v - scale[0]).abs() > 1e-12) {
+        let mut s = Panel::new("Time (year)", "Solar scale");
+        s.series
+            .push(Series::new(t, scale, Stroke::Solid, 2).labelled("insolation multiplier"));
+        panels.push(s);
+    }
+    let h = 300 * panels.len() as u32 + 150;
+    Ok(Figure {
+        title: title.to_string(),
+        panels,
+        width_px: 1200,
+        height_px: h,
+    })
+}
+
+fn run_map(r: &NcReader, title: &str) -> Result<HeatMap, Error> {
+    let t = read(r, "time")?;
+    let lat = read(r, "lat")?;
+    let bnds = read(r, "lat_bnds")?;
+    let mut y_edges: Vec<f64> = bnds.chunks(2).map(|c| c[0]).collect();
+    y_edges.push(*bnds.last().unwrap_or(&90.0));
+    let z = read(r, "surface_temperature")?;
+    let mut overlay = vec![
+        Series::new(t.clone(), read(r, "ice_edge_latitude_north")?, Stroke::Dashed, 0).labelled("ice edge"),
+    ];
+    if has(r, "ice_edge_latitude_south")? {
+        overlay.push(Series::new(
+            t.clone(),
+            read(r, "ice_edge_latitude_south")?,
+            Stroke::Dashed,
+            0,
+        ));
+    }
+    let freeze = r
+        .attr_str("config_toml")?
+        .and_then(|c| c.parse::<toml::Table>().ok())
+        .and_then(|c| c.get("albedo")?.get("freeze_temperature_c")?.as_float())
+        .unwrap_or(-10.0);
+    Ok(HeatMap {
+        title: format!("{title}: surface temperature"),
+        x: t,
+        y: lat,
+        y_edges: Some(y_edges),
+        z,
+        x_label: "Time (year)".into(),
+        y_label: "Latitude (°N)".into(),
+        z_label: "Surface temperature (K)".into(),
+        contour_levels: vec![(freeze + 273.15, format!("{freeze} °C"))],
+        overlay,
+        width_px: 1200,
+        height_px: 800,
+        ..Default::default()
+    })
+}
+
+fn run_profile(r: &NcReader, title: &str) -> Result<Figure, Error> {
+    let lat = read(r, "lat")?;
+    let n = lat.len();
+    let z = read(r, "surface_temperature")?;
+    let last = z.len() / n.max(1) - 1;
+    let pick =
+        |name: &str| -> Result<Vec<f64>, Error> { Ok(read(r, name)?[last * n..(last + 1) * n].to_vec()) };
+    let t_end = read(r, "time")?.last().copied().unwrap_or(0.0);
+    let mut temp = Panel::new("Latitude (°N)", "Temperature (K)");
+    temp.title = Some(format!("final state, year {t_end}"));
+    temp.series.push(
+        Series::new(lat.clone(), pick("surface_temperature")?, Stroke::Solid, 0)
+            .labelled("surface temperature"),
+    );
+    let mut flux = Panel::new("Latitude (°N)", "Flux (W m⁻²)");
+    flux.series.push(
+        Series::new(lat.clone(), pick("absorbed_sunlight")?, Stroke::Solid, 1).labelled("absorbed sunlight"),
+    );
+    flux.series.push(
+        Series::new(lat.clone(), pick("outgoing_longwave")?, Stroke::Dashed, 0).labelled("outgoing longwave"),
+    );
+    flux.series.push(
+        Series::new(lat, pick("transport_convergence")?, Stroke::Solid, 2).labelled("transport convergence"),
+    );
+    Ok(Figure {
+        title: title.to_string(),
+        panels: vec![temp, flux],
+        width_px: 1200,
+        height_px: 900,
+    })
+}
+
+/// A short axis name for a control key.
+fn control_label(key: &str) -> String {
+    match key {
+        "insolation.solar_constant" => "Solar constant S0 (W m⁻²)".into(),
+        "greenhouse.co2_ppm" => "CO2 (ppm)".into(),
+        "forcing.constant_wm2" => "Additive forcing (W m⁻²)".into(),
+        "forcing.solar_scale" => "Solar scale".into(),
+        "transport.diffusivity" => "Diffusivity D (W m⁻² K⁻¹)".into(),
+        other => other.to_string(),
+    }
+}
+
+/// Contiguous runs of points with the same branch and stability, as solid (stable) or dashed
+/// (unstable) series.
+fn branch_series(
+    control: &[f64],
+    y: &[f64],
+    stable: &[f64],
+    branch: &[f64],
+    labelled: &mut [bool; 2],
+) -> Vec<Series> {
+    let mut out = Vec::new();
+    let mut start = 0;
+    for k in 1..=control.len() {
+        let cut = k == control.len() || stable[k] != stable[start] || branch[k] != branch[start];
+        if cut {
+            // Overlap one point so runs join up at stability changes.
+            let end = if k < control.len() && branch[k] == branch[start] {
+                k + 1
+            } else {
+                k
+            };
+            let is_stable = stable[start] > 0.5;
+            let mut s = Series::new(
+                control[start..end].to_vec(),
+                y[start..end].to_vec(),
+                if is_stable { Stroke::Solid } else { Stroke::Dashed },
+                if is_stable { 0 } else { 1 },
+            );
+            let slot = usize::from(!is_stable);
+            if !labelled[slot] {
+                s = s.labelled(if is_stable {
+                    "stable equilibria"
+                } else {
+                    "unstable equilibria"
+                });
+                labelled[slot] = true;
+            }
+            out.push(s);
+            start = k;
+        }
+    }
+    out
+}
+
+fn hysteresis(r: &NcReader, title: &str, kind: &str) -> Result<Figure, Error> {
+    let key = r.attr_str("control_key")?.unwrap_or_else(|| "control".into());
+    let xl = control_label(&key);
+    let control = read(r, "control")?;
+    let edge = read(r, "ice_edge_latitude_north")?;
+    let gm = read(r, "global_mean_temperature")?;
+    let mut p_edge = Panel::new(xl.clone(), "Ice edge (°N)");
+    let mut p_temp = Panel::new(xl, "Global mean (K)");
+    // A little room beyond 0 and 90 so ice-free and snowball states are not hidden by the frame.
+    p_edge.y_range = Some((-4.0, 94.0));
+    let fmt = |v: f64| {
+        if v.abs() >= 100.0 {
+            format!("{v:.1}")
+        } else {
+            format!("{v:.3}")
+        }
+    };
+    if kind == "branches" {
+        let stable = read(r, "stable")?;
+        let branch = read(r, "branch")?;
+        let mut lab = [false; 2];
+        p_edge.series = branch_series(&control, &edge, &stable, &branch, &mut lab);
+        let mut lab = [false; 2];
+        p_temp.series = branch_series(&control, &gm, &stable, &branch, &mut lab);
+        let fc = read(r, "fold_control")?;
+        let fe = read(r, "fold_ice_edge_latitude_north")?;
+        let fg = read(r, "fold_global_mean_temperature")?;
+        for k in 0..fc.len() {
+            let text = format!("fold {}", fmt(fc[k]));
+            p_edge.markers.push(plot::Marker {
+                x: fc[k],
+                y: fe[k],
+                text: text.clone(),
+            });
+            p_temp.markers.push(plot::Marker {
+                x: fc[k],
+                y: fg[k],
+                text,
+            });
+        }
+    } else {
+        let dir = read(r, "direction")?;
+        for (sign, stroke, colour, label) in [
+            (1.0, Stroke::ArrowsUp, 2, "sweep, control rising"),
+            (-1.0, Stroke::ArrowsDown, 3, "sweep, control falling"),
+        ] {
+            let pick = |v: &[f64]| -> Vec<f64> {
+                v.iter()
+                    .zip(&dir)
+                    .filter(|(_, d)| **d == sign)
+                    .map(|(x, _)| *x)
+                    .collect()
+            };
+            p_edge
+                .series
+                .push(Series::new(pick(&control), pick(&edge), stroke, colour).labelled(label));
+            p_temp
+                .series
+                .push(Series::new(pick(&control), pick(&gm), stroke, colour).labelled(label));
+        }
+        let tc = read(r, "tipping_control")?;
+        let tb = read(r, "tipping_ice_edge_before")?;
+        let tg = read(r, "tipping_global_mean_before")?;
+        for k in 0..tc.len() {
+            let text = format!("tips at {}", fmt(tc[k]));
+            p_edge.markers.push(plot::Marker {
+                x: tc[k],
+                y: tb[k],
+                text: text.clone(),
+            });
+            p_temp.markers.push(plot::Marker {
+                x: tc[k],
+                y: tg[k],
+                text,
+            });
+        }
+    }
+    Ok(Figure {
+        title: title.to_string(),
+        panels: vec![p_edge, p_temp],
+        width_px: 1200,
+        height_px: 1100,
+    })
+}
