@@ -7,7 +7,7 @@ Units: state T in K; fluxes in W m-2; heat capacity in J m-2 K-1; the solver's t
 in years (1 year = 365.25 * 86400 s), so tendencies are returned in K per year.
 
 Supported (everything docs/discrete-model.md pins down except the seasonal insolation, the OLR
-table, land fractions and forcing files, which raise `ConfigError`):
+table and land fractions, which raise `ConfigError`; forcing histories are in `forcing.py`):
 grid (hemisphere/globe, equal_area/equal_angle), insolation (legendre, annual_mean), albedo
 (step with the sub-band ice fraction rule, smooth, ramp), longwave (linear, gray_body,
 emission_level), greenhouse CO2 term, transport (diffusive with d2, relaxation), heat capacity.
@@ -381,7 +381,7 @@ class Model:
     gamma: float  # relaxation rate, W m-2 K-1
     heat_capacity: np.ndarray  # C_i, J m-2 K-1
     t0: float  # initial temperature, K
-    forcing: float = 0.0  # F, W m-2 (constant; forcing histories are not modelled here)
+    forcing: float = 0.0  # F, W m-2 (forcing.constant_wm2; histories: icefold_ref.forcing)
     t0_p2: float = 0.0  # initial P2(x) part, K (initial.temperature_p2_k, at band centres)
 
     # -- pieces --------------------------------------------------------------------------
@@ -551,13 +551,17 @@ def model_from_config(cfg: dict) -> Model:
         raise ConfigError("heat_capacity.land_fraction is not modelled by the reference")
     heat_capacity = np.full(grid.n, float(hc))
 
-    if _get(cfg, "forcing") is not None:
-        raise ConfigError("forcing histories are not modelled by the reference")
+    # [forcing]: constant parts here; histories (file, pieces) in icefold_ref.forcing.
+    if _get(cfg, "forcing.file") is not None or _get(cfg, "forcing.pieces"):
+        raise ConfigError("a forcing history (forcing.file or forcing.pieces) needs "
+                          "icefold_ref.forcing.ForcedModel")
+    constant_forcing = float(_get(cfg, "forcing.constant_wm2", 0.0))
+    sol = sol * float(_get(cfg, "forcing.solar_scale", 1.0))
 
     t0 = float(_get(cfg, "initial.temperature_c", required=True)) + KELVIN
     t0_p2 = float(_get(cfg, "initial.temperature_p2_k", 0.0))
     return Model(grid, sol, akind, af, ai, tf, width, lkind, lp, co2_term, tkind, k_faces,
-                 gamma, heat_capacity, t0, t0_p2=t0_p2)
+                 gamma, heat_capacity, t0, forcing=constant_forcing, t0_p2=t0_p2)
 
 
 def output_times(cfg: dict) -> np.ndarray:
