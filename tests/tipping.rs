@@ -8,6 +8,7 @@ use icefold::equilibrium::continuation::{Branch, ContinuationOptions, LegEnd, Tr
 use icefold::equilibrium::control::Controlled;
 use icefold::equilibrium::settle::settle;
 use icefold::equilibrium::stability::{leading_eigenvalue, SpectrumMethod};
+use icefold::equilibrium::sweep::SweepResult;
 use icefold::equilibrium::{newton, NewtonOptions};
 use icefold::integrate::rosenbrock::{Ros2, StepPolicy};
 use icefold::jobs::equilibrium::solve;
@@ -238,6 +239,26 @@ fn slope_stability_theorem_holds_and_eigenvalues_change_sign_at_folds() {
     }
 }
 
+/// The sweep of a config and the control values of every fold and corner its continuation finds.
+fn sweep_and_folds(cfg: &Loaded) -> (SweepResult, Vec<f64>) {
+    let sweep = icefold::jobs::sweep::run_sweep(cfg, false).unwrap();
+    let branches = icefold::jobs::branches::run_branches(cfg).unwrap();
+    let folds = branches
+        .branches
+        .iter()
+        .flat_map(|b| b.folds.iter().map(|f| f.control))
+        .collect();
+    (sweep, folds)
+}
+
+/// Relative distance from `x` to the nearest of `folds`.
+fn nearest_relative(x: f64, folds: &[f64]) -> f64 {
+    folds
+        .iter()
+        .map(|f| (x / f - 1.0).abs())
+        .fold(f64::INFINITY, f64::min)
+}
+
 #[test]
 fn sweep_tipping_points_lie_on_the_continuation_folds() {
     // Consistency of two independent routes (common practice): the quasi-static sweep's
@@ -250,23 +271,14 @@ fn sweep_tipping_points_lie_on_the_continuation_folds() {
             "branches.to=1800",
         ],
     );
-    let sweep = icefold::jobs::sweep::run_sweep(&cfg, false).unwrap();
-    let branches = icefold::jobs::branches::run_branches(&cfg).unwrap();
-    let folds: Vec<f64> = branches
-        .branches
-        .iter()
-        .flat_map(|b| b.folds.iter().map(|f| f.control))
-        .collect();
+    let (sweep, folds) = sweep_and_folds(&cfg);
     assert_eq!(
         sweep.tipping.len(),
         3,
         "snowball melt (up), ice appears at the pole and snowball onset (down)"
     );
     for t in &sweep.tipping {
-        let best = folds
-            .iter()
-            .map(|f| (t.control / f - 1.0).abs())
-            .fold(f64::INFINITY, f64::min);
+        let best = nearest_relative(t.control, &folds);
         assert!(
             best < 5e-3,
             "tipping point {} is {best:e} from the nearest fold ({folds:?})",
@@ -311,20 +323,11 @@ fn a_coarse_co2_sweep_finds_both_tipping_points_inside_one_step() {
             "sweep.steps=121",
         ],
     );
-    let sweep = icefold::jobs::sweep::run_sweep(&cfg, false).unwrap();
-    let branches = icefold::jobs::branches::run_branches(&cfg).unwrap();
-    let folds: Vec<f64> = branches
-        .branches
-        .iter()
-        .flat_map(|b| b.folds.iter().map(|f| f.control))
-        .collect();
+    let (sweep, folds) = sweep_and_folds(&cfg);
     let tips: Vec<f64> = sweep.tipping.iter().map(|t| t.control).collect();
     assert_eq!(tips.len(), 3, "{tips:?}");
     for t in &tips {
-        let best = folds
-            .iter()
-            .map(|f| (t / f - 1.0).abs())
-            .fold(f64::INFINITY, f64::min);
+        let best = nearest_relative(*t, &folds);
         assert!(best < 5e-3, "tipping point {t} vs folds {folds:?}");
     }
     assert!(

@@ -22,6 +22,16 @@ pub struct Settled {
     pub exact: bool,
 }
 
+/// The adaptive implicit scheme from `start` at time 0, for at most `max_years`, with local
+/// error `tolerance` (K) per step and steps of at most 1000 years.
+fn stepper<'m>(model: &'m Model, start: &[f64], max_years: f64, tolerance: f64) -> Ros2<'m> {
+    let policy = StepPolicy::Adaptive {
+        tolerance,
+        max_step: max_years.min(1000.0),
+    };
+    Ros2::new(model, 0.0, start, max_years, policy, 10_000_000)
+}
+
 /// Integrate from `start` with the adaptive implicit scheme until the largest |dT/dt| is below
 /// `rate` (K per year) or `max_years` have passed. `tolerance` is the local error per step (K).
 pub fn settle(
@@ -31,11 +41,7 @@ pub fn settle(
     max_years: f64,
     tolerance: f64,
 ) -> Result<Settled, SolverError> {
-    let policy = StepPolicy::Adaptive {
-        tolerance,
-        max_step: max_years.min(1000.0),
-    };
-    let mut r = Ros2::new(model, 0.0, start, max_years, policy, 10_000_000);
+    let mut r = stepper(model, start, max_years, tolerance);
     while r.max_rate() >= rate && r.time() < max_years {
         r.step()?;
     }
@@ -83,11 +89,7 @@ pub fn settle_to_equilibrium(
     tolerance: f64,
     tolerance_wm2: f64,
 ) -> Result<Settled, SolverError> {
-    let policy = StepPolicy::Adaptive {
-        tolerance,
-        max_step: max_years.min(1000.0),
-    };
-    let mut r = Ros2::new(model, 0.0, start, max_years, policy, 10_000_000);
+    let mut r = stepper(model, start, max_years, tolerance);
     let mut next_try = 100.0 * rate;
     while r.max_rate() >= rate && r.time() < max_years {
         let mr = r.max_rate();
