@@ -717,3 +717,16 @@ mod tests {
         assert_eq!(sturm_count(&d, &e2, got - 1e-9), n - 1);
     }
 }
+
+impl Stability {
+    /// The warm start of the next symmetric leading-eigenvalue iteration (1/year, NaN: none),
+    /// saved in checkpoints so a resumed sweep repeats the same iterations.
+    pub fn warm_start(&self) -> f64 {
+        self.last
+    }
+
+    /// Set the warm start (a value from [`warm_start`](Self::warm_start)).
+    pub fn set_warm_start(&mut self, guess: f64) {
+        self.last = guess;
+    }
+}

@@ -1,0 +1,157 @@
+//! Interruption through the binary (issue 5): SIGINT and SIGTERM mid-run leave a readable file
+//! marked `complete = 0` whose records are a prefix of the uninterrupted run's, with exit 130
+//! and 143; SIGKILL never leaves a finished-looking file at the target path; an interrupted
+//! sweep writes its finished steps with `complete = 0`.
+
+mod common_cli;
+
+use common_cli::*;
+use icefold::output::NcReader;
+use std::path::Path;
+
+/// A run long enough never to finish during a test (a million model years, a record a year,
+/// 18 bands so records are cheap; max step 1 year so a reference run ending 10 years later
+/// takes the same steps up to the compared records).
+const LONG: &[&str] = &[
+    "--set",
+    "time.years=1000000",
+    "--set",
+    "grid.bands=18",
+    "--set",
+    "time.max_step_years=1",
+];
+
+fn interrupted_run(tag: &str, sig: i32, code: i32) {
+    let dir = tempdir(tag);
+    let cfg = config("classic-step-albedo.toml");
+    let mut args = vec!["run", cfg.as_str(), "-o", "out.nc"];
+    args.extend_from_slice(LONG);
+    let child = spawn(&dir, &args);
+    wait_for("the temporary output", || temp_file_exists(&dir, "out.nc"));
+    std::thread::sleep(std::time::Duration::from_millis(300));
+    signal(&child, sig);
+    let out = finish(child);
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(code), "{err}");
+    assert!(err.contains("interrupted by signal"), "{err}");
+    assert!(err.contains("complete = 0"), "{err}");
+    let path = dir.join("out.nc");
+    let r = NcReader::open(&path).unwrap();
+    assert_eq!(r.attr_i64("complete").unwrap(), Some(0));
+    let name = if sig == libc::SIGINT { "SIGINT" } else { "SIGTERM" };
+    assert_eq!(r.attr_str("interrupted_by").unwrap().as_deref(), Some(name));
+    let t = r.read_f64("time").unwrap();
+    assert!(t.len() >= 2, "only {} records", t.len());
+    let reached = r.attr_f64("model_time_reached_years").unwrap().unwrap();
+    assert_eq!(reached, *t.last().unwrap());
+    assert!(reached < 1e6);
+    assert!(!temp_file_exists(&dir, "out.nc"), "temporary file left behind");
+    // The records are a prefix of an uninterrupted run 10 years longer.
+    let years = format!("time.years={}", reached + 10.0);
+    let reference = icefold(
+        &dir,
+        &[
+            "run",
+            &cfg,
+            "-o",
+            "ref.nc",
+            "--set",
+            &years,
+            "--set",
+            "grid.bands=18",
+            "--set",
+            "time.max_step_years=1",
+        ],
+    );
+    ok(&reference);
+    let rr = NcReader::open(&dir.join("ref.nc")).unwrap();
+    assert_eq!(rr.attr_i64("complete").unwrap(), Some(1));
+    for var in [
+        "time",
+        "surface_temperature",
+        "toa_imbalance",
+        "ice_edge_latitude_north",
+    ] {
+        let a = r.read_f64(var).unwrap();
+        let b = rr.read_f64(var).unwrap();
+        assert!(b.len() > a.len(), "{var}");
+        let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+        assert_eq!(bits(&a), bits(&b[..a.len()]), "{var} is not a prefix");
+    }
+}
+
+#[test]
+fn sigint_mid_run_keeps_a_readable_prefix_and_exits_130() {
+    interrupted_run("int", libc::SIGINT, 130);
+}
+
+#[test]
+fn sigterm_mid_run_keeps_a_readable_prefix_and_exits_143() {
+    interrupted_run("term", libc::SIGTERM, 143);
+}
+
+fn killed(dir: &Path, extra: &[&str]) {
+    let cfg = config("classic-step-albedo.toml");
+    let mut args = vec!["run", cfg.as_str(), "-o", "out.nc"];
+    args.extend_from_slice(LONG);
+    args.extend_from_slice(extra);
+    let child = spawn(dir, &args);
+    wait_for("the temporary output", || temp_file_exists(dir, "out.nc"));
+    std::thread::sleep(std::time::Duration::from_millis(300));
+    signal(&child, libc::SIGKILL);
+    let out = finish(child);
+    assert_eq!(out.status.code(), None, "killed by a signal, no exit status");
+}
+
+#[test]
+fn sigkill_mid_run_leaves_no_file_at_the_target() {
+    let dir = tempdir("kill");
+    killed(&dir, &[]);
+    assert!(!dir.join("out.nc").exists(), "a file appeared at the target path");
+    // What is left is the temporary file beside it, under a name no reader takes for output.
+    assert!(temp_file_exists(&dir, "out.nc"));
+}
+
+#[test]
+fn sigkill_mid_run_keeps_the_previous_file_intact() {
+    let dir = tempdir("kill-prev");
+    let cfg = config("classic-step-albedo.toml");
+    ok(&icefold(
+        &dir,
+        &["run", &cfg, "-o", "out.nc", "--set", "time.years=5"],
+    ));
+    let before = std::fs::read(dir.join("out.nc")).unwrap();
+    killed(&dir, &["--overwrite"]);
+    assert_eq!(
+        std::fs::read(dir.join("out.nc")).unwrap(),
+        before,
+        "previous file changed"
+    );
+    assert_eq!(attr_i64(&dir.join("out.nc"), "complete"), Some(1));
+}
+
+#[test]
+fn interrupted_sweep_writes_its_finished_steps_with_complete_0() {
+    let dir = tempdir("sweep");
+    let cfg = config("sweep-solar.toml");
+    let child = spawn(
+        &dir,
+        &["sweep", &cfg, "-o", "sw.nc", "--checkpoint-every-steps", "1"],
+    );
+    // The first checkpoint follows the first finished step.
+    wait_for("the first checkpoint", || dir.join("sw.nc.restart").exists());
+    signal(&child, libc::SIGINT);
+    let out = finish(child);
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(130), "{err}");
+    assert!(err.contains("--resume"), "{err}");
+    let r = NcReader::open(&dir.join("sw.nc")).unwrap();
+    assert_eq!(r.attr_i64("complete").unwrap(), Some(0));
+    let done = r.attr_i64("steps_done").unwrap().unwrap();
+    assert!(done >= 1 && done < 242, "{done}");
+    assert_eq!(r.read_f64("control").unwrap().len() as i64, done);
+    assert_eq!(
+        r.attr_f64("control_reached").unwrap(),
+        r.read_f64("control").unwrap().last().copied()
+    );
+}
