@@ -606,6 +606,19 @@ pub fn spectrum(model: &Model, t_years: f64, temps: &[f64]) -> Spectrum {
     }
 }
 
+impl Stability {
+    /// The warm start of the next symmetric leading-eigenvalue iteration (1/year, NaN: none),
+    /// saved in checkpoints so a resumed sweep repeats the same iterations.
+    pub fn warm_start(&self) -> f64 {
+        self.last
+    }
+
+    /// Set the warm start (a value from [`warm_start`](Self::warm_start)).
+    pub fn set_warm_start(&mut self, guess: f64) {
+        self.last = guess;
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -715,18 +728,5 @@ mod tests {
         assert!((got - want).abs() < 1e-13 * 5.0, "{got} vs {want}");
         assert_eq!(sturm_count(&d, &e2, got + 1e-9), n);
         assert_eq!(sturm_count(&d, &e2, got - 1e-9), n - 1);
-    }
-}
-
-impl Stability {
-    /// The warm start of the next symmetric leading-eigenvalue iteration (1/year, NaN: none),
-    /// saved in checkpoints so a resumed sweep repeats the same iterations.
-    pub fn warm_start(&self) -> f64 {
-        self.last
-    }
-
-    /// Set the warm start (a value from [`warm_start`](Self::warm_start)).
-    pub fn set_warm_start(&mut self, guess: f64) {
-        self.last = guess;
     }
 }

@@ -121,7 +121,7 @@ impl Boundary for NoHooks {
 /// The integrator of a run as a concrete type, so its state can be saved and restored.
 pub enum Stepper<'m> {
     /// The implicit ROS2 scheme.
-    Implicit(Ros2<'m>),
+    Implicit(Box<Ros2<'m>>),
     /// An explicit Dormand-Prince scheme.
     Explicit(Explicit<'m>),
 }
@@ -130,14 +130,14 @@ impl<'m> Stepper<'m> {
     /// The integrator a time spec asks for, from `y0` (K) at time 0 to `time.years`.
     pub fn new(model: &'m Model, time: &TimeSpec, y0: &[f64]) -> Stepper<'m> {
         match time.method {
-            Method::Implicit => Stepper::Implicit(Ros2::new(
+            Method::Implicit => Stepper::Implicit(Box::new(Ros2::new(
                 model,
                 0.0,
                 y0,
                 time.years,
                 step_policy(time),
                 time.max_steps,
-            )),
+            ))),
             Method::Dopri5 | Method::Dop853 => Stepper::Explicit(Explicit::new(
                 model,
                 if time.method == Method::Dopri5 {
@@ -157,14 +157,14 @@ impl<'m> Stepper<'m> {
 
     fn implicit_mut(&mut self) -> Option<&mut Ros2<'m>> {
         match self {
-            Stepper::Implicit(r) => Some(r),
+            Stepper::Implicit(r) => Some(r.as_mut()),
             Stepper::Explicit(_) => None,
         }
     }
 
     fn integ(&mut self) -> &mut dyn Integrator {
         match self {
-            Stepper::Implicit(r) => r,
+            Stepper::Implicit(r) => r.as_mut(),
             Stepper::Explicit(e) => e,
         }
     }

@@ -615,6 +615,15 @@ pub fn merge_files(inputs: &[std::path::PathBuf], output: &Path, command_line: &
         parts.push((p.display().to_string(), d));
     }
     let data = ensemble_file::join(parts).map_err(|e| Error::Usage(format!("cannot merge: {e}")))?;
+    if let Some(signal) = StopFlag.requested() {
+        return Err(Error::Interrupted {
+            signal,
+            reached: format!(
+                "reading the shards ({}); no file written",
+                crate::interrupt::signal_name(signal)
+            ),
+        });
+    }
     ensemble_file::write(output, &data, command_line, None)?;
     Ok(data.count())
 }
