@@ -155,3 +155,42 @@ fn interrupted_sweep_writes_its_finished_steps_with_complete_0() {
         r.read_f64("control").unwrap().last().copied()
     );
 }
+
+#[test]
+fn numerical_failure_keeps_the_records_so_far_with_complete_0_and_the_failure() {
+    let dir = tempdir("fail");
+    let cfg = config("classic-step-albedo.toml");
+    // The step limit is a numerical failure (exit 3) at a model time before the end.
+    let out = icefold(
+        &dir,
+        &[
+            "run",
+            &cfg,
+            "-o",
+            "out.nc",
+            "--set",
+            "time.years=1000",
+            "--set",
+            "time.max_step_years=1",
+            "--set",
+            "time.max_steps=120",
+        ],
+    );
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(3), "{err}");
+    let r = NcReader::open(&dir.join("out.nc")).unwrap();
+    assert_eq!(r.attr_i64("complete").unwrap(), Some(0));
+    let failure = r.attr_str("failure").unwrap().unwrap();
+    assert!(failure.contains("time.max_steps"), "{failure}");
+    let t = r.read_f64("time").unwrap();
+    assert!(t.len() >= 2 && *t.last().unwrap() < 1000.0, "{t:?}");
+    assert_eq!(r.attr_f64("model_time_reached_years").unwrap(), t.last().copied());
+    // `inspect` reports the state.
+    let shown = icefold(&dir, &["inspect", "out.nc"]);
+    ok(&shown);
+    assert!(
+        String::from_utf8_lossy(&shown.stdout).contains("complete:   NO (stopped at model time"),
+        "{}",
+        String::from_utf8_lossy(&shown.stdout)
+    );
+}
