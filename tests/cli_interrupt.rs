@@ -194,3 +194,43 @@ fn numerical_failure_keeps_the_records_so_far_with_complete_0_and_the_failure() 
         String::from_utf8_lossy(&shown.stdout)
     );
 }
+
+#[test]
+fn sigterm_mid_ensemble_keeps_the_finished_members_and_exits_143() {
+    let dir = tempdir("ens");
+    let cfg = config("ensemble-lhs.toml");
+    // Far more members than can finish during the test; the first checkpoint shows it runs.
+    let child = spawn(
+        &dir,
+        &[
+            "ensemble",
+            &cfg,
+            "-o",
+            "e.nc",
+            "--set",
+            "ensemble.members=20000",
+            "--threads",
+            "2",
+            "--checkpoint-every-members",
+            "4",
+        ],
+    );
+    wait_for("the first checkpoint", || dir.join("e.nc.restart").exists());
+    signal(&child, libc::SIGTERM);
+    let out = finish(child);
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(143), "{err}");
+    assert!(err.contains("--resume e.nc.restart"), "{err}");
+    let r = NcReader::open(&dir.join("e.nc")).unwrap();
+    assert_eq!(r.attr_i64("complete").unwrap(), Some(0));
+    assert_eq!(r.attr_str("interrupted_by").unwrap().as_deref(), Some("SIGTERM"));
+    let done = r.attr_i64("members_done").unwrap().unwrap();
+    assert!((4..20_000).contains(&done), "{done}");
+    assert_eq!(r.read_f64("member").unwrap().len() as i64, done);
+    assert_eq!(r.attr_i64("members_total").unwrap(), Some(20_000));
+    // An incomplete shard is not merged.
+    let merged = icefold(&dir, &["merge", "e.nc", "-o", "m.nc"]);
+    assert_eq!(merged.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&merged.stderr).contains("incomplete"));
+    assert!(!dir.join("m.nc").exists());
+}
