@@ -309,7 +309,12 @@ pub fn sweep_from(
         Ok(stopped) => (stopped, None),
         Err(e) => (false, Some(e)),
     };
-    let (hysteresis_width, hysteresis_intervals) = hysteresis(&progress.steps, &progress.tipping, spec.steps);
+    // A partial sweep has no hysteresis measure (NaN, no intervals): the legs are not both done.
+    let (hysteresis_width, hysteresis_intervals) = if progress.steps.len() == 2 * spec.steps {
+        hysteresis(&progress.steps, &progress.tipping, spec.steps)
+    } else {
+        (f64::NAN, Vec::new())
+    };
     SweepRun {
         result: SweepResult {
             steps: progress.steps.clone(),
