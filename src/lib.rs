@@ -14,6 +14,7 @@
 #![allow(clippy::type_complexity, clippy::too_many_arguments)]
 
 pub mod albedo;
+pub mod checkpoint;
 pub mod cli;
 pub mod config;
 pub mod ensemble;
@@ -24,6 +25,7 @@ pub mod grid;
 pub mod insolation;
 pub mod integrate;
 pub mod interpolation;
+pub mod interrupt;
 pub mod jobs;
 pub mod linalg;
 pub mod longwave;

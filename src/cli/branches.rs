@@ -1,14 +1,24 @@
 //! `icefold branches CONFIG`: pseudo-arclength continuation of every branch in the range.
 
-use super::{ConfigArgs, OutputArgs};
+use super::{ConfigArgs, OutputArgs, ResumeArgs};
 use crate::error::Error;
-use crate::jobs::branches::branches_to_file;
+use crate::jobs::branches::branches_job;
+use crate::jobs::run::Checkpointing;
 
 /// Trace the `[branches]` of the config and write the file.
-pub fn main(args: &ConfigArgs, out: &OutputArgs) -> Result<(), Error> {
+pub fn main(
+    args: &ConfigArgs,
+    out: &OutputArgs,
+    checkpoint_every: Option<usize>,
+    resume: &ResumeArgs,
+) -> Result<(), Error> {
     let cfg = super::load(args)?;
-    let path = super::output_path(out, &args.config, "branches")?;
-    let set = branches_to_file(&cfg, &path, &super::command_line())?;
+    let path = super::output_path_resuming(out, &args.config, "branches", resume.resume.is_some())?;
+    let ck = Checkpointing {
+        every: checkpoint_every.map(|n| n as f64),
+        resume: resume.resume.clone(),
+    };
+    let set = branches_job(&cfg, &path, &super::command_line(), &ck)?;
     let points: usize = set.branches.iter().map(|b| b.points.len()).sum();
     let folds: Vec<String> = set
         .branches

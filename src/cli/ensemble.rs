@@ -1,9 +1,10 @@
 //! `icefold ensemble CONFIG [--shard K/N]`: Latin hypercube ensemble over the `[ensemble]` keys,
 //! members in parallel, one file with a `member` dimension.
 
-use super::{ConfigArgs, OutputArgs};
+use super::{ConfigArgs, OutputArgs, ResumeArgs};
 use crate::error::Error;
-use crate::jobs::ensemble::{ensemble_to_file, EnsembleOptions};
+use crate::jobs::ensemble::{ensemble_job, EnsembleOptions};
+use crate::jobs::run::Checkpointing;
 
 /// Run the configured ensemble (or one shard of it).
 pub fn main(
@@ -11,6 +12,8 @@ pub fn main(
     out: &OutputArgs,
     shard: Option<&str>,
     threads: Option<usize>,
+    checkpoint_every: Option<usize>,
+    resume: &ResumeArgs,
 ) -> Result<(), Error> {
     let shard = shard
         .map(crate::ensemble::parse_shard)
@@ -26,9 +29,13 @@ pub fn main(
         Some((k, n)) => format!("ensemble-{k}of{n}"),
         None => "ensemble".to_string(),
     };
-    let path = super::output_path(out, &args.config, &command)?;
+    let path = super::output_path_resuming(out, &args.config, &command, resume.resume.is_some())?;
+    let ck = Checkpointing {
+        every: checkpoint_every.map(|n| n as f64),
+        resume: resume.resume.clone(),
+    };
     let start = std::time::Instant::now();
-    let report = ensemble_to_file(
+    let report = ensemble_job(
         &cfg,
         &path,
         &super::command_line(),
@@ -37,6 +44,7 @@ pub fn main(
             threads,
             progress: true,
         },
+        &ck,
     )?;
     eprintln!(
         "icefold: wrote {} (members {} to {}{}, {} failed) in {:.2} s",

@@ -49,6 +49,16 @@ pub struct OutputArgs {
     pub overwrite: bool,
 }
 
+/// Continue from a checkpoint.
+#[derive(Debug, clap::Args)]
+pub struct ResumeArgs {
+    /// Continue from this restart file (written beside the output as `<output>.restart` by the
+    /// `--checkpoint-every*` option); the resolved config must be the one it was made with. An
+    /// existing incomplete output (complete = 0) is replaced without --overwrite.
+    #[arg(long, value_name = "FILE")]
+    pub resume: Option<PathBuf>,
+}
+
 /// The subcommands.
 #[derive(Debug, Subcommand)]
 pub enum Command {
@@ -58,6 +68,11 @@ pub enum Command {
         config: ConfigArgs,
         #[command(flatten)]
         output: OutputArgs,
+        /// Write a restart file beside the output every YEARS of model time.
+        #[arg(long, value_name = "YEARS")]
+        checkpoint_every: Option<f64>,
+        #[command(flatten)]
+        resume: ResumeArgs,
     },
     /// Solve for a steady state and its stability spectrum.
     Equilibrium {
@@ -75,6 +90,11 @@ pub enum Command {
         config: ConfigArgs,
         #[command(flatten)]
         output: OutputArgs,
+        /// Write a restart file beside the output every N finished sweep steps.
+        #[arg(long, value_name = "N")]
+        checkpoint_every_steps: Option<usize>,
+        #[command(flatten)]
+        resume: ResumeArgs,
     },
     /// Pseudo-arclength continuation of all equilibrium branches through folds.
     Branches {
@@ -82,6 +102,12 @@ pub enum Command {
         config: ConfigArgs,
         #[command(flatten)]
         output: OutputArgs,
+        /// Write a restart file beside the output every N finished seeds (each traced branch
+        /// or seed found on a known branch).
+        #[arg(long, value_name = "N")]
+        checkpoint_every_seeds: Option<usize>,
+        #[command(flatten)]
+        resume: ResumeArgs,
     },
     /// Latin hypercube ensemble over the `[ensemble]` keys, members in parallel.
     Ensemble {
@@ -95,6 +121,11 @@ pub enum Command {
         /// Worker threads (default: all cores, or RAYON_NUM_THREADS).
         #[arg(long, value_name = "N")]
         threads: Option<usize>,
+        /// Write a restart file beside the output every N finished members.
+        #[arg(long, value_name = "N")]
+        checkpoint_every_members: Option<usize>,
+        #[command(flatten)]
+        resume: ResumeArgs,
     },
     /// Join ensemble shard files into the file a single run writes.
     Merge {
@@ -162,21 +193,58 @@ pub fn command_line() -> String {
 }
 
 fn dispatch(cli: Cli) -> Result<(), Error> {
+    if matches!(
+        cli.command,
+        Command::Run { .. }
+            | Command::Equilibrium { .. }
+            | Command::Sweep { .. }
+            | Command::Branches { .. }
+            | Command::Ensemble { .. }
+            | Command::Merge { .. }
+            | Command::Demo { .. }
+    ) {
+        // Commands that write files stop cleanly on SIGINT/SIGTERM (see `interrupt`).
+        crate::interrupt::install();
+    }
     match cli.command {
-        Command::Run { config, output } => run::main(&config, &output),
+        Command::Run {
+            config,
+            output,
+            checkpoint_every,
+            resume,
+        } => run::main(&config, &output, checkpoint_every, &resume),
         Command::Equilibrium {
             config,
             output,
             start,
         } => equilibrium::main(&config, &output, start),
-        Command::Sweep { config, output } => sweep::main(&config, &output),
-        Command::Branches { config, output } => branches::main(&config, &output),
+        Command::Sweep {
+            config,
+            output,
+            checkpoint_every_steps,
+            resume,
+        } => sweep::main(&config, &output, checkpoint_every_steps, &resume),
+        Command::Branches {
+            config,
+            output,
+            checkpoint_every_seeds,
+            resume,
+        } => branches::main(&config, &output, checkpoint_every_seeds, &resume),
         Command::Ensemble {
             config,
             output,
             shard,
             threads,
-        } => ensemble::main(&config, &output, shard.as_deref(), threads),
+            checkpoint_every_members,
+            resume,
+        } => ensemble::main(
+            &config,
+            &output,
+            shard.as_deref(),
+            threads,
+            checkpoint_every_members,
+            &resume,
+        ),
         Command::Merge {
             files,
             output,
@@ -196,6 +264,17 @@ pub fn load(args: &ConfigArgs) -> Result<Loaded, Error> {
 
 /// Decide the output path and refuse to replace an existing file without `--overwrite`.
 pub fn output_path(args: &OutputArgs, config: &Path, command: &str) -> Result<PathBuf, Error> {
+    output_path_resuming(args, config, command, false)
+}
+
+/// As [`output_path`]; when `resuming`, an existing output marked `complete = 0` (the partial
+/// file of the interrupted job) may be replaced without `--overwrite`.
+pub fn output_path_resuming(
+    args: &OutputArgs,
+    config: &Path,
+    command: &str,
+    resuming: bool,
+) -> Result<PathBuf, Error> {
     let path = args.output.clone().unwrap_or_else(|| {
         let stem = config
             .file_stem()
@@ -203,7 +282,13 @@ pub fn output_path(args: &OutputArgs, config: &Path, command: &str) -> Result<Pa
             .unwrap_or_else(|| "icefold".into());
         PathBuf::from(format!("{stem}-{command}.nc"))
     });
-    if path.exists() && !args.overwrite {
+    let incomplete = || {
+        crate::output::NcReader::open(&path)
+            .ok()
+            .and_then(|r| r.attr_i64("complete").ok().flatten())
+            == Some(0)
+    };
+    if path.exists() && !args.overwrite && !(resuming && incomplete()) {
         return Err(Error::Usage(format!(
             "output file {} exists; pass --overwrite to replace it (it is kept as it is)",
             path.display()

@@ -1,14 +1,23 @@
 //! `icefold run CONFIG`: integrate through time and stream the trajectory to a file.
 
-use super::{ConfigArgs, OutputArgs};
+use super::{ConfigArgs, OutputArgs, ResumeArgs};
 use crate::error::Error;
 use crate::jobs;
 
 /// Run the configured scenario.
-pub fn main(args: &ConfigArgs, out: &OutputArgs) -> Result<(), Error> {
+pub fn main(
+    args: &ConfigArgs,
+    out: &OutputArgs,
+    checkpoint_every: Option<f64>,
+    resume: &ResumeArgs,
+) -> Result<(), Error> {
     let cfg = super::load(args)?;
-    let path = super::output_path(out, &args.config, "run")?;
-    let report = jobs::run::run_to_file(&cfg, &path, &super::command_line(), true)?;
+    let path = super::output_path_resuming(out, &args.config, "run", resume.resume.is_some())?;
+    let ck = jobs::run::Checkpointing {
+        every: checkpoint_every,
+        resume: resume.resume.clone(),
+    };
+    let report = jobs::run::run_job(&cfg, &path, &super::command_line(), true, &ck)?;
     eprintln!(
         "icefold: wrote {} ({} records, {} steps, {} right-hand-side evaluations); final global mean {:.3} K, ice edge {:.2} degrees N",
         path.display(),

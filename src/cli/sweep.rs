@@ -1,14 +1,24 @@
 //! `icefold sweep CONFIG`: two-way quasi-static sweep with refined tipping points.
 
-use super::{ConfigArgs, OutputArgs};
+use super::{ConfigArgs, OutputArgs, ResumeArgs};
 use crate::error::Error;
-use crate::jobs::sweep::sweep_to_file;
+use crate::jobs::run::Checkpointing;
+use crate::jobs::sweep::sweep_job;
 
 /// Run the `[sweep]` of the config and write the file.
-pub fn main(args: &ConfigArgs, out: &OutputArgs) -> Result<(), Error> {
+pub fn main(
+    args: &ConfigArgs,
+    out: &OutputArgs,
+    checkpoint_every: Option<usize>,
+    resume: &ResumeArgs,
+) -> Result<(), Error> {
     let cfg = super::load(args)?;
-    let path = super::output_path(out, &args.config, "sweep")?;
-    let r = sweep_to_file(&cfg, &path, &super::command_line(), true)?;
+    let path = super::output_path_resuming(out, &args.config, "sweep", resume.resume.is_some())?;
+    let ck = Checkpointing {
+        every: checkpoint_every.map(|n| n as f64),
+        resume: resume.resume.clone(),
+    };
+    let r = sweep_job(&cfg, &path, &super::command_line(), true, &ck)?;
     let tips: Vec<String> = r
         .tipping
         .iter()

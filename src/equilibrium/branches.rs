@@ -162,49 +162,132 @@ pub struct BranchSet {
 
 /// Trace every branch met by the seeds at both ends and the middle of the range.
 pub fn all_branches(fam: &Controlled, opts: ContinuationOptions) -> Result<BranchSet, ContinuationError> {
-    let mut tr = Tracer::new(fam, opts);
-    let mut branches: Vec<Branch> = Vec::new();
-    let mut all: Vec<(Vec<f64>, f64)> = Vec::new();
-    for p in [opts.from, opts.to, 0.5 * (opts.from + opts.to)] {
-        let model = fam.model_at(p)?;
-        all.extend(seeds(&model, opts.tolerance_wm2).into_iter().map(|s| (s, p)));
+    let run = all_branches_from(fam, opts, BranchesProgress::default(), &mut |_| false);
+    match run.error {
+        Some(e) => Err(e),
+        None => Ok(run.set),
     }
-    all.extend(pinned_seeds(&mut tr, fam, &opts)?);
-    for (s, p) in all {
-        let mut known = false;
-        for b in &branches {
-            if on_branch(&mut tr, b, &s, p)? {
-                known = true;
-                break;
+}
+
+/// Where a branch search stands after a finished seed (traced, or found on a known branch).
+#[derive(Debug, Clone, PartialEq)]
+pub struct BranchesProgress {
+    /// Branches traced so far (before dropping duplicates).
+    pub branches: Vec<Branch>,
+    /// Seeds finished.
+    pub seeds_done: usize,
+    /// Linearisations so far.
+    pub linearisations: u64,
+    /// Warm start of the tracer's leading-eigenvalue iteration (NaN: none yet).
+    pub eigen_guess: f64,
+}
+
+impl Default for BranchesProgress {
+    fn default() -> BranchesProgress {
+        BranchesProgress {
+            branches: Vec::new(),
+            seeds_done: 0,
+            linearisations: 0,
+            eigen_guess: f64::NAN,
+        }
+    }
+}
+
+/// A branch search that finished, stopped after a seed, or failed (with the branches before).
+#[derive(Debug)]
+pub struct BranchesRun {
+    /// The distinct branches traced (all of them unless stopped or failed).
+    pub set: BranchSet,
+    /// Seeds in all.
+    pub seeds_total: usize,
+    /// The state to continue from.
+    pub progress: BranchesProgress,
+    /// Whether `on_seed` asked to stop.
+    pub stopped: bool,
+    /// The failure that ended it.
+    pub error: Option<ContinuationError>,
+}
+
+/// [`all_branches`] continued from `progress`; after every finished seed `on_seed` gets the
+/// progress and returns `true` to stop there. The seeds are found again on resume (they are
+/// deterministic), then the tracer's counters and warm start are restored.
+pub fn all_branches_from(
+    fam: &Controlled,
+    opts: ContinuationOptions,
+    mut progress: BranchesProgress,
+    on_seed: &mut dyn FnMut(&BranchesProgress) -> bool,
+) -> BranchesRun {
+    let mut tr = Tracer::new(fam, opts);
+    let mut seeds_total = 0;
+    let r = (|| -> Result<bool, ContinuationError> {
+        let mut all: Vec<(Vec<f64>, f64)> = Vec::new();
+        for p in [opts.from, opts.to, 0.5 * (opts.from + opts.to)] {
+            let model = fam.model_at(p)?;
+            all.extend(seeds(&model, opts.tolerance_wm2).into_iter().map(|s| (s, p)));
+        }
+        all.extend(pinned_seeds(&mut tr, fam, &opts)?);
+        seeds_total = all.len();
+        if progress.seeds_done > 0 {
+            tr.linearisations = progress.linearisations;
+            tr.set_eigen_guess(progress.eigen_guess);
+        }
+        for (s, p) in all.into_iter().skip(progress.seeds_done) {
+            let mut known = false;
+            for b in &progress.branches {
+                if on_branch(&mut tr, b, &s, p)? {
+                    known = true;
+                    break;
+                }
+            }
+            if !known {
+                progress.branches.push(tr.trace(&s, p)?);
+            }
+            progress.seeds_done += 1;
+            progress.linearisations = tr.linearisations;
+            progress.eigen_guess = tr.eigen_guess();
+            if on_seed(&progress) {
+                return Ok(true);
             }
         }
-        if !known {
-            branches.push(tr.trace(&s, p)?);
-        }
+        Ok(false)
+    })();
+    let (stopped, error) = match r {
+        Ok(s) => (s, None),
+        Err(e) => (false, Some(e)),
+    };
+    let branches = distinct(&tr, progress.branches.clone());
+    BranchesRun {
+        set: BranchSet {
+            branches,
+            linearisations: tr.linearisations,
+        },
+        seeds_total,
+        progress,
+        stopped,
+        error,
     }
-    // Drop branches lying wholly on a longer one (tolerance: far below the distance between
-    // distinct equilibria, above the chord error of the polylines).
+}
+
+/// Drop branches lying wholly on a longer one (tolerance: far below the distance between
+/// distinct equilibria, above the chord error of the polylines).
+fn distinct(tr: &Tracer<'_>, branches: Vec<Branch>) -> Vec<Branch> {
     let mut keep = vec![true; branches.len()];
     for i in 0..branches.len() {
         for j in 0..branches.len() {
             if i != j && keep[j] {
                 let (li, lj) = (length(&branches[i]), length(&branches[j]));
-                if li <= lj && contained(&tr, &branches[i], &branches[j], 2e-3) {
+                if li <= lj && contained(tr, &branches[i], &branches[j], 2e-3) {
                     keep[i] = false;
                     break;
                 }
             }
         }
     }
-    let branches = branches
+    branches
         .into_iter()
         .zip(keep)
         .filter_map(|(b, k)| k.then_some(b))
-        .collect();
-    Ok(BranchSet {
-        branches,
-        linearisations: tr.linearisations,
-    })
+        .collect()
 }
 
 fn length(b: &Branch) -> f64 {

@@ -962,3 +962,15 @@ pub fn trace_branch(
 ) -> Result<Branch, ContinuationError> {
     Tracer::new(fam, opts).trace(start, p)
 }
+
+impl Tracer<'_> {
+    /// The warm start of the leading-eigenvalue iteration (for checkpoints; NaN: none).
+    pub fn eigen_guess(&self) -> f64 {
+        self.stab.warm_start()
+    }
+
+    /// Restore a warm start saved with [`eigen_guess`](Self::eigen_guess).
+    pub fn set_eigen_guess(&mut self, guess: f64) {
+        self.stab.set_warm_start(guess);
+    }
+}

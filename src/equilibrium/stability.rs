@@ -606,6 +606,19 @@ pub fn spectrum(model: &Model, t_years: f64, temps: &[f64]) -> Spectrum {
     }
 }
 
+impl Stability {
+    /// The warm start of the next symmetric leading-eigenvalue iteration (1/year, NaN: none),
+    /// saved in checkpoints so a resumed sweep repeats the same iterations.
+    pub fn warm_start(&self) -> f64 {
+        self.last
+    }
+
+    /// Set the warm start (a value from [`warm_start`](Self::warm_start)).
+    pub fn set_warm_start(&mut self, guess: f64) {
+        self.last = guess;
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -239,6 +239,106 @@ pub fn sweep(
     tol: Tolerances,
     progress: &mut dyn FnMut(usize),
 ) -> Result<SweepResult, SweepError> {
+    let mut hook = |p: &SweepProgress| {
+        progress(p.steps.len());
+        false
+    };
+    let run = sweep_from(fam, spec, start, tol, SweepProgress::default(), &mut hook);
+    match run.error {
+        Some(e) => Err(e),
+        None => Ok(run.result),
+    }
+}
+
+/// Where a sweep stands after a finished step: everything the next step depends on, so that a
+/// sweep continued from it takes exactly the steps an uninterrupted one takes.
+#[derive(Debug, Clone, PartialEq)]
+pub struct SweepProgress {
+    /// Finished steps, first leg then second leg.
+    pub steps: Vec<SweepStep>,
+    /// Tipping points found so far.
+    pub tipping: Vec<Tipping>,
+    /// Steps that needed time stepping.
+    pub settled_steps: usize,
+    /// Steps where the year limit was reached first.
+    pub unsettled_steps: usize,
+    /// `dT/dp` of the last step's state when it was followed along its branch.
+    pub carry: Option<Vec<f64>>,
+    /// Warm start of the tracer's leading-eigenvalue iteration (NaN: none yet).
+    pub eigen_guess: f64,
+}
+
+impl Default for SweepProgress {
+    fn default() -> SweepProgress {
+        SweepProgress {
+            steps: Vec::new(),
+            tipping: Vec::new(),
+            settled_steps: 0,
+            unsettled_steps: 0,
+            carry: None,
+            eigen_guess: f64::NAN,
+        }
+    }
+}
+
+/// A sweep that finished, stopped at a step boundary, or failed (with the steps before).
+#[derive(Debug)]
+pub struct SweepRun {
+    /// The steps done (a full result when neither stopped nor failed).
+    pub result: SweepResult,
+    /// The state to continue from.
+    pub progress: SweepProgress,
+    /// Whether `on_step` asked to stop.
+    pub stopped: bool,
+    /// The failure that ended it.
+    pub error: Option<SweepError>,
+}
+
+/// The sweep continued from `progress` (default: from the start). After every finished step
+/// `on_step` gets the progress and returns `true` to stop there.
+pub fn sweep_from(
+    fam: &Controlled,
+    spec: &SweepSpec,
+    start: &[f64],
+    tol: Tolerances,
+    mut progress: SweepProgress,
+    on_step: &mut dyn FnMut(&SweepProgress) -> bool,
+) -> SweepRun {
+    let r = sweep_inner(fam, spec, start, tol, &mut progress, on_step);
+    let (stopped, error) = match r {
+        Ok(stopped) => (stopped, None),
+        Err(e) => (false, Some(e)),
+    };
+    // A partial sweep has no hysteresis measure (NaN, no intervals): the legs are not both done.
+    let (hysteresis_width, hysteresis_intervals) = if progress.steps.len() == 2 * spec.steps {
+        hysteresis(&progress.steps, &progress.tipping, spec.steps)
+    } else {
+        (f64::NAN, Vec::new())
+    };
+    SweepRun {
+        result: SweepResult {
+            steps: progress.steps.clone(),
+            tipping: progress.tipping.clone(),
+            hysteresis_width,
+            hysteresis_intervals,
+            settled_steps: progress.settled_steps,
+            unsettled_steps: progress.unsettled_steps,
+        },
+        progress,
+        stopped,
+        error,
+    }
+}
+
+/// The loop of `sweep_from`: `Ok(true)` when stopped early.
+fn sweep_inner(
+    fam: &Controlled,
+    spec: &SweepSpec,
+    start: &[f64],
+    tol: Tolerances,
+    pg: &mut SweepProgress,
+    on_step: &mut dyn FnMut(&SweepProgress) -> bool,
+) -> Result<bool, SweepError> {
     let values: Vec<f64> = (0..spec.steps)
         .map(|k| spec.from + (spec.to - spec.from) * k as f64 / (spec.steps - 1) as f64)
         .collect();
@@ -253,19 +353,21 @@ pub fn sweep(
         fold_tolerance: spec.refine_relative,
     };
     let mut tr = Tracer::new(fam, opts);
-    let mut steps: Vec<SweepStep> = Vec::with_capacity(2 * spec.steps);
-    let mut tipping = Vec::new();
-    let (mut settled_steps, mut unsettled_steps) = (0, 0);
+    tr.set_eigen_guess(pg.eigen_guess);
     let up = if spec.to > spec.from { 1 } else { -1 };
     let legs: [(i32, Vec<f64>); 2] = [
         (up, values.clone()),
         (-up, values.iter().rev().copied().collect()),
     ];
-    let mut prev: Option<(Vec<f64>, f64)> = None;
-    // dT/dp of the previous step's state when it was followed along its branch.
-    let mut carry: Option<Vec<f64>> = None;
+    let mut prev: Option<(Vec<f64>, f64)> = pg.steps.last().map(|s| (s.state.clone(), s.control));
+    let skip = pg.steps.len();
+    let mut k = 0;
     for (dir, vals) in legs {
         for &p in &vals {
+            k += 1;
+            if k <= skip {
+                continue;
+            }
             let model = fam.model_at(p)?;
             let (state, leading, years, rate, settled, reached) = match &prev {
                 // The first value: settle from the given start.
@@ -279,14 +381,14 @@ pub fn sweep(
                     // fall just beyond it, and follow the new branch on to this value (a coarse
                     // step can hold several tipping points).
                     let (mut from_t, mut from_p) = (t0.clone(), *p0);
-                    let mut dtdp0 = carry.take();
+                    let mut dtdp0 = pg.carry.take();
                     let mut years = 0.0;
                     let mut jumped = false;
                     let mut out = None;
                     for _ in 0..1000 {
                         match follow(&mut tr, &from_t, from_p, p, spec.refine_relative, dtdp0.take())? {
                             Follow::Reached { state, leading, dtdp } => {
-                                carry = Some(dtdp);
+                                pg.carry = Some(dtdp);
                                 let how = if jumped {
                                     Reached::Settled
                                 } else {
@@ -308,11 +410,11 @@ pub fn sweep(
                                 let after = fam.model_at(p_jump)?;
                                 let (st, y, r, ok) = settle_and_polish(&after, &t_ok, spec, tol)?;
                                 let at = fam.model_at(p_ok)?;
-                                tipping.push(Tipping {
+                                pg.tipping.push(Tipping {
                                     control: 0.5 * (p_ok + p_bad),
                                     bracket: (p_ok, p_bad),
                                     direction: dir,
-                                    step: steps.len(),
+                                    step: pg.steps.len(),
                                     ice_edge_before: at.ice_edges(&t_ok).0,
                                     ice_edge_after: after.ice_edges(&st).0,
                                     global_mean_before: at.global_mean(&t_ok),
@@ -349,13 +451,13 @@ pub fn sweep(
                 }
             };
             if reached == Reached::Settled {
-                settled_steps += 1;
+                pg.settled_steps += 1;
                 if !settled {
-                    unsettled_steps += 1;
+                    pg.unsettled_steps += 1;
                 }
             }
             let (north, south) = model.ice_edges(&state);
-            steps.push(SweepStep {
+            pg.steps.push(SweepStep {
                 control: p,
                 direction: dir,
                 global_mean: model.global_mean(&state),
@@ -369,18 +471,13 @@ pub fn sweep(
                 reached,
             });
             prev = Some((state, p));
-            progress(steps.len());
+            pg.eigen_guess = tr.eigen_guess();
+            if on_step(pg) {
+                return Ok(true);
+            }
         }
     }
-    let (hysteresis_width, hysteresis_intervals) = hysteresis(&steps, &tipping, spec.steps);
-    Ok(SweepResult {
-        steps,
-        tipping,
-        hysteresis_width,
-        hysteresis_intervals,
-        settled_steps,
-        unsettled_steps,
-    })
+    Ok(false)
 }
 
 /// Intervals of control where the two legs ended in different states, bounded by the refined

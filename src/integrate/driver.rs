@@ -1,9 +1,12 @@
 //! The run driver: owns the loop over output times, hands each output state to an observer
 //! (the file writer) and reports progress. Output is streamed; nothing accumulates in memory.
+//! After every record a [`Boundary`] hook may save the [`Stepper`]'s state or stop the run;
+//! [`run_from`] continues from a restored stepper at the same sample times.
 
 use super::explicit::{Explicit, Scheme};
-use super::rosenbrock::{Ros2, StepPolicy};
+use super::rosenbrock::{Ros2, Ros2Snapshot, StepPolicy};
 use super::{Integrator, SolverError, Stats};
+use crate::checkpoint::{Restart, RestartError};
 use crate::config::spec::{Method, TimeSpec};
 use crate::model::Model;
 
@@ -90,6 +93,182 @@ pub fn integrator<'m>(
     }
 }
 
+/// What a job's step-boundary hook tells the driver.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Flow {
+    /// Go on.
+    Continue,
+    /// Stop here (the summary then ends at this record).
+    Stop,
+}
+
+/// Called after every output record (a step boundary) with the time, the number of records so
+/// far and the integrator, e.g. to write a checkpoint or to stop on a signal.
+pub trait Boundary {
+    /// Decide whether to go on after the record at model time `t` (years).
+    fn at(&mut self, t: f64, records: u64, stepper: &Stepper<'_>) -> Result<Flow, RunError>;
+}
+
+/// A boundary hook that never stops and saves nothing.
+pub struct NoHooks;
+
+impl Boundary for NoHooks {
+    fn at(&mut self, _: f64, _: u64, _: &Stepper<'_>) -> Result<Flow, RunError> {
+        Ok(Flow::Continue)
+    }
+}
+
+/// The integrator of a run as a concrete type, so its state can be saved and restored.
+pub enum Stepper<'m> {
+    /// The implicit ROS2 scheme.
+    Implicit(Box<Ros2<'m>>),
+    /// An explicit Dormand-Prince scheme.
+    Explicit(Explicit<'m>),
+}
+
+impl<'m> Stepper<'m> {
+    /// The integrator a time spec asks for, from `y0` (K) at time 0 to `time.years`.
+    pub fn new(model: &'m Model, time: &TimeSpec, y0: &[f64]) -> Stepper<'m> {
+        match time.method {
+            Method::Implicit => Stepper::Implicit(Box::new(Ros2::new(
+                model,
+                0.0,
+                y0,
+                time.years,
+                step_policy(time),
+                time.max_steps,
+            ))),
+            Method::Dopri5 | Method::Dop853 => Stepper::Explicit(Explicit::new(
+                model,
+                if time.method == Method::Dopri5 {
+                    Scheme::Dopri5
+                } else {
+                    Scheme::Dop853
+                },
+                0.0,
+                y0,
+                time.tolerance,
+                time.max_step,
+                time.stiffness_check,
+                time.max_steps,
+            )),
+        }
+    }
+
+    fn implicit_mut(&mut self) -> Option<&mut Ros2<'m>> {
+        match self {
+            Stepper::Implicit(r) => Some(r.as_mut()),
+            Stepper::Explicit(_) => None,
+        }
+    }
+
+    fn integ(&mut self) -> &mut dyn Integrator {
+        match self {
+            Stepper::Implicit(r) => r.as_mut(),
+            Stepper::Explicit(e) => e,
+        }
+    }
+
+    /// Counters so far.
+    pub fn stats(&self) -> Stats {
+        match self {
+            Stepper::Implicit(r) => r.stats(),
+            Stepper::Explicit(e) => e.stats(),
+        }
+    }
+
+    /// Store the integrator's whole state under `stepper.*` names.
+    pub fn save(&self, r: &mut Restart) {
+        let stats = |s: Stats| [s.steps, s.rejected, s.rhs_evals, s.factorisations];
+        match self {
+            Stepper::Implicit(ros) => {
+                let s = ros.snapshot();
+                r.put_str("stepper.kind", "ros2");
+                r.put_f64("stepper.t", &[s.t, s.t_prev, s.h]);
+                r.put_u64("stepper.n_fixed", &[s.n_fixed]);
+                r.put_f64("stepper.y", &s.y);
+                r.put_f64("stepper.f", &s.f);
+                r.put_f64("stepper.y_prev", &s.y_prev);
+                r.put_f64("stepper.f_prev", &s.f_prev);
+                r.put_f64("stepper.jac_lower", &s.jac.0);
+                r.put_f64("stepper.jac_diag", &s.jac.1);
+                r.put_f64("stepper.jac_upper", &s.jac.2);
+                r.put_f64("stepper.jac_rank_one", s.jac.3.as_slice());
+                r.put_u64("stepper.jac_fresh", &[u64::from(s.jac.4)]);
+                r.put_u64("stepper.stats", &stats(s.stats));
+            }
+            Stepper::Explicit(ex) => {
+                let (t, y, st) = ex.snapshot();
+                r.put_str("stepper.kind", "explicit");
+                r.put_f64("stepper.t", &[t]);
+                r.put_f64("stepper.y", &y);
+                r.put_u64("stepper.stats", &stats(st));
+            }
+        }
+    }
+
+    /// Restore the state `save` stored (the stepper must be built from the same config).
+    pub fn restore(&mut self, r: &Restart) -> Result<(), RestartError> {
+        let st = r.u64s("stepper.stats")?;
+        if st.len() != 4 {
+            return Err(r.bad("stepper.stats needs 4 counters"));
+        }
+        let stats = Stats {
+            steps: st[0],
+            rejected: st[1],
+            rhs_evals: st[2],
+            factorisations: st[3],
+        };
+        let kind = r.str("stepper.kind")?;
+        let ok = match self {
+            Stepper::Implicit(ros) if kind == "ros2" => {
+                let t = r.f64s("stepper.t")?;
+                if t.len() != 3 {
+                    return Err(r.bad("stepper.t needs 3 values"));
+                }
+                let rank = r.f64s("stepper.jac_rank_one")?;
+                ros.restore(&Ros2Snapshot {
+                    t: t[0],
+                    t_prev: t[1],
+                    h: t[2],
+                    n_fixed: r.u64("stepper.n_fixed")?,
+                    y: r.f64s("stepper.y")?.to_vec(),
+                    f: r.f64s("stepper.f")?.to_vec(),
+                    y_prev: r.f64s("stepper.y_prev")?.to_vec(),
+                    f_prev: r.f64s("stepper.f_prev")?.to_vec(),
+                    jac: (
+                        r.f64s("stepper.jac_lower")?.to_vec(),
+                        r.f64s("stepper.jac_diag")?.to_vec(),
+                        r.f64s("stepper.jac_upper")?.to_vec(),
+                        rank.first().copied(),
+                        r.u64("stepper.jac_fresh")? != 0,
+                    ),
+                    stats,
+                })
+            }
+            Stepper::Explicit(ex) if kind == "explicit" => {
+                ex.restore(r.f64("stepper.t")?, r.f64s("stepper.y")?, stats)
+            }
+            _ => return Err(r.bad(format!("integrator `{kind}` does not match time.method"))),
+        };
+        if ok {
+            Ok(())
+        } else {
+            Err(r.bad("integrator state has the wrong number of bands"))
+        }
+    }
+}
+
+fn step_policy(time: &TimeSpec) -> StepPolicy {
+    match time.fixed_step {
+        Some(h) => StepPolicy::Fixed(h),
+        None => StepPolicy::Adaptive {
+            tolerance: time.tolerance,
+            max_step: time.max_step,
+        },
+    }
+}
+
 /// Run from `y0` at time 0 to `time.years`, calling `observer` at every output time (including
 /// 0 and the end) and `progress` with the model time reached.
 pub fn run(
@@ -99,55 +278,92 @@ pub fn run(
     observer: &mut dyn Observer,
     progress: &mut dyn FnMut(f64),
 ) -> Result<RunSummary, RunError> {
+    let stepper = Stepper::new(model, time, y0);
+    run_from(time, stepper, 0, y0, observer, progress, &mut NoHooks)
+}
+
+/// Continue a run with `stepper` (fresh from `Stepper::new`, or restored from a checkpoint)
+/// whose first `done` records (the last with state `last`, K) were already given to the
+/// observer; `hooks` is asked after every record whether to go on. Records resume at the same
+/// sample times an uninterrupted run uses.
+pub fn run_from(
+    time: &TimeSpec,
+    mut stepper: Stepper<'_>,
+    done: u64,
+    last: &[f64],
+    observer: &mut dyn Observer,
+    progress: &mut dyn FnMut(f64),
+    hooks: &mut dyn Boundary,
+) -> Result<RunSummary, RunError> {
     if time.output == crate::config::spec::OutputMode::EveryStep {
-        return run_every_step(model, time, y0, observer, progress);
+        return run_every_step(time, stepper, done, last, observer, progress, hooks);
     }
-    let mut integ = integrator(model, time, 0.0, y0, time.years);
-    let mut state = y0.to_vec();
-    let mut outputs = 0;
+    let mut state = last.to_vec();
+    let mut outputs = done;
     let mut t_last = 0.0;
-    for t in output_times(time.years, time.output_every) {
+    for t in output_times(time.years, time.output_every).skip(done as usize) {
         if t > 0.0 {
-            integ.advance_to(t, &mut state)?;
+            stepper.integ().advance_to(t, &mut state)?;
         }
         observer.record(t, &state).map_err(RunError::Output)?;
         outputs += 1;
         t_last = t;
         progress(t);
+        if hooks.at(t, outputs, &stepper)? == Flow::Stop {
+            break;
+        }
+    }
+    if outputs == done {
+        // Nothing left to do: the checkpoint was taken at the end.
+        t_last = output_times(time.years, time.output_every)
+            .nth((done as usize).saturating_sub(1))
+            .unwrap_or(0.0);
     }
     Ok(RunSummary {
         t_end: t_last,
         final_state: state,
         outputs,
-        stats: integ.stats(),
+        stats: stepper.stats(),
     })
 }
 
 /// `time.output = "every_step"`: a record at time 0 and after every accepted step of the
 /// implicit scheme (validation allows no other scheme).
 fn run_every_step(
-    model: &Model,
     time: &TimeSpec,
-    y0: &[f64],
+    mut stepper: Stepper<'_>,
+    done: u64,
+    last: &[f64],
     observer: &mut dyn Observer,
     progress: &mut dyn FnMut(f64),
+    hooks: &mut dyn Boundary,
 ) -> Result<RunSummary, RunError> {
-    let policy = match time.fixed_step {
-        Some(h) => StepPolicy::Fixed(h),
-        None => StepPolicy::Adaptive {
-            tolerance: time.tolerance,
-            max_step: time.max_step,
-        },
+    let not_implicit = || {
+        RunError::Solver(SolverError::NoConvergence {
+            what: "time.output = \"every_step\"".into(),
+            detail: "needs time.method = \"implicit\"".into(),
+        })
     };
-    let mut r = Ros2::new(model, 0.0, y0, time.years, policy, time.max_steps);
-    observer.record(0.0, y0).map_err(RunError::Output)?;
-    let mut outputs = 1;
-    while r.time() < time.years {
-        r.step()?;
-        observer.record(r.time(), r.state()).map_err(RunError::Output)?;
-        outputs += 1;
-        progress(r.time());
+    let mut outputs = done;
+    let mut stop = false;
+    if done == 0 {
+        observer.record(0.0, last).map_err(RunError::Output)?;
+        outputs = 1;
+        stop = hooks.at(0.0, outputs, &stepper)? == Flow::Stop;
     }
+    while !stop {
+        let r = stepper.implicit_mut().ok_or_else(not_implicit)?;
+        if r.time() >= time.years {
+            break;
+        }
+        r.step()?;
+        let t = r.time();
+        observer.record(t, r.state()).map_err(RunError::Output)?;
+        outputs += 1;
+        progress(t);
+        stop = hooks.at(t, outputs, &stepper)? == Flow::Stop;
+    }
+    let r = stepper.implicit_mut().ok_or_else(not_implicit)?;
     Ok(RunSummary {
         t_end: r.time(),
         final_state: r.state().to_vec(),

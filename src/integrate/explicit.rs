@@ -169,3 +169,22 @@ impl Integrator for Explicit<'_> {
         self.stats
     }
 }
+
+impl Explicit<'_> {
+    /// The integrator's state for a checkpoint: time (years), state (K) and counters. Each
+    /// output interval starts `ode_solvers` afresh, so nothing else carries over.
+    pub fn snapshot(&self) -> (f64, Vec<f64>, Stats) {
+        (self.t, self.y.as_slice().to_vec(), self.stats)
+    }
+
+    /// Continue from a snapshot; `false` (nothing changed) when the size differs.
+    pub fn restore(&mut self, t: f64, y: &[f64], stats: Stats) -> bool {
+        if y.len() != self.y.len() {
+            return false;
+        }
+        self.t = t;
+        self.y.as_mut_slice().copy_from_slice(y);
+        self.stats = stats;
+        true
+    }
+}

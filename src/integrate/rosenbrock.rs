@@ -307,3 +307,81 @@ impl Integrator for Ros2<'_> {
         self.stats
     }
 }
+
+/// The complete mutable state of a [`Ros2`] (for checkpoints): restoring it into an
+/// integrator built with the same model, end time and policy continues with exactly the steps
+/// the saved one would have taken.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Ros2Snapshot {
+    /// Current time, years.
+    pub t: f64,
+    /// Previous accepted step start, years.
+    pub t_prev: f64,
+    /// Step size the controller proposes next, years.
+    pub h: f64,
+    /// Fixed steps taken.
+    pub n_fixed: u64,
+    /// State at `t`, K.
+    pub y: Vec<f64>,
+    /// `dT/dt` at `t`, K/yr (the FSAL stage that starts the next step).
+    pub f: Vec<f64>,
+    /// State at `t_prev`, K (dense output).
+    pub y_prev: Vec<f64>,
+    /// `dT/dt` at `t_prev`, K/yr (dense output).
+    pub f_prev: Vec<f64>,
+    /// Jacobian at `(t, y)`: lower, diagonal, upper, rank-one scale; and whether it is fresh.
+    pub jac: (Vec<f64>, Vec<f64>, Vec<f64>, Option<f64>, bool),
+    /// Counters.
+    pub stats: Stats,
+}
+
+impl Ros2<'_> {
+    /// The integrator's state, for a checkpoint.
+    pub fn snapshot(&self) -> Ros2Snapshot {
+        Ros2Snapshot {
+            t: self.t,
+            t_prev: self.t_prev,
+            h: self.h,
+            n_fixed: self.n_fixed,
+            y: self.y.clone(),
+            f: self.f.clone(),
+            y_prev: self.y_prev.clone(),
+            f_prev: self.f_prev.clone(),
+            jac: (
+                self.jac.lower.clone(),
+                self.jac.diag.clone(),
+                self.jac.upper.clone(),
+                self.jac.rank_one,
+                self.jac_fresh,
+            ),
+            stats: self.stats,
+        }
+    }
+
+    /// Continue from a snapshot of an integrator of the same model size; `false` (nothing
+    /// changed) when the sizes differ.
+    pub fn restore(&mut self, s: &Ros2Snapshot) -> bool {
+        let n = self.y.len();
+        if [&s.y, &s.f, &s.y_prev, &s.f_prev, &s.jac.0, &s.jac.1, &s.jac.2]
+            .iter()
+            .any(|v| v.len() != n)
+        {
+            return false;
+        }
+        self.t = s.t;
+        self.t_prev = s.t_prev;
+        self.h = s.h;
+        self.n_fixed = s.n_fixed;
+        self.y.copy_from_slice(&s.y);
+        self.f.copy_from_slice(&s.f);
+        self.y_prev.copy_from_slice(&s.y_prev);
+        self.f_prev.copy_from_slice(&s.f_prev);
+        self.jac.lower.copy_from_slice(&s.jac.0);
+        self.jac.diag.copy_from_slice(&s.jac.1);
+        self.jac.upper.copy_from_slice(&s.jac.2);
+        self.jac.rank_one = s.jac.3;
+        self.jac_fresh = s.jac.4;
+        self.stats = s.stats;
+        true
+    }
+}

@@ -6,6 +6,8 @@
 //! member order, so the file is the same value for value on any number of threads and, after
 //! `merge`, for any split into shards.
 
+use super::run::Checkpointing;
+use crate::checkpoint::{self, Restart, RestartError};
 use crate::cli::progress;
 use crate::config::spec::{EnsembleSpec, OutputMode};
 use crate::config::{ConfigError, Loaded};
@@ -13,9 +15,12 @@ use crate::ensemble::{sample, shard_range};
 use crate::equilibrium::NewtonOptions;
 use crate::error::Error;
 use crate::integrate::driver::{self, Observer, RunError};
+use crate::interrupt::StopFlag;
 use crate::model::{Model, Workspace};
+use crate::output::common::Completion;
 use crate::output::ensemble_file::{self, EnsembleData, SensitivityColumns};
 use crate::output::run_file::YearMean;
+use crate::output::Attr;
 use rayon::prelude::*;
 use std::path::Path;
 
@@ -178,6 +183,35 @@ fn run_member(cfg: &Loaded, spec: &EnsembleSpec, times: usize) -> MemberResult {
 
 /// Run the ensemble (or one shard of it) and return the file content.
 pub fn run_ensemble(cfg: &Loaded, opts: EnsembleOptions) -> Result<EnsembleData, Error> {
+    Ok(run_ensemble_ck(cfg, opts, &Checkpointing::default(), None)?.data)
+}
+
+/// An ensemble run that may have stopped early.
+struct EnsembleRun {
+    data: EnsembleData,
+    /// The signal that stopped it.
+    stopped: Option<i32>,
+    /// Whether a checkpoint was written.
+    saved: bool,
+}
+
+/// The members of `range` in chunks of `ck.every` members (all at once without checkpoints),
+/// members in parallel within a chunk; a member not yet started when a stop is requested is
+/// skipped, and only the members before the first skipped one are kept (member order).
+fn run_ensemble_ck(
+    cfg: &Loaded,
+    opts: EnsembleOptions,
+    ck: &Checkpointing,
+    restart_to: Option<&Path>,
+) -> Result<EnsembleRun, Error> {
+    if let Some(e) = ck.every {
+        if !(e >= 1.0) || e.fract() != 0.0 {
+            return Err(Error::Usage(format!(
+                "--checkpoint-every-members {e}: give a whole number of members, at least 1"
+            )));
+        }
+    }
+    let resume = ck.load("ensemble", cfg)?;
     let spec = cfg.spec.ensemble.clone().ok_or_else(|| {
         Error::Config(ConfigError::Key {
             path: cfg.source.clone(),
@@ -230,7 +264,33 @@ pub fn run_ensemble(cfg: &Loaded, opts: EnsembleOptions) -> Result<EnsembleData,
     } else {
         indicatif::ProgressBar::hidden()
     };
-    let work = || -> Result<Vec<MemberResult>, Error> {
+    let globe_w = 3 + usize::from(globe) + if spec.fields { n } else { 0 };
+    let mut results: Vec<MemberResult> = match &resume {
+        Some(r) => {
+            let got = restore_members(r, range.clone(), globe_w * times.len(), spec.sensitivity)
+                .map_err(super::run::restart_error)?;
+            let want: Vec<u64> = mine[..got.len()].iter().flatten().map(|v| v.to_bits()).collect();
+            let have: Vec<u64> = r
+                .f64s("members.samples")
+                .map_err(super::run::restart_error)?
+                .iter()
+                .map(|v| v.to_bits())
+                .collect();
+            if want != have {
+                return Err(super::run::restart_error(
+                    r.bad("the saved samples differ from those drawn from ensemble.seed"),
+                ));
+            }
+            got
+        }
+        None => Vec::new(),
+    };
+    pb.set_position(results.len() as u64);
+    let chunk = ck.every.map_or(range.len().max(1), |e| e as usize);
+    let stop = StopFlag;
+    let mut stopped = None;
+    let mut saved = false;
+    let work = || -> Result<Vec<Loaded>, Error> {
         // Validate every member first (a bad sample is bad input, exit 2, before any run).
         let configs: Vec<Loaded> = mine
             .par_iter()
@@ -254,19 +314,51 @@ pub fn run_ensemble(cfg: &Loaded, opts: EnsembleOptions) -> Result<EnsembleData,
                 })
             })
             .collect::<Result<_, _>>()?;
-        Ok(configs
-            .par_iter()
-            .map(|c| {
-                let r = run_member(c, &spec, times.len());
-                pb.inc(1);
-                r
-            })
-            .collect())
+        Ok(configs)
     };
-    let results = match &pool {
-        Some(p) => p.install(work)?,
-        None => work()?,
+    let in_pool = |f: &mut (dyn FnMut() -> Result<(), Error> + Send)| match &pool {
+        Some(p) => p.install(f),
+        None => f(),
     };
+    let mut configs = Vec::new();
+    in_pool(&mut || {
+        configs = work()?;
+        Ok(())
+    })?;
+    while results.len() < configs.len() && stopped.is_none() {
+        let from = results.len();
+        let to = (from + chunk).min(configs.len());
+        let mut got: Vec<Option<MemberResult>> = Vec::new();
+        in_pool(&mut || {
+            got = configs[from..to]
+                .par_iter()
+                .map(|c| {
+                    if stop.requested().is_some() {
+                        return None;
+                    }
+                    let r = run_member(c, &spec, times.len());
+                    pb.inc(1);
+                    Some(r)
+                })
+                .collect();
+            Ok(())
+        })?;
+        let complete_chunk = got.iter().all(Option::is_some);
+        results.extend(got.into_iter().map_while(|r| r));
+        if !complete_chunk {
+            stopped = stop.requested();
+        }
+        if let Some(path) = restart_to {
+            if ck.every.is_some() && (stopped.is_some() || results.len() < configs.len()) {
+                save_members(path, cfg, &results, range.clone(), &mine[..results.len()])
+                    .map_err(super::run::restart_error)?;
+                saved = true;
+            }
+        }
+        if stopped.is_none() {
+            stopped = stop.requested().filter(|_| results.len() < configs.len());
+        }
+    }
     pb.finish_and_clear();
     let count = results.len();
     let width = 3 + usize::from(globe) + if spec.fields { n } else { 0 };
@@ -327,7 +419,121 @@ pub fn run_ensemble(cfg: &Loaded, opts: EnsembleOptions) -> Result<EnsembleData,
             cols.ice_edge_per_wm2.push(s[3]);
         }
     }
-    Ok(data)
+    data.samples.truncate(count * data.keys.len());
+    Ok(EnsembleRun { data, stopped, saved })
+}
+
+/// Save the finished members' results (and their samples, to check on resume).
+fn save_members(
+    path: &Path,
+    cfg: &Loaded,
+    results: &[MemberResult],
+    range: std::ops::Range<usize>,
+    samples: &[Vec<f64>],
+) -> Result<(), RestartError> {
+    let mut r = Restart::new("ensemble", &cfg.resolved_text());
+    r.put_u64("members.range", &[range.start as u64, range.end as u64]);
+    r.put_u64("members.done", &[results.len() as u64]);
+    let flat = |f: &dyn Fn(&MemberResult) -> Vec<f64>| -> Vec<f64> { results.iter().flat_map(f).collect() };
+    r.put_f64("members.records", &flat(&|m| m.records.clone()));
+    r.put_f64(
+        "members.samples",
+        &samples.iter().flatten().copied().collect::<Vec<_>>(),
+    );
+    r.put_u64(
+        "members.failed",
+        &results
+            .iter()
+            .map(|m| u64::from(m.failure.is_some()))
+            .collect::<Vec<_>>(),
+    );
+    let texts: Vec<&str> = results
+        .iter()
+        .map(|m| m.failure.as_deref().unwrap_or(""))
+        .collect();
+    r.put_str("members.failure_text", &texts.join("\u{1e}"));
+    r.put_u64(
+        "members.has_fit",
+        &results
+            .iter()
+            .map(|m| u64::from(m.fit.is_some()))
+            .collect::<Vec<_>>(),
+    );
+    r.put_f64(
+        "members.fit",
+        &flat(&|m| {
+            m.fit.map_or(vec![f64::NAN; 4], |f| {
+                vec![f.slope, f.intercept_at_first, f.r2, f.x_sd]
+            })
+        }),
+    );
+    r.put_u64(
+        "members.fit_n",
+        &results
+            .iter()
+            .map(|m| m.fit.map_or(0, |f| f.n))
+            .collect::<Vec<_>>(),
+    );
+    r.put_f64(
+        "members.sensitivity",
+        &flat(&|m| m.sensitivity.map_or(vec![f64::NAN; 4], |s| s.to_vec())),
+    );
+    r.save(&checkpoint::restart_path(path))
+}
+
+/// The members saved by `save_members`, checked against this shard and record width.
+fn restore_members(
+    r: &Restart,
+    range: std::ops::Range<usize>,
+    per_member: usize,
+    sensitivity: bool,
+) -> Result<Vec<MemberResult>, RestartError> {
+    let saved = r.u64s("members.range")?;
+    if saved != [range.start as u64, range.end as u64] {
+        return Err(r.bad(format!(
+            "it holds members {} to {}, this run is members {} to {} (use the same --shard)",
+            saved.first().copied().unwrap_or(0),
+            saved.get(1).copied().unwrap_or(0),
+            range.start,
+            range.end
+        )));
+    }
+    let done = r.u64("members.done")? as usize;
+    let records = r.f64s("members.records")?;
+    let (failed, has_fit, fit, fit_n, sens) = (
+        r.u64s("members.failed")?,
+        r.u64s("members.has_fit")?,
+        r.f64s("members.fit")?,
+        r.u64s("members.fit_n")?,
+        r.f64s("members.sensitivity")?,
+    );
+    let texts: Vec<&str> = r.str("members.failure_text")?.split('\u{1e}').collect();
+    if done > range.len()
+        || records.len() != done * per_member
+        || failed.len() != done
+        || has_fit.len() != done
+        || fit.len() != 4 * done
+        || fit_n.len() != done
+        || sens.len() != 4 * done
+        || (done > 0 && texts.len() != done)
+    {
+        return Err(r.bad("member arrays do not match the member count and the record width"));
+    }
+    Ok((0..done)
+        .map(|i| MemberResult {
+            records: records[i * per_member..(i + 1) * per_member].to_vec(),
+            failure: (failed[i] != 0).then(|| texts[i].to_string()),
+            fit: (has_fit[i] != 0).then(|| crate::ensemble::stats::Fit {
+                slope: fit[4 * i],
+                intercept_at_first: fit[4 * i + 1],
+                r2: fit[4 * i + 2],
+                n: fit_n[i],
+                x_sd: fit[4 * i + 3],
+            }),
+            sensitivity: sensitivity
+                .then(|| [sens[4 * i], sens[4 * i + 1], sens[4 * i + 2], sens[4 * i + 3]]),
+        })
+        .collect())
 }
 
 /// What an ensemble job reports.
@@ -348,8 +554,42 @@ pub fn ensemble_to_file(
     command_line: &str,
     opts: EnsembleOptions,
 ) -> Result<EnsembleReport, Error> {
-    let data = run_ensemble(cfg, opts)?;
+    ensemble_job(cfg, path, command_line, opts, &Checkpointing::default())
+}
+
+/// [`ensemble_to_file`] with checkpoints every `ck.every` members into `<path>.restart` and/or
+/// resuming from `ck.resume`; on SIGINT/SIGTERM the members finished so far are written with
+/// `complete = 0` and `members_done`.
+pub fn ensemble_job(
+    cfg: &Loaded,
+    path: &Path,
+    command_line: &str,
+    opts: EnsembleOptions,
+    ck: &Checkpointing,
+) -> Result<EnsembleReport, Error> {
+    let EnsembleRun { data, stopped, saved } = run_ensemble_ck(cfg, opts, ck, Some(path))?;
+    if let Some(sig) = stopped {
+        let done = data.count();
+        let c = Completion::partial(vec![
+            ("members_done".into(), Attr::I64(done as i64)),
+            (
+                "interrupted_by".into(),
+                Attr::Str(crate::interrupt::signal_name(sig).into()),
+            ),
+        ]);
+        ensemble_file::write_with(path, &data, command_line, opts.shard, &c)?;
+        let restart = checkpoint::restart_path(path);
+        return Err(super::run::interrupted(
+            sig,
+            format!("{done} members done"),
+            path,
+            saved.then_some(restart.as_path()),
+        ));
+    }
     ensemble_file::write(path, &data, command_line, opts.shard)?;
+    if ck.every.is_some() || ck.resume.is_some() {
+        super::run::remove_restart(path);
+    }
     Ok(EnsembleReport {
         members: data.count(),
         failed: data.failures.len(),
@@ -361,11 +601,29 @@ pub fn ensemble_to_file(
 pub fn merge_files(inputs: &[std::path::PathBuf], output: &Path, command_line: &str) -> Result<usize, Error> {
     let mut parts = Vec::new();
     for p in inputs {
+        let complete = crate::output::NcReader::open(p)
+            .ok()
+            .and_then(|r| r.attr_i64("complete").ok().flatten());
+        if complete == Some(0) {
+            return Err(Error::Usage(format!(
+                "cannot merge {}: it is an incomplete file (complete = 0); finish it first (--resume)",
+                p.display()
+            )));
+        }
         let (d, _) =
             ensemble_file::read(p).map_err(|e| Error::Usage(format!("cannot merge {}: {e}", p.display())))?;
         parts.push((p.display().to_string(), d));
     }
     let data = ensemble_file::join(parts).map_err(|e| Error::Usage(format!("cannot merge: {e}")))?;
+    if let Some(signal) = StopFlag.requested() {
+        return Err(Error::Interrupted {
+            signal,
+            reached: format!(
+                "reading the shards ({}); no file written",
+                crate::interrupt::signal_name(signal)
+            ),
+        });
+    }
     ensemble_file::write(output, &data, command_line, None)?;
     Ok(data.count())
 }

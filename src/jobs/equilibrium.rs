@@ -215,6 +215,16 @@ pub fn equilibrium_to_file(
         settle_years: solved.settle_years,
         start: start.name(),
     };
+    if let Some(signal) = crate::interrupt::StopFlag.requested() {
+        // One solve has no partial result worth a file: nothing is written.
+        return Err(Error::Interrupted {
+            signal,
+            reached: format!(
+                "the end of the solve ({}); no file written",
+                crate::interrupt::signal_name(signal)
+            ),
+        });
+    }
     write_equilibrium(path, &model, &provenance(cfg, command_line), &rec)?;
     Ok(EquilibriumReport {
         global_mean: model.global_mean(&solved.state),

@@ -2,7 +2,7 @@
 //! `point`), the located folds (dimension `fold`) and one row per branch (dimension
 //! `branches`), with the fixed names of DESIGN section 4.
 
-use super::common::{attrs, mark_complete, write_latitude, write_provenance, Provenance};
+use super::common::{apply_completion, attrs, write_latitude, write_provenance, Completion, Provenance};
 use super::OutputError;
 use super::{Attr, NcWriter};
 use crate::equilibrium::continuation::{Branch, LegEnd};
@@ -42,6 +42,18 @@ pub fn write_branches(
     prov: &Provenance,
     info: &BranchesInfo<'_>,
     branches: &[Branch],
+) -> Result<(), OutputError> {
+    write_branches_with(path, model, prov, info, branches, &Completion::finished())
+}
+
+/// [`write_branches`] of a finished or partial set (`completion` says which).
+pub fn write_branches_with(
+    path: &Path,
+    model: &Model,
+    prov: &Provenance,
+    info: &BranchesInfo<'_>,
+    branches: &[Branch],
+    completion: &Completion,
 ) -> Result<(), OutputError> {
     let units = control_units(info.control_key);
     let mut w = NcWriter::create(path)?;
@@ -270,6 +282,6 @@ pub fn write_branches(
     w.set_attr_f64("control_from", info.from)?;
     w.set_attr_f64("control_to", info.to)?;
     w.set_attr_i64("linearisations", info.linearisations as i64)?;
-    mark_complete(&mut w, true)?;
+    apply_completion(&mut w, completion)?;
     w.finish()
 }

@@ -65,9 +65,45 @@ pub fn write_provenance(w: &mut NcWriter, prov: &Provenance, kind: &str) -> Resu
     Ok(())
 }
 
-/// Set `complete = 1` and the model time (or step) reached.
+/// Set `complete` to 1 (finished) or 0 (stopped early).
 pub fn mark_complete(w: &mut NcWriter, complete: bool) -> Result<(), OutputError> {
     w.set_attr_i64("complete", i64::from(complete))
+}
+
+/// How a job ended: `complete` and the global attributes that say how far it got (e.g.
+/// `steps_reached`, `failure`, `interrupted_by`).
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct Completion {
+    /// Whether the job finished.
+    pub complete: bool,
+    /// Extra global attributes.
+    pub attrs: Vec<(String, Attr)>,
+}
+
+impl Completion {
+    /// A finished job.
+    pub fn finished() -> Completion {
+        Completion {
+            complete: true,
+            attrs: Vec::new(),
+        }
+    }
+
+    /// A job stopped early, with attributes saying how far it got and why.
+    pub fn partial(attrs: Vec<(String, Attr)>) -> Completion {
+        Completion {
+            complete: false,
+            attrs,
+        }
+    }
+}
+
+/// Write the attributes of `c` and `complete`.
+pub fn apply_completion(w: &mut NcWriter, c: &Completion) -> Result<(), OutputError> {
+    for (name, value) in &c.attrs {
+        w.set_attr(name, value)?;
+    }
+    mark_complete(w, c.complete)
 }
 
 /// The `lat` coordinate (band centres, degrees_north) with `lat_bnds`, and the area weights.

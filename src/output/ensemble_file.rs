@@ -8,7 +8,7 @@
 //! concatenates them and writes exactly what a single run writes (only `creation_time`,
 //! `history` and `command_line` differ).
 
-use super::common::{attrs, mark_complete, write_provenance, Provenance};
+use super::common::{apply_completion, attrs, write_provenance, Completion, Provenance};
 use super::{Attr, NcReader, NcWriter, OutputError};
 use std::path::Path;
 
@@ -97,6 +97,17 @@ pub fn write(
     data: &EnsembleData,
     command_line: &str,
     shard: Option<(usize, usize)>,
+) -> Result<(), OutputError> {
+    write_with(path, data, command_line, shard, &Completion::finished())
+}
+
+/// [`write`] of a finished or partial ensemble (`completion` says which).
+pub fn write_with(
+    path: &Path,
+    data: &EnsembleData,
+    command_line: &str,
+    shard: Option<(usize, usize)>,
+    completion: &Completion,
 ) -> Result<(), OutputError> {
     let mut w = NcWriter::create(path)?;
     let prov = Provenance {
@@ -275,7 +286,7 @@ pub fn write(
         let (m, msg) = &data.failures[0];
         w.set_attr_str("first_failure", &format!("member {m}: {msg}"))?;
     }
-    mark_complete(&mut w, true)?;
+    apply_completion(&mut w, completion)?;
     w.finish()
 }
 

@@ -2,7 +2,7 @@
 //! tipping points (dimension `tipping`) and the hysteresis intervals (dimension `interval`),
 //! with the fixed names of DESIGN section 4.
 
-use super::common::{attrs, mark_complete, write_latitude, write_provenance, Provenance};
+use super::common::{apply_completion, attrs, write_latitude, write_provenance, Completion, Provenance};
 use super::OutputError;
 use super::{Attr, NcWriter};
 use crate::config::spec::SweepSpec;
@@ -21,6 +21,18 @@ pub fn write_sweep(
     prov: &Provenance,
     spec: &SweepSpec,
     res: &SweepResult,
+) -> Result<(), OutputError> {
+    write_sweep_with(path, model, prov, spec, res, &Completion::finished())
+}
+
+/// [`write_sweep`] of a finished or partial sweep (`completion` says which).
+pub fn write_sweep_with(
+    path: &Path,
+    model: &Model,
+    prov: &Provenance,
+    spec: &SweepSpec,
+    res: &SweepResult,
+    completion: &Completion,
 ) -> Result<(), OutputError> {
     let units = control_units(&spec.control);
     let control_long = format!("control value ({})", spec.control);
@@ -253,6 +265,6 @@ pub fn write_sweep(
     w.set_attr_f64("refine_relative", spec.refine_relative)?;
     w.set_attr_i64("time_stepped_steps", res.settled_steps as i64)?;
     w.set_attr_i64("unsettled_steps", res.unsettled_steps as i64)?;
-    mark_complete(&mut w, true)?;
+    apply_completion(&mut w, completion)?;
     w.finish()
 }
