@@ -25,7 +25,7 @@ pub enum Error {
     #[error("numerical failure: {0}")]
     Solver(#[from] SolverError),
     /// Interrupted by a signal (exit 128 + signal).
-    #[error("interrupted by signal {signal} at model time {reached}")]
+    #[error("interrupted by signal {signal}: {reached}")]
     Interrupted {
         /// Signal number.
         signal: i32,

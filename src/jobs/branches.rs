@@ -165,7 +165,10 @@ pub fn branches_job(
         )?;
         return Err(interrupted(
             sig,
-            format!("seed {} of {}", run.progress.seeds_done, run.seeds_total),
+            format!(
+                "stopped after seed {} of {}",
+                run.progress.seeds_done, run.seeds_total
+            ),
             path,
             saved.then_some(restart.as_path()),
         ));

@@ -581,7 +581,7 @@ pub fn ensemble_job(
         let restart = checkpoint::restart_path(path);
         return Err(super::run::interrupted(
             sig,
-            format!("{done} members done"),
+            format!("stopped after {done} finished members"),
             path,
             saved.then_some(restart.as_path()),
         ));
@@ -619,7 +619,7 @@ pub fn merge_files(inputs: &[std::path::PathBuf], output: &Path, command_line: &
         return Err(Error::Interrupted {
             signal,
             reached: format!(
-                "reading the shards ({}); no file written",
+                "stopped while reading the shards ({}); no file written",
                 crate::interrupt::signal_name(signal)
             ),
         });

@@ -220,7 +220,7 @@ pub fn equilibrium_to_file(
         return Err(Error::Interrupted {
             signal,
             reached: format!(
-                "the end of the solve ({}); no file written",
+                "stopped at the end of the solve ({}); no file written",
                 crate::interrupt::signal_name(signal)
             ),
         });

@@ -260,7 +260,7 @@ pub fn run_job(
                 writer.finish(false)?;
                 return Err(interrupted(
                     sig,
-                    format!("{} years", summary.t_end),
+                    format!("stopped at model time {} years", summary.t_end),
                     path,
                     saved.then_some(restart.as_path()),
                 ));

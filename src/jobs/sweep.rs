@@ -181,7 +181,10 @@ pub fn sweep_job(
         )?;
         return Err(interrupted(
             sig,
-            format!("sweep step {done} of {} (control {last})", 2 * spec.steps),
+            format!(
+                "stopped after sweep step {done} of {} (control {last})",
+                2 * spec.steps
+            ),
             path,
             saved.then_some(restart.as_path()),
         ));
