@@ -7,6 +7,7 @@ mod demo;
 mod ensemble;
 mod equilibrium;
 mod merge;
+mod regimes;
 mod sweep;
 
 mod inspect;
@@ -96,6 +97,16 @@ pub enum Command {
         #[arg(long, value_name = "N")]
         threads: Option<usize>,
     },
+    /// Map of which climates exist over two control keys (`[regimes]`), rows in parallel.
+    Regimes {
+        #[command(flatten)]
+        config: ConfigArgs,
+        #[command(flatten)]
+        output: OutputArgs,
+        /// Worker threads (default: all cores, or RAYON_NUM_THREADS).
+        #[arg(long, value_name = "N")]
+        threads: Option<usize>,
+    },
     /// Join ensemble shard files into the file a single run writes.
     Merge {
         /// The shard files (any order).
@@ -177,6 +188,11 @@ fn dispatch(cli: Cli) -> Result<(), Error> {
             shard,
             threads,
         } => ensemble::main(&config, &output, shard.as_deref(), threads),
+        Command::Regimes {
+            config,
+            output,
+            threads,
+        } => regimes::main(&config, &output, threads),
         Command::Merge {
             files,
             output,
