@@ -35,7 +35,10 @@ pub fn pictures(file: &Path, out_dir: &Path) -> Result<Vec<PathBuf>, Error> {
     let kind = r.attr_str("icefold_kind")?.unwrap_or_default();
     let full_title = r.attr_str("title")?.unwrap_or_default();
     // Figure titles: the part before a colon, cut at a word boundary near 65 characters.
-    let head = full_title.split(':').next().unwrap_or("");
+    let head = match full_title.split_once(':') {
+        Some((h, _)) if h.chars().count() >= 25 => h,
+        _ => full_title.as_str(),
+    };
     let title = if head.chars().count() <= 65 {
         head.to_string()
     } else {
@@ -248,7 +251,10 @@ fn percentile(sorted: &[f64], q: f64) -> f64 {
     sorted[lo] + (h - lo as f64) * (sorted[hi] - sorted[lo])
 }
 
-/// Members as thin grey-free spaghetti, the 5-95 % band and the median, for global-mean
+/// Most members drawn in an ensemble's spaghetti plot.
+const SPAGHETTI: usize = 60;
+
+/// Members as thin pale lines, the 5-95 % band and the median, for global-mean
 /// temperature and ice edge against time.
 fn ensemble_spread(r: &NcReader, title: &str) -> Result<Figure, Error> {
     let t = read(r, "time")?;
@@ -262,14 +268,21 @@ fn ensemble_spread(r: &NcReader, title: &str) -> Result<Figure, Error> {
     ] {
         let all = read(r, name)?;
         let mut p = Panel::new("Time (year)", axis);
-        for m in 0..members {
+        // At most SPAGHETTI members are drawn (evenly picked); band and median use all.
+        let every = members.div_ceil(SPAGHETTI).max(1);
+        for m in (0..members).step_by(every) {
             if status.get(m).copied().unwrap_or(0.0) != 0.0 {
                 continue;
             }
             let y = all.get(m * nt..(m + 1) * nt).unwrap_or_default().to_vec();
-            let mut s = Series::new(t.clone(), y, Stroke::Solid, 3);
-            if m == 0 {
-                s = s.labelled(format!("members ({members})"));
+            let mut s = Series::new(t.clone(), y, Stroke::Faint, colour);
+            if p.series.is_empty() {
+                let shown = members.div_ceil(every);
+                s = s.labelled(if shown < members {
+                    format!("members ({shown} of {members} shown)")
+                } else {
+                    format!("members ({members})")
+                });
             }
             p.series.push(s);
         }
