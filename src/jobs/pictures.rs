@@ -252,7 +252,7 @@ fn percentile(sorted: &[f64], q: f64) -> f64 {
 }
 
 /// Most members drawn in an ensemble's spaghetti plot.
-const SPAGHETTI: usize = 60;
+const SPAGHETTI: usize = 40;
 
 /// Members as thin pale lines, the 5-95 % band and the median, for global-mean
 /// temperature and ice edge against time.
