@@ -77,7 +77,11 @@ fn fold_lines_agree_with_separate_branches_runs() {
         // Classic step-albedo curve: snowball melting corner, large-cap fold, small-cap fold,
         // corner where ice appears at the pole (from memory: North 1975's S-shaped Q(x_s)).
         assert!(separate.len() >= 3, "D = {d}: folds {separate:?}");
-        assert_eq!(on_lines.len(), separate.len(), "D = {d}: {on_lines:?} vs {separate:?}");
+        assert_eq!(
+            on_lines.len(),
+            separate.len(),
+            "D = {d}: {on_lines:?} vs {separate:?}"
+        );
         for (a, b) in on_lines.iter().zip(&separate) {
             // The brief's 0.1 %; both locate folds to 1e-7 relative, so the different
             // continuation steps leave far less than that.
@@ -121,7 +125,10 @@ fn several_stable_states_only_between_the_fold_lines() {
         assert_eq!(row.kinds[0], Kind::Snowball.bit());
         assert_eq!(*row.kinds.last().unwrap(), Kind::IceFree.bit());
     }
-    assert!(multi > map.rows.len() * 10, "only {multi} cells with several stable states");
+    assert!(
+        multi > map.rows.len() * 10,
+        "only {multi} cells with several stable states"
+    );
 }
 
 #[test]
