@@ -17,7 +17,11 @@ fn make(dir: &Path, cmd: &str, config: &str, name: &str, sets: &[&str]) -> PathB
         c.args(["--set", s]);
     }
     let o = c.output().unwrap();
-    assert!(o.status.success(), "{cmd} {config}: {}", String::from_utf8_lossy(&o.stderr));
+    assert!(
+        o.status.success(),
+        "{cmd} {config}: {}",
+        String::from_utf8_lossy(&o.stderr)
+    );
     out
 }
 
@@ -40,8 +44,18 @@ fn check(file: &Path, dir: &Path) -> Vec<(String, u32, u32)> {
         let doc = roxmltree::Document::parse(&text).unwrap();
         let root = doc.root_element();
         assert_eq!(root.tag_name().name(), "svg");
-        let w: u32 = root.attribute("width").unwrap().trim_end_matches("px").parse().unwrap();
-        let h: u32 = root.attribute("height").unwrap().trim_end_matches("px").parse().unwrap();
+        let w: u32 = root
+            .attribute("width")
+            .unwrap()
+            .trim_end_matches("px")
+            .parse()
+            .unwrap();
+        let h: u32 = root
+            .attribute("height")
+            .unwrap()
+            .trim_end_matches("px")
+            .parse()
+            .unwrap();
         // Axis names are text: a picture without any <text> would be unreadable.
         assert!(doc.descendants().filter(|n| n.has_tag_name("text")).count() > 5);
         let bytes = std::fs::read(png).unwrap();
@@ -58,7 +72,13 @@ fn every_kind_of_file_gets_its_pictures() {
     std::fs::create_dir_all(&dir).unwrap();
     let cases: Vec<(PathBuf, &[&str])> = vec![
         (
-            make(&dir, "run", "configs/classic-step-albedo.toml", "run", &["time.years=20"]),
+            make(
+                &dir,
+                "run",
+                "configs/classic-step-albedo.toml",
+                "run",
+                &["time.years=20"],
+            ),
             &["run-timeseries", "run-map", "run-profile"],
         ),
         (
@@ -66,11 +86,23 @@ fn every_kind_of_file_gets_its_pictures() {
             &["eq-profile"],
         ),
         (
-            make(&dir, "sweep", "configs/sweep-solar.toml", "sweep", &["sweep.steps=31"]),
+            make(
+                &dir,
+                "sweep",
+                "configs/sweep-solar.toml",
+                "sweep",
+                &["sweep.steps=31"],
+            ),
             &["sweep-hysteresis"],
         ),
         (
-            make(&dir, "branches", "configs/branches-solar.toml", "branches", &["grid.bands=30"]),
+            make(
+                &dir,
+                "branches",
+                "configs/branches-solar.toml",
+                "branches",
+                &["grid.bands=30"],
+            ),
             &["branches-hysteresis"],
         ),
         (
@@ -79,7 +111,11 @@ fn every_kind_of_file_gets_its_pictures() {
                 "ensemble",
                 "configs/ensemble-lhs.toml",
                 "ens",
-                &["ensemble.members=8", "time.years=20", "ensemble.sensitivity=false"],
+                &[
+                    "ensemble.members=8",
+                    "time.years=20",
+                    "ensemble.sensitivity=false",
+                ],
             ),
             &["ens-spread"],
         ),
