@@ -48,13 +48,13 @@ pub fn pictures(file: &Path, out_dir: &Path) -> Result<Vec<PathBuf>, Error> {
     let figures: Vec<(&str, Picture)> = match kind.as_str() {
         "run" => vec![
             ("timeseries", Picture::Chart(run_timeseries(&r, &title)?)),
-            ("map", Picture::Map(run_map(&r, &title)?)),
+            ("map", Picture::Map(Box::new(run_map(&r, &title)?))),
             ("profile", Picture::Chart(run_profile(&r, &title)?)),
         ],
         "equilibrium" => vec![("profile", Picture::Chart(equilibrium_profile(&r, &title)?))],
         "branches" | "sweep" => vec![("hysteresis", Picture::Chart(hysteresis(&r, &title, &kind)?))],
         "ensemble" => vec![("spread", Picture::Chart(ensemble_spread(&r, &title)?))],
-        "regimes" => vec![("map", Picture::Map(regimes_map(&r, &title)?))],
+        "regimes" => vec![("map", Picture::Map(Box::new(regimes_map(&r, &title)?)))],
         other => {
             return Err(Error::Usage(format!(
                 "{}: no pictures for file kind `{other}` (known: run, equilibrium, sweep, branches, ensemble, regimes)",
@@ -80,7 +80,7 @@ pub fn pictures(file: &Path, out_dir: &Path) -> Result<Vec<PathBuf>, Error> {
 /// One picture of a file: a line chart or a map.
 enum Picture {
     Chart(Figure),
-    Map(HeatMap),
+    Map(Box<HeatMap>),
 }
 
 fn run_timeseries(r: &NcReader, title: &str) -> Result<Figure, Error> {
