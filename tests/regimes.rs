@@ -178,6 +178,23 @@ fn the_file_holds_the_map_and_the_fold_lines() {
         .unwrap()
         .unwrap()
         .contains("60 degrees north"));
+    // `icefold inspect` names both ranges, the counts and every fold line.
+    let o = std::process::Command::new(env!("CARGO_BIN_EXE_icefold"))
+        .arg("inspect")
+        .arg(&path)
+        .output()
+        .unwrap();
+    let text = String::from_utf8(o.stdout).unwrap();
+    assert!(text.contains("kind:       regimes"), "{text}");
+    assert!(
+        text.contains("p2 (y):    transport.diffusivity from 0.45 to 0.6"),
+        "{text}"
+    );
+    assert!(
+        text.contains(&format!("fold lines: {}", map.lines.len())),
+        "{text}"
+    );
+    assert_eq!(text.matches("  line ").count(), map.lines.len(), "{text}");
     std::fs::remove_dir_all(&dir).unwrap();
 }
 
