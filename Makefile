@@ -23,6 +23,11 @@ test-rust: deps
 test-python: deps pyenv build
 	ICEFOLD_BIN=$(CURDIR)/$(BIN) $(PY) -m pytest -q tests/python
 
+## Regenerate outputs-demo/: the demo and a file and pictures from every example config.
+gallery: deps
+	$(CARGO) build --release
+	ICEFOLD_BIN=$(CURDIR)/$(BIN) scripts/make-gallery.sh outputs-demo
+
 deps:
 	@scripts/ensure-system-deps.sh
 

@@ -91,9 +91,14 @@ pub fn summary(r: &NcReader) -> Result<String, Error> {
         .collect();
     let _ = writeln!(s, "dimensions: {}", dim_text.join(", "));
     let vars = r.var_names()?;
-    if kind == "ensemble" {
-        ensemble_summary(r, &mut s)?;
-    } else if vars.iter().any(|v| v == "time") {
+    match kind.as_str() {
+        "ensemble" => ensemble_summary(r, &mut s)?,
+        "sweep" | "branches" => control_summary(r, &kind, &mut s)?,
+        "regimes" => regimes_summary(r, &mut s)?,
+        "equilibrium" => equilibrium_summary(r, &mut s)?,
+        _ => {}
+    }
+    if kind != "ensemble" && vars.iter().any(|v| v == "time") {
         let t = r.read_f64("time")?;
         if let (Some(a), Some(b)) = (t.first(), t.last()) {
             let _ = writeln!(s, "time:       {a} to {b} years, {} records", t.len());
@@ -218,6 +223,153 @@ fn ensemble_summary(r: &NcReader, s: &mut String) -> Result<(), Error> {
             s,
             "failed:     {failed} members; {}",
             r.attr_str("first_failure")?.unwrap_or_default()
+        );
+    }
+    Ok(())
+}
+
+/// A scalar or first value of a variable, if the file has it.
+fn first(r: &NcReader, name: &str) -> Result<Option<f64>, Error> {
+    if !r.var_names()?.iter().any(|v| v == name) {
+        return Ok(None);
+    }
+    Ok(r.read_f64(name)?.first().copied())
+}
+
+/// Control range and tipping points (sweep) or folds (branches).
+fn control_summary(r: &NcReader, kind: &str, s: &mut String) -> Result<(), Error> {
+    use std::fmt::Write;
+    let key = r.attr_str("control_key")?.unwrap_or_default();
+    let units = r.attr_str("control_units")?.unwrap_or_default();
+    let _ = writeln!(
+        s,
+        "control:    {key} from {} to {} {units}",
+        r.attr_f64("control_from")?.unwrap_or(f64::NAN),
+        r.attr_f64("control_to")?.unwrap_or(f64::NAN)
+    );
+    if kind == "sweep" {
+        let tc = r.read_f64("tipping_control")?;
+        let td = r.read_f64("tipping_direction")?;
+        let list: Vec<String> = tc
+            .iter()
+            .zip(&td)
+            .map(|(c, d)| format!("{c:.6} ({})", if *d > 0.0 { "rising" } else { "falling" }))
+            .collect();
+        let _ = writeln!(
+            s,
+            "tipping:    {}",
+            if list.is_empty() {
+                "none".into()
+            } else {
+                list.join(", ")
+            }
+        );
+        if let Some(w) = r.attr_f64("hysteresis_width")? {
+            let _ = writeln!(s, "hysteresis: width {w:.6} {units}");
+        }
+    } else {
+        let fc = r.read_f64("fold_control")?;
+        let fe = r.read_f64("fold_ice_edge_latitude_north")?;
+        let list: Vec<String> = fc
+            .iter()
+            .zip(&fe)
+            .map(|(c, e)| format!("{c:.6} (ice edge {e:.2} degrees)"))
+            .collect();
+        let _ = writeln!(
+            s,
+            "folds:      {}",
+            if list.is_empty() {
+                "none".into()
+            } else {
+                list.join(", ")
+            }
+        );
+        let _ = writeln!(s, "branches:   {}", r.dim_len("branches")?);
+    }
+    Ok(())
+}
+
+/// The equilibrium's temperature, ice edge and stability.
+fn equilibrium_summary(r: &NcReader, s: &mut String) -> Result<(), Error> {
+    use std::fmt::Write;
+    let _ = writeln!(
+        s,
+        "state:      global mean {:.4} K, ice edge {:.2} degrees north, {} (leading eigenvalue {:.6} per year), residual {:.3e} W m-2",
+        first(r, "global_mean_temperature")?.unwrap_or(f64::NAN),
+        first(r, "ice_edge_latitude_north")?.unwrap_or(f64::NAN),
+        r.attr_str("stability")?.unwrap_or_default(),
+        r.attr_f64("leading_eigenvalue")?.unwrap_or(f64::NAN),
+        r.attr_f64("residual_wm2")?.unwrap_or(f64::NAN)
+    );
+    Ok(())
+}
+
+/// Both control ranges, the counts of stable states and the fold lines (regimes files).
+fn regimes_summary(r: &NcReader, s: &mut String) -> Result<(), Error> {
+    use std::fmt::Write;
+    for (label, pre, var) in [
+        ("p1 (x):    ", "control", "p1"),
+        ("p2 (y):    ", "row_control", "p2"),
+    ] {
+        let _ = writeln!(
+            s,
+            "{label}{} from {} to {} {}, {} values",
+            r.attr_str(&format!("{pre}_key"))?.unwrap_or_default(),
+            r.attr_f64(&format!("{pre}_from"))?.unwrap_or(f64::NAN),
+            r.attr_f64(&format!("{pre}_to"))?.unwrap_or(f64::NAN),
+            r.attr_str(&format!("{pre}_units"))?.unwrap_or_default(),
+            r.dim_len(var)?
+        );
+    }
+    let counts = r.read_f64("stable_count")?;
+    let most = counts.iter().copied().fold(0.0, f64::max) as usize;
+    let hist: Vec<String> = (0..=most)
+        .map(|n| {
+            let c = counts.iter().filter(|v| **v as usize == n).count();
+            format!("{n}: {c}")
+        })
+        .collect();
+    let _ = writeln!(s, "stable states per cell (count: cells): {}", hist.join(", "));
+    let kinds = r.read_f64("stable_kinds")?;
+    let names = r
+        .var_attr_str("stable_kinds", "flag_meanings")?
+        .unwrap_or_default();
+    let present: Vec<String> = names
+        .split_whitespace()
+        .enumerate()
+        .map(|(b, n)| {
+            let c = kinds.iter().filter(|v| (**v as i64) & (1 << b) != 0).count();
+            format!("{n} in {c} cells")
+        })
+        .collect();
+    let _ = writeln!(s, "kinds:      {}", present.join(", "));
+    if let Some(d) = r.attr_str("kind_definitions")? {
+        let _ = writeln!(s, "            ({d})");
+    }
+    let line = r.read_f64("fold_line")?;
+    let p1 = r.read_f64("fold_p1")?;
+    let p2 = r.read_f64("fold_p2")?;
+    let edge = r.read_f64("fold_ice_edge_latitude_north")?;
+    let lines = line.iter().copied().fold(-1.0, f64::max) + 1.0;
+    let _ = writeln!(s, "fold lines: {lines} ({} vertices)", line.len());
+    let mut k = 0;
+    while k < line.len() {
+        let start = k;
+        while k < line.len() && line[k] == line[start] {
+            k += 1;
+        }
+        let end = k - 1;
+        let _ = writeln!(
+            s,
+            "  line {}: p1 {:.4} .. {:.4} over p2 {:.4} .. {:.4}, ice edge {:.1} .. {:.1} degrees, {} vertices",
+            line[start],
+            p1[start],
+            p1[end],
+            p2[start],
+            p2[end],
+            edge[start],
+            edge[end],
+            end - start + 1
         );
     }
     Ok(())

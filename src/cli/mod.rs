@@ -7,6 +7,7 @@ mod demo;
 mod ensemble;
 mod equilibrium;
 mod merge;
+mod regimes;
 mod sweep;
 
 mod inspect;
@@ -127,6 +128,16 @@ pub enum Command {
         #[command(flatten)]
         resume: ResumeArgs,
     },
+    /// Map of which climates exist over two control keys (`[regimes]`), rows in parallel.
+    Regimes {
+        #[command(flatten)]
+        config: ConfigArgs,
+        #[command(flatten)]
+        output: OutputArgs,
+        /// Worker threads (default: all cores, or RAYON_NUM_THREADS).
+        #[arg(long, value_name = "N")]
+        threads: Option<usize>,
+    },
     /// Join ensemble shard files into the file a single run writes.
     Merge {
         /// The shard files (any order).
@@ -245,6 +256,11 @@ fn dispatch(cli: Cli) -> Result<(), Error> {
             checkpoint_every_members,
             &resume,
         ),
+        Command::Regimes {
+            config,
+            output,
+            threads,
+        } => regimes::main(&config, &output, threads),
         Command::Merge {
             files,
             output,

@@ -14,6 +14,7 @@ pub const INTEGER_KEYS: &[&str] = &[
     "ensemble.seed",
     "regimes.rows",
     "regimes.columns",
+    "regimes.max_points",
     "equilibrium.max_iterations",
     "time.max_steps",
 ];
@@ -66,6 +67,9 @@ pub struct RawConfig {
     /// `[ensemble]`.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub ensemble: Option<RawEnsemble>,
+    /// `[regimes]`.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub regimes: Option<RawRegimes>,
 }
 
 /// `[grid]`.
@@ -346,6 +350,37 @@ pub struct RawBranches {
     /// Upper end of the range.
     pub to: Option<f64>,
     /// Initial arclength step.
+    pub step: Option<f64>,
+    /// Largest arclength step.
+    pub max_step: Option<f64>,
+    /// Point limit per branch.
+    pub max_points: Option<i64>,
+}
+
+// ---- [regimes] (the 2-D regime map) ----
+
+/// `[regimes]`: a map over two control keys. Along `control` (the map's columns) each row is
+/// one continuation; `row_control` takes one value per row.
+#[derive(Debug, Clone, Default, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawRegimes {
+    /// Dotted key continued in along each row (the map's x axis).
+    pub control: Option<String>,
+    /// Lower end of `control`.
+    pub from: Option<f64>,
+    /// Upper end of `control`.
+    pub to: Option<f64>,
+    /// Cells along `control`.
+    pub columns: Option<i64>,
+    /// Dotted key held fixed in each row (the map's y axis).
+    pub row_control: Option<String>,
+    /// First value of `row_control`.
+    pub row_from: Option<f64>,
+    /// Last value of `row_control`.
+    pub row_to: Option<f64>,
+    /// Number of rows (values of `row_control`).
+    pub rows: Option<i64>,
+    /// Initial arclength step of each continuation.
     pub step: Option<f64>,
     /// Largest arclength step.
     pub max_step: Option<f64>,

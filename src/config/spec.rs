@@ -232,6 +232,8 @@ pub struct Spec {
     pub branches: Option<BranchesSpec>,
     /// Ensemble, if configured.
     pub ensemble: Option<EnsembleSpec>,
+    /// Regime map, if configured.
+    pub regimes: Option<RegimesSpec>,
 }
 
 /// `[ensemble]`, validated.
@@ -247,4 +249,65 @@ pub struct EnsembleSpec {
     pub sensitivity: bool,
     /// Sampled keys with their distributions, in config order.
     pub parameters: Vec<(String, crate::ensemble::Distribution)>,
+}
+
+// ---- [regimes] (the 2-D regime map) ----
+
+/// `[regimes]`, validated.
+#[derive(Debug, Clone, PartialEq)]
+pub struct RegimesSpec {
+    /// Dotted key continued in along each row (x axis).
+    pub control: String,
+    /// Lower end of `control`.
+    pub from: f64,
+    /// Upper end of `control`.
+    pub to: f64,
+    /// Cells along `control`.
+    pub columns: usize,
+    /// Dotted key held fixed in each row (y axis).
+    pub row_control: String,
+    /// First value of `row_control`.
+    pub row_from: f64,
+    /// Last value of `row_control`.
+    pub row_to: f64,
+    /// Number of rows.
+    pub rows: usize,
+    /// Initial arclength step (scaled variables).
+    pub step: f64,
+    /// Largest arclength step.
+    pub max_step: f64,
+    /// Point limit per branch.
+    pub max_points: usize,
+}
+
+impl RegimesSpec {
+    /// The continuation settings of one row, as a `[branches]` section over `control`.
+    pub fn row_branches(&self) -> BranchesSpec {
+        BranchesSpec {
+            control: self.control.clone(),
+            from: self.from,
+            to: self.to,
+            step: self.step,
+            max_step: self.max_step,
+            max_points: self.max_points,
+        }
+    }
+
+    /// Values of `control` at the cell centres: `columns` evenly spaced from `from` to `to`.
+    pub fn column_values(&self) -> Vec<f64> {
+        spaced(self.from, self.to, self.columns)
+    }
+
+    /// Values of `row_control`: `rows` evenly spaced from `row_from` to `row_to`.
+    pub fn row_values(&self) -> Vec<f64> {
+        spaced(self.row_from, self.row_to, self.rows)
+    }
+}
+
+/// `n` evenly spaced values from `a` to `b` (both included; `a` alone when `n` is 1).
+fn spaced(a: f64, b: f64, n: usize) -> Vec<f64> {
+    if n <= 1 {
+        return vec![a];
+    }
+    (0..n).map(|i| a + (b - a) * i as f64 / (n - 1) as f64).collect()
 }

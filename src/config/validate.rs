@@ -747,6 +747,7 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
     };
 
     let ensemble = ensemble_spec(&c, raw.ensemble.as_mut())?;
+    let regimes = regimes_spec(&c, raw.regimes.as_mut())?;
 
     let spec = Spec {
         title: raw.title.clone().unwrap_or_else(|| "icefold scenario".into()),
@@ -771,6 +772,7 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
         sweep,
         branches,
         ensemble,
+        regimes,
     };
     Ok((raw, spec))
 }
@@ -1032,4 +1034,64 @@ fn control_key(c: &Checker, key: &str, v: &Option<String>) -> Result<String, Con
             ),
         )),
     }
+}
+
+// ---- [regimes] (the 2-D regime map) ----
+
+/// `[regimes]`: both keys numeric model keys and different, both ranges increasing, counts
+/// and continuation settings in range, defaults filled in.
+fn regimes_spec(
+    c: &Checker,
+    r: Option<&mut crate::config::raw::RawRegimes>,
+) -> Result<Option<crate::config::spec::RegimesSpec>, ConfigError> {
+    let Some(r) = r else { return Ok(None) };
+    let control = control_key(c, "regimes.control", &r.control)?;
+    let row_control = control_key(c, "regimes.row_control", &r.row_control)?;
+    if control == row_control {
+        return Err(c.range_err(
+            "regimes.row_control",
+            format!("\"{row_control}\""),
+            "allowed: a key different from regimes.control".into(),
+        ));
+    }
+    let range = |lo: &str, hi: &str, a: &mut Option<f64>, b: &mut Option<f64>| {
+        let from = c.num(&format!("regimes.{lo}"), a, f64::NAN, Range::Any)?;
+        let to = c.num(&format!("regimes.{hi}"), b, f64::NAN, Range::Any)?;
+        if !(from < to) {
+            return Err(c.range_err(
+                &format!("regimes.{hi}"),
+                to.to_string(),
+                format!("allowed: a number above regimes.{lo} = {from}"),
+            ));
+        }
+        Ok((from, to))
+    };
+    let (from, to) = range("from", "to", &mut r.from, &mut r.to)?;
+    let (row_from, row_to) = range("row_from", "row_to", &mut r.row_from, &mut r.row_to)?;
+    let count = |key: &str, v: &mut Option<i64>, default: i64, lo: i64, hi: i64| {
+        let n = v.unwrap_or(default);
+        if !(lo..=hi).contains(&n) {
+            return Err(c.range_err(key, n.to_string(), format!("allowed: {lo} to {hi}")));
+        }
+        *v = Some(n);
+        Ok(n as usize)
+    };
+    let columns = count("regimes.columns", &mut r.columns, 101, 2, 10_000)?;
+    let rows = count("regimes.rows", &mut r.rows, 21, 2, 10_000)?;
+    let max_points = count("regimes.max_points", &mut r.max_points, 5000, 10, 1_000_000)?;
+    let step = c.num("regimes.step", &mut r.step, 0.02, Range::Above(0.0))?;
+    let max_step = c.num("regimes.max_step", &mut r.max_step, 0.1, Range::Above(0.0))?;
+    Ok(Some(crate::config::spec::RegimesSpec {
+        control,
+        from,
+        to,
+        columns,
+        row_control,
+        row_from,
+        row_to,
+        rows,
+        step,
+        max_step,
+        max_points,
+    }))
 }

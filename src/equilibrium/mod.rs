@@ -5,6 +5,7 @@ pub mod branches;
 pub mod continuation;
 pub mod control;
 pub mod newton;
+pub mod regimes;
 pub mod settle;
 pub mod stability;
 pub mod sweep;

@@ -6,6 +6,7 @@ pub mod diagnostics;
 pub mod ensemble;
 pub mod equilibrium;
 pub mod pictures;
+pub mod regimes;
 pub mod run;
 pub mod sweep;
 

@@ -40,6 +40,7 @@ pub mod common;
 pub mod ensemble_file;
 pub mod equilibrium_file;
 mod reader;
+pub mod regimes_file;
 pub mod run_file;
 pub mod sweep_file;
 mod writer;

@@ -30,12 +30,36 @@ pub enum Stroke {
     ArrowsUp,
     /// Downward triangles at the points, no line (e.g. a sweep with the control falling).
     ArrowsDown,
+    /// Thin line in a pale tint of the colour (e.g. the members of an ensemble under its
+    /// band and median).
+    Faint,
 }
 
 impl Stroke {
+    /// The legend swatch of a series drawn with this stroke in `colour`, on a `casing`
+    /// colour if given (heat-map overlays); shared by line charts and heat maps.
+    pub(crate) fn swatch(self, colour: RGBColor, casing: Option<RGBColor>) -> Swatch {
+        match self.point_shape() {
+            Some(shape) => Swatch::Point {
+                colour,
+                shape,
+                casing,
+            },
+            None => Swatch::Line {
+                colour: if self == Stroke::Faint {
+                    style::faint(colour)
+                } else {
+                    colour
+                },
+                dashed: self == Stroke::Dashed,
+                casing,
+            },
+        }
+    }
+
     fn point_shape(self) -> Option<PointShape> {
         match self {
-            Stroke::Solid | Stroke::Dashed => None,
+            Stroke::Solid | Stroke::Dashed | Stroke::Faint => None,
             Stroke::Markers => Some(PointShape::Disc),
             Stroke::ArrowsUp => Some(PointShape::Up),
             Stroke::ArrowsDown => Some(PointShape::Down),
@@ -248,19 +272,7 @@ fn legend_entries(p: &Panel) -> Vec<LegendEntry> {
     }
     for s in &p.series {
         if let Some(l) = &s.label {
-            let colour = style::series_colour(s.colour);
-            let swatch = match s.stroke.point_shape() {
-                Some(shape) => Swatch::Point {
-                    colour,
-                    shape,
-                    casing: None,
-                },
-                None => Swatch::Line {
-                    colour,
-                    dashed: s.stroke == Stroke::Dashed,
-                    casing: None,
-                },
-            };
+            let swatch = s.stroke.swatch(style::series_colour(s.colour), None);
             out.push(LegendEntry {
                 label: l.clone(),
                 swatch,
@@ -709,6 +721,11 @@ fn draw_panel(
         for l in &d.lines {
             match s.stroke {
                 Stroke::Dashed => c.dashed(l, colour, sizes.line, sizes.dash)?,
+                Stroke::Faint => c.line(
+                    l,
+                    style::faint(style::series_colour(s.colour)).to_rgba(),
+                    0.35 * sizes.line,
+                )?,
                 _ => c.line(l, colour, sizes.line)?,
             }
         }

@@ -274,28 +274,7 @@ fn overlay_entries(m: &HeatMap) -> Vec<LegendEntry> {
         .filter_map(|s| {
             let (core, casing) = style::overlay_colours(s.colour);
             let label = s.label.clone()?;
-            let swatch = match s.stroke {
-                Stroke::Solid | Stroke::Dashed => Swatch::Line {
-                    colour: core,
-                    dashed: s.stroke == Stroke::Dashed,
-                    casing: Some(casing),
-                },
-                Stroke::Markers => Swatch::Point {
-                    colour: core,
-                    shape: PointShape::Disc,
-                    casing: Some(casing),
-                },
-                Stroke::ArrowsUp => Swatch::Point {
-                    colour: core,
-                    shape: PointShape::Up,
-                    casing: Some(casing),
-                },
-                Stroke::ArrowsDown => Swatch::Point {
-                    colour: core,
-                    shape: PointShape::Down,
-                    casing: Some(casing),
-                },
-            };
+            let swatch = s.stroke.swatch(core, Some(casing));
             Some(LegendEntry { label, swatch })
         })
         .collect()

@@ -61,6 +61,13 @@ pub const FRAME_GREY: RGBColor = RGBColor(140, 140, 140);
 /// Opacity of shaded bands (e.g. an ensemble's 5-95 % range).
 pub const BAND_OPACITY: f64 = 0.25;
 
+/// A pale tint of `c` (60 % of the way to white), for thin background lines; as light in
+/// greyscale as it looks in colour.
+pub fn faint(c: RGBColor) -> RGBColor {
+    let mix = |v: u8| (f64::from(v) + 0.6 * (255.0 - f64::from(v))).round() as u8;
+    RGBColor(mix(c.0), mix(c.1), mix(c.2))
+}
+
 /// `c` with opacity `alpha`.
 pub fn with_alpha(c: RGBColor, alpha: f64) -> RGBAColor {
     c.mix(alpha)

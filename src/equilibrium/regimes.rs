@@ -1,0 +1,373 @@
+//! The regime map: which climates exist over two control parameters.
+//!
+//! Each row holds the second parameter fixed; continuation along the first (all branches, as
+//! `icefold branches` traces them) gives every equilibrium and fold of the row. At each cell
+//! (a value of the first parameter) the equilibria are where a branch crosses that value; each
+//! is counted, classed by its northern ice-edge latitude (see [`Kind`]) and called stable when
+//! the leading eigenvalue, interpolated along the branch, is negative. Along a segment that
+//! ends at a fold the stability of its other end is used (it changes only at the fold,
+//! Cahalan and North 1979, J. Atmos. Sci. 36). The folds of neighbouring rows are joined into
+//! fold lines (tipping lines) in the plane of the two parameters.
+
+use super::branches::all_branches;
+use super::continuation::{Branch, ContinuationError, ContinuationOptions};
+use super::control::Controlled;
+
+/// Ice-edge latitude (degrees north) at and above which a partial ice cap counts as small.
+pub const SMALL_CAP_MIN_LATITUDE: f64 = 60.0;
+
+/// Edge latitudes within this of 90 (or 0) degrees count as ice free (or snowball), degrees.
+const EDGE_END_TOLERANCE: f64 = 1e-6;
+
+/// Largest link distance between folds of neighbouring rows on the same fold line: the change
+/// in the first parameter as a fraction of its range plus the change in edge latitude over
+/// 90 degrees.
+const LINK_MAX: f64 = 0.25;
+
+/// The kinds of climate, by northern ice-edge latitude `phi` (degrees north).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord)]
+pub enum Kind {
+    /// No ice in the northern hemisphere: `phi` = 90.
+    IceFree,
+    /// A polar cap reaching down to `SMALL_CAP_MIN_LATITUDE <= phi < 90`.
+    SmallCap,
+    /// A cap reaching equatorward of `SMALL_CAP_MIN_LATITUDE`: `0 < phi < 60`.
+    LargeCap,
+    /// Ice everywhere: `phi` = 0.
+    Snowball,
+}
+
+impl Kind {
+    /// Every kind, in the order of their flag bits.
+    pub const ALL: [Kind; 4] = [Kind::IceFree, Kind::SmallCap, Kind::LargeCap, Kind::Snowball];
+
+    /// The kind of an equilibrium with northern ice edge at `phi` degrees north.
+    pub fn of_edge(phi: f64) -> Kind {
+        if phi >= 90.0 - EDGE_END_TOLERANCE {
+            Kind::IceFree
+        } else if phi <= EDGE_END_TOLERANCE {
+            Kind::Snowball
+        } else if phi >= SMALL_CAP_MIN_LATITUDE {
+            Kind::SmallCap
+        } else {
+            Kind::LargeCap
+        }
+    }
+
+    /// Flag bit of the kind (1, 2, 4, 8).
+    pub fn bit(self) -> u8 {
+        1 << (self as u8)
+    }
+
+    /// Name used in files and legends (`ice_free`, `small_cap`, `large_cap`, `snowball`).
+    pub fn name(self) -> &'static str {
+        match self {
+            Kind::IceFree => "ice_free",
+            Kind::SmallCap => "small_cap",
+            Kind::LargeCap => "large_cap",
+            Kind::Snowball => "snowball",
+        }
+    }
+
+    /// One-line definition, for file attributes and documentation.
+    pub fn definition(self) -> String {
+        match self {
+            Kind::IceFree => "ice_free: northern ice edge at 90 degrees north (no ice)".into(),
+            Kind::SmallCap => format!(
+                "small_cap: ice edge at or poleward of {SMALL_CAP_MIN_LATITUDE} degrees north, below 90"
+            ),
+            Kind::LargeCap => {
+                format!("large_cap: ice edge equatorward of {SMALL_CAP_MIN_LATITUDE} degrees north, above 0")
+            }
+            Kind::Snowball => "snowball: ice edge at 0 degrees (ice everywhere)".into(),
+        }
+    }
+}
+
+/// A fold found in one row.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct RowFold {
+    /// Value of the first parameter at the fold.
+    pub control: f64,
+    /// Northern ice-edge latitude at the fold, degrees north.
+    pub ice_edge: f64,
+    /// Whether the fold sits at a corner of the piecewise-smooth curve.
+    pub corner: bool,
+}
+
+/// One row of the map (one value of the second parameter).
+#[derive(Debug, Clone, PartialEq)]
+pub struct RegimeRow {
+    /// Value of the second parameter.
+    pub row_value: f64,
+    /// Stable equilibria per column.
+    pub stable: Vec<u32>,
+    /// All equilibria (stable and unstable) per column.
+    pub equilibria: Vec<u32>,
+    /// Kinds of the stable equilibria per column, as a sum of [`Kind::bit`].
+    pub kinds: Vec<u8>,
+    /// Folds of the row, ordered by ice edge, then control.
+    pub folds: Vec<RowFold>,
+    /// Number of branches traced.
+    pub branches: usize,
+    /// Linearisations used by the continuation.
+    pub linearisations: u64,
+}
+
+/// A vertex of a branch polyline, folds included.
+#[derive(Debug, Clone, Copy)]
+struct Vertex {
+    p: f64,
+    edge: f64,
+    leading: f64,
+    fold: bool,
+}
+
+/// Branch points with their located folds inserted in arclength order.
+fn vertices(branch: &Branch, edge: &dyn Fn(&[f64], f64) -> f64) -> Vec<Vertex> {
+    let mut out = Vec::with_capacity(branch.points.len() + branch.folds.len());
+    let mut folds = branch.folds.iter().peekable();
+    for (i, pt) in branch.points.iter().enumerate() {
+        let v = Vertex {
+            p: pt.control,
+            edge: edge(&pt.state, pt.control),
+            leading: pt.leading,
+            fold: false,
+        };
+        // A repeated point (a leg landing exactly on its start) would count twice.
+        let repeated = out
+            .last()
+            .is_some_and(|u: &Vertex| u.p == v.p && u.edge == v.edge && !u.fold);
+        if !repeated {
+            out.push(v);
+        }
+        while let Some(f) = folds.next_if(|f| f.after_point == i) {
+            out.push(Vertex {
+                p: f.control,
+                edge: edge(&f.state, f.control),
+                leading: 0.0,
+                fold: true,
+            });
+        }
+    }
+    out
+}
+
+/// Count and class the equilibria of `branches` at each value of `columns`.
+///
+/// `edge(state, p)` is the northern ice-edge latitude (degrees) of `state` at control `p`.
+/// Each segment counts a column value in `[low end, high end)`, and the branch's last
+/// point also at its own value, so a value is counted once per crossing.
+pub fn classify(
+    branches: &[Branch],
+    columns: &[f64],
+    edge: &dyn Fn(&[f64], f64) -> f64,
+) -> (Vec<u32>, Vec<u32>, Vec<u8>) {
+    let n = columns.len();
+    let (mut stable, mut all, mut kinds) = (vec![0u32; n], vec![0u32; n], vec![0u8; n]);
+    for b in branches {
+        let v = vertices(b, edge);
+        for (k, w) in v.windows(2).enumerate() {
+            let (a, z) = (w[0], w[1]);
+            let (lo, hi) = (a.p.min(z.p), a.p.max(z.p));
+            let last = k + 2 == v.len();
+            for (i, &c) in columns.iter().enumerate() {
+                let inside = (lo <= c && c < hi) || (last && c == z.p) || (k == 0 && a.p == hi && c == hi);
+                if !inside {
+                    continue;
+                }
+                let f = if z.p == a.p { 0.0 } else { (c - a.p) / (z.p - a.p) };
+                let is_stable = match (a.fold, z.fold) {
+                    (true, false) => z.leading < 0.0,
+                    (false, true) => a.leading < 0.0,
+                    _ => a.leading + f * (z.leading - a.leading) < 0.0,
+                };
+                all[i] += 1;
+                if is_stable {
+                    stable[i] += 1;
+                    kinds[i] |= Kind::of_edge(a.edge + f * (z.edge - a.edge)).bit();
+                }
+            }
+        }
+    }
+    (stable, all, kinds)
+}
+
+/// Trace every branch of the family `fam` over `opts`' range and class the equilibria at
+/// `columns`. `row_value` is only recorded.
+pub fn regime_row(
+    fam: &Controlled,
+    opts: ContinuationOptions,
+    columns: &[f64],
+    row_value: f64,
+) -> Result<RegimeRow, ContinuationError> {
+    let set = all_branches(fam, opts)?;
+    // The ice edge depends on the control only through the albedo keys (the freezing
+    // temperature moves the edge); otherwise the base model serves every point.
+    let varies = fam.key.starts_with("albedo.");
+    let base = fam.base_model().clone();
+    let edge = |state: &[f64], p: f64| -> f64 {
+        if varies {
+            if let Ok(m) = fam.model_at(p) {
+                return m.ice_edges(state).0;
+            }
+        }
+        base.ice_edges(state).0
+    };
+    let (stable, equilibria, kinds) = classify(&set.branches, columns, &edge);
+    let mut folds: Vec<RowFold> = set
+        .branches
+        .iter()
+        .flat_map(|b| b.folds.iter())
+        .map(|f| RowFold {
+            control: f.control,
+            ice_edge: edge(&f.state, f.control),
+            corner: f.corner,
+        })
+        .collect();
+    folds.sort_by(|a, b| {
+        a.ice_edge
+            .total_cmp(&b.ice_edge)
+            .then(a.control.total_cmp(&b.control))
+    });
+    Ok(RegimeRow {
+        row_value,
+        stable,
+        equilibria,
+        kinds,
+        folds,
+        branches: set.branches.len(),
+        linearisations: set.linearisations,
+    })
+}
+
+/// A vertex of a fold line.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct FoldVertex {
+    /// First parameter.
+    pub p1: f64,
+    /// Second parameter (the row's value).
+    pub p2: f64,
+    /// Northern ice-edge latitude at the fold, degrees north.
+    pub ice_edge: f64,
+    /// Whether the fold sits at a corner of the piecewise-smooth curve.
+    pub corner: bool,
+}
+
+/// Join the folds of successive rows into lines: between neighbouring rows, the closest pairs
+/// (change in the first parameter over `p1_span` plus change in edge latitude over 90
+/// degrees, corner folds only with corner folds) are linked first, up to `LINK_MAX`; a fold
+/// left over starts a new line. Deterministic for a given input.
+pub fn fold_lines(rows: &[RegimeRow], p1_span: f64) -> Vec<Vec<FoldVertex>> {
+    let mut lines: Vec<Vec<FoldVertex>> = Vec::new();
+    let mut open: Vec<usize> = Vec::new();
+    for row in rows {
+        let verts: Vec<FoldVertex> = row
+            .folds
+            .iter()
+            .map(|f| FoldVertex {
+                p1: f.control,
+                p2: row.row_value,
+                ice_edge: f.ice_edge,
+                corner: f.corner,
+            })
+            .collect();
+        let mut pairs: Vec<(f64, usize, usize)> = Vec::new();
+        for (li, &l) in open.iter().enumerate() {
+            let Some(last) = lines[l].last() else { continue };
+            for (fi, v) in verts.iter().enumerate() {
+                if v.corner != last.corner {
+                    continue;
+                }
+                let d = (v.p1 - last.p1).abs() / p1_span + (v.ice_edge - last.ice_edge).abs() / 90.0;
+                if d <= LINK_MAX {
+                    pairs.push((d, li, fi));
+                }
+            }
+        }
+        pairs.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)).then(a.2.cmp(&b.2)));
+        let (mut line_used, mut fold_used) = (vec![false; open.len()], vec![false; verts.len()]);
+        let mut next_open = Vec::new();
+        for (_, li, fi) in pairs {
+            if !line_used[li] && !fold_used[fi] {
+                line_used[li] = true;
+                fold_used[fi] = true;
+                lines[open[li]].push(verts[fi]);
+                next_open.push(open[li]);
+            }
+        }
+        for (fi, v) in verts.iter().enumerate() {
+            if !fold_used[fi] {
+                lines.push(vec![*v]);
+                next_open.push(lines.len() - 1);
+            }
+        }
+        next_open.sort_unstable();
+        open = next_open;
+    }
+    lines
+}
+
+/// The computed map.
+#[derive(Debug, Clone, PartialEq)]
+pub struct RegimeMap {
+    /// Values of `regimes.control` (columns).
+    pub columns: Vec<f64>,
+    /// One entry per value of `regimes.row_control`, in order.
+    pub rows: Vec<RegimeRow>,
+    /// Fold lines in the (control, row_control) plane.
+    pub lines: Vec<Vec<FoldVertex>>,
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn kinds_follow_the_edge_thresholds() {
+        assert_eq!(Kind::of_edge(90.0), Kind::IceFree);
+        assert_eq!(Kind::of_edge(89.9), Kind::SmallCap);
+        assert_eq!(Kind::of_edge(60.0), Kind::SmallCap);
+        assert_eq!(Kind::of_edge(59.9), Kind::LargeCap);
+        assert_eq!(Kind::of_edge(0.0), Kind::Snowball);
+        let bits: Vec<u8> = Kind::ALL.iter().map(|k| k.bit()).collect();
+        assert_eq!(bits, [1, 2, 4, 8]);
+    }
+
+    fn row(v: f64, folds: &[(f64, f64)]) -> RegimeRow {
+        RegimeRow {
+            row_value: v,
+            stable: vec![],
+            equilibria: vec![],
+            kinds: vec![],
+            folds: folds
+                .iter()
+                .map(|&(c, e)| RowFold {
+                    control: c,
+                    ice_edge: e,
+                    corner: false,
+                })
+                .collect(),
+            branches: 0,
+            linearisations: 0,
+        }
+    }
+
+    #[test]
+    fn folds_of_neighbouring_rows_join_by_nearness() {
+        // Two lines drifting apart, then one ends and a new one appears far away.
+        let rows = vec![
+            row(0.0, &[(10.0, 30.0), (20.0, 80.0)]),
+            row(1.0, &[(11.0, 31.0), (21.0, 81.0)]),
+            row(2.0, &[(12.0, 32.0), (90.0, 5.0)]),
+        ];
+        let lines = fold_lines(&rows, 100.0);
+        assert_eq!(lines.len(), 3);
+        assert_eq!(
+            lines[0].iter().map(|v| v.p1).collect::<Vec<_>>(),
+            [10.0, 11.0, 12.0]
+        );
+        assert_eq!(lines[1].iter().map(|v| v.p1).collect::<Vec<_>>(), [20.0, 21.0]);
+        assert_eq!(lines[2].iter().map(|v| v.p2).collect::<Vec<_>>(), [2.0]);
+    }
+}
