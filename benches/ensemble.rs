@@ -137,7 +137,9 @@ fn member_count() {
     let mut out = vec![0.0; model.len()];
     integ.advance_to(cfg.spec.time.years, &mut out).unwrap();
     let st = integ.stats();
-    let dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("target").join("criterion");
+    let dir = Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("target")
+        .join("criterion");
     let _ = std::fs::create_dir_all(&dir);
     let _ = std::fs::write(
         dir.join("icefold-counts-ensemble.json"),

@@ -32,7 +32,9 @@ static COUNTS: Mutex<BTreeMap<String, f64>> = Mutex::new(BTreeMap::new());
 
 fn count(key: &str, v: f64) {
     COUNTS.lock().unwrap().insert(key.to_string(), v);
-    let dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("target").join("criterion");
+    let dir = Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("target")
+        .join("criterion");
     let _ = std::fs::create_dir_all(&dir);
     let body: Vec<String> = COUNTS
         .lock()
@@ -40,7 +42,10 @@ fn count(key: &str, v: f64) {
         .iter()
         .map(|(k, v)| format!("  \"{k}\": {v}"))
         .collect();
-    let _ = std::fs::write(dir.join("icefold-counts.json"), format!("{{\n{}\n}}\n", body.join(",\n")));
+    let _ = std::fs::write(
+        dir.join("icefold-counts.json"),
+        format!("{{\n{}\n}}\n", body.join(",\n")),
+    );
 }
 
 fn load(name: &str, sets: &[String]) -> config::Loaded {
@@ -84,11 +89,18 @@ fn per_band_step(c: &mut Criterion) {
         // start (P2 of -30 K), where the edge moves through bands and the albedo couples them.
         let free = load(
             "classic-step-albedo.toml",
-            &[b_set.clone(), "initial.temperature_p2_k=0".into(), "initial.temperature_c=15".into()],
+            &[
+                b_set.clone(),
+                "initial.temperature_p2_k=0".into(),
+                "initial.temperature_c=15".into(),
+            ],
         );
         let edge = load("classic-step-albedo.toml", std::slice::from_ref(&b_set));
         let steps = 1000u64;
-        for (name, cfg) in [("implicit_fixed_ice_free", &free), ("implicit_fixed_ice_edge", &edge)] {
+        for (name, cfg) in [
+            ("implicit_fixed_ice_free", &free),
+            ("implicit_fixed_ice_edge", &edge),
+        ] {
             let model = Model::from_spec(&cfg.spec.model);
             let y0 = model.initial_state(&cfg.spec.initial);
             g.throughput(Throughput::Elements(steps * bands as u64));
@@ -114,15 +126,22 @@ fn per_band_step(c: &mut Criterion) {
         r.advance_to(200.0, &mut out).unwrap();
         let st = r.stats();
         let work = (st.steps + st.rejected) * bands as u64;
-        count(&format!("adaptive_steps_{bands}"), (st.steps + st.rejected) as f64);
+        count(
+            &format!("adaptive_steps_{bands}"),
+            (st.steps + st.rejected) as f64,
+        );
         g.throughput(Throughput::Elements(work));
-        g.bench_with_input(BenchmarkId::new("implicit_adaptive_200yr", bands), &bands, |b, _| {
-            b.iter(|| {
-                let mut r = Ros2::new(&model, 0.0, &y0, 200.0, policy, u64::MAX);
-                r.advance_to(200.0, &mut out).unwrap();
-                black_box(out[0])
-            })
-        });
+        g.bench_with_input(
+            BenchmarkId::new("implicit_adaptive_200yr", bands),
+            &bands,
+            |b, _| {
+                b.iter(|| {
+                    let mut r = Ros2::new(&model, 0.0, &y0, 200.0, policy, u64::MAX);
+                    r.advance_to(200.0, &mut out).unwrap();
+                    black_box(out[0])
+                })
+            },
+        );
         // Explicit schemes over a short span (stiff: the step is set by the fastest transport
         // mode, ~1/bands^2), per accepted step.
         let model = Model::from_spec(&free.spec.model);
@@ -180,12 +199,25 @@ fn workloads(c: &mut Criterion) {
     let res = newton(&model, 0.0, &y0, NewtonOptions::default()).unwrap();
     count("newton_iterations", res.iterations as f64);
     g.bench_function("newton_90bands", |b| {
-        b.iter(|| black_box(newton(&model, 0.0, &y0, NewtonOptions::default()).unwrap().residual_wm2))
+        b.iter(|| {
+            black_box(
+                newton(&model, 0.0, &y0, NewtonOptions::default())
+                    .unwrap()
+                    .residual_wm2,
+            )
+        })
     });
     // Two-way sweep: 121 values of S0 each way, settled, tipping points refined.
     let cfg = load("sweep-solar.toml", &[]);
     g.bench_function("sweep_121x2_90bands", |b| {
-        b.iter(|| black_box(icefold::jobs::sweep::run_sweep(&cfg, false).unwrap().tipping.len()))
+        b.iter(|| {
+            black_box(
+                icefold::jobs::sweep::run_sweep(&cfg, false)
+                    .unwrap()
+                    .tipping
+                    .len(),
+            )
+        })
     });
     // Full continuation curve (every branch, folds located).
     let cfg = load("branches-solar.toml", &[]);
@@ -194,7 +226,13 @@ fn workloads(c: &mut Criterion) {
     count("continuation_points", points as f64);
     count("continuation_linearisations", set.linearisations as f64);
     g.bench_function("continuation_90bands", |b| {
-        b.iter(|| black_box(icefold::jobs::branches::run_branches(&cfg).unwrap().linearisations))
+        b.iter(|| {
+            black_box(
+                icefold::jobs::branches::run_branches(&cfg)
+                    .unwrap()
+                    .linearisations,
+            )
+        })
     });
     g.finish();
 }

@@ -231,7 +231,9 @@ impl Model {
         self.refresh_sun(t_years, ws);
         let d = self.drivers_at(t_years);
         let n = temps.len();
-        let Workspace { sun: ws_sun, conv, .. } = ws;
+        let Workspace {
+            sun: ws_sun, conv, ..
+        } = ws;
         let sun: &[f64] = match &self.sunlight {
             Sunlight::Fixed(s) => s,
             Sunlight::Seasonal(_) => ws_sun,
@@ -259,7 +261,11 @@ impl Model {
                     let ti = t[i];
                     let (o, dolr) = olr_of(ti);
                     let (o, _) = d.olr(o, dolr, ti);
-                    let flux_hi = if i + 1 < n { face_k[i + 1] * (t[i + 1] - ti) } else { 0.0 };
+                    let flux_hi = if i + 1 < n {
+                        face_k[i + 1] * (t[i + 1] - ti)
+                    } else {
+                        0.0
+                    };
                     let flux_lo = if i > 0 { face_k[i] * (ti - t[i - 1]) } else { 0.0 };
                     let c = (flux_hi - flux_lo) * inv_dx[i];
                     ss * sun[i] * (1.0 - a) - (o - g) + ts * c + extra
@@ -393,7 +399,8 @@ impl Model {
                         let (o, dolr) = olr_of(ti);
                         let (o, dolr) = d.olr(o, dolr, ti);
                         let s = d.solar_scale * sun[i];
-                        let conv = (face_k[i + 1] * (t[i + 1] - ti) - face_k[i] * (ti - t[i - 1])) * inv_dx[i];
+                        let conv =
+                            (face_k[i + 1] * (t[i + 1] - ti) - face_k[i] * (ti - t[i - 1])) * inv_dx[i];
                         out[i] = s * (1.0 - a) - (o - g) + conv + extra;
                         let lo = face_k[i] * inv_dx[i];
                         let hi = face_k[i + 1] * inv_dx[i];
@@ -409,7 +416,11 @@ impl Model {
                         let (o, dolr) = olr_of(ti);
                         let (o, dolr) = d.olr(o, dolr, ti);
                         let s = d.solar_scale * sun[i];
-                        let flux_hi = if i + 1 < n { face_k[i + 1] * (t[i + 1] - ti) } else { 0.0 };
+                        let flux_hi = if i + 1 < n {
+                            face_k[i + 1] * (t[i + 1] - ti)
+                        } else {
+                            0.0
+                        };
                         let flux_lo = if i > 0 { face_k[i] * (ti - t[i - 1]) } else { 0.0 };
                         let conv = (flux_hi - flux_lo) * inv_dx[i];
                         out[i] = s * (1.0 - a) - (o - g) + conv + extra;

@@ -71,11 +71,7 @@ fn implicit_steps_do_not_allocate() {
         for _ in 0..200 {
             r.step().unwrap();
         }
-        assert_eq!(
-            allocs() - before,
-            0,
-            "{sets:?}: allocations in 200 steps"
-        );
+        assert_eq!(allocs() - before, 0, "{sets:?}: allocations in 200 steps");
     }
 }
 
@@ -91,9 +87,14 @@ fn newton_iterations_do_not_allocate() {
     .unwrap();
     let cfg = config::load_str(&text, "t", Path::new("."), &[]).unwrap();
     let model = Model::from_spec(&cfg.spec.model);
-    let near = newton(&model, 0.0, &model.initial_state(&cfg.spec.initial), NewtonOptions::default())
-        .unwrap()
-        .state;
+    let near = newton(
+        &model,
+        0.0,
+        &model.initial_state(&cfg.spec.initial),
+        NewtonOptions::default(),
+    )
+    .unwrap()
+    .state;
     let far: Vec<f64> = near.iter().map(|t| t + 3.0).collect();
     let mut counts = Vec::new();
     for start in [&near, &far] {
@@ -103,6 +104,12 @@ fn newton_iterations_do_not_allocate() {
         counts.push((res.iterations, allocs() - before));
         COUNTED.with(|c| c.set(false));
     }
-    assert!(counts[1].0 > counts[0].0 + 1, "the far start should need more iterations: {counts:?}");
-    assert_eq!(counts[0].1, counts[1].1, "allocations grew with iterations: {counts:?}");
+    assert!(
+        counts[1].0 > counts[0].0 + 1,
+        "the far start should need more iterations: {counts:?}"
+    );
+    assert_eq!(
+        counts[0].1, counts[1].1,
+        "allocations grew with iterations: {counts:?}"
+    );
 }
