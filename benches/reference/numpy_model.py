@@ -40,7 +40,7 @@ class Model:
         xi = xf[1:-1]
         self.k_face = diffusivity * (1.0 - xi**2) / np.diff(xc)
         self.rate = YEAR / heat_capacity
-        self.sparsity = diags([1, 1, 1], [-1, 0, 1], shape=(n, n))
+        self.sparsity = diags([1.0, 1.0, 1.0], [-1, 0, 1], shape=(n, n))
 
     def ice_fraction(self, t):
         """Fraction of each band where the linear interpolant through the centres is below
