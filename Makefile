@@ -5,7 +5,7 @@ VENV := .venv
 PY := $(VENV)/bin/python
 BIN := target/release/icefold
 
-.PHONY: demo test test-rust test-python deps pyenv build bench gallery clippy fmt clean
+.PHONY: demo test test-rust test-python deps pyenv build bench bench-compare gallery clippy fmt clean
 
 ## Install what is missing (HDF5 C library, pkg-config), build, run the built-in demo.
 demo: deps
@@ -37,8 +37,15 @@ pyenv:
 build: deps
 	$(CARGO) build --release
 
+## Every benchmark (criterion, short measurement times), then one table of the figures with
+## their arithmetic lower bounds (benches/summary.py, Python standard library only).
 bench: deps
 	$(CARGO) bench
+	python3 benches/summary.py
+
+## icefold against a plain numpy/scipy implementation on the same three workloads, with ratios.
+bench-compare: deps pyenv build
+	$(PY) benches/reference/compare.py --icefold $(CURDIR)/$(BIN)
 
 clippy:
 	$(CARGO) clippy --all-targets -- -D warnings

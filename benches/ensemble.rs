@@ -127,5 +127,37 @@ fn diagnostics(c: &mut Criterion) {
     });
 }
 
-criterion_group!(benches, ensemble, seasonal, diagnostics);
+/// Band-steps of one member at the base values (for the ensemble's arithmetic bound in
+/// benches/summary.py): 200 years at 45 bands, the adaptive ROS2 scheme.
+fn member_count() {
+    let cfg = load("ensemble-lhs.toml", &[]);
+    let model = Model::from_spec(&cfg.spec.model);
+    let y0 = model.initial_state(&cfg.spec.initial);
+    let mut integ = driver::integrator(&model, &cfg.spec.time, 0.0, &y0, cfg.spec.time.years);
+    let mut out = vec![0.0; model.len()];
+    integ.advance_to(cfg.spec.time.years, &mut out).unwrap();
+    let st = integ.stats();
+    let dir = Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("target")
+        .join("criterion");
+    let _ = std::fs::create_dir_all(&dir);
+    let _ = std::fs::write(
+        dir.join("icefold-counts-ensemble.json"),
+        format!("{{\n  \"member_steps\": {}\n}}\n", st.steps + st.rejected),
+    );
+}
+
+fn ensemble_counted(c: &mut Criterion) {
+    member_count();
+    ensemble(c);
+}
+
+criterion_group! {
+    name = benches;
+    config = Criterion::default()
+        .sample_size(10)
+        .warm_up_time(std::time::Duration::from_millis(300))
+        .measurement_time(std::time::Duration::from_secs(2));
+    targets = ensemble_counted, seasonal, diagnostics
+}
 criterion_main!(benches);

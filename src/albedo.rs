@@ -165,6 +165,31 @@ impl Albedo {
         }
     }
 
+    /// `band` for the `step` form (what `band` returns when the form is `Step`).
+    #[inline(always)]
+    pub fn step_band(&self, temps: &[f64], i: usize) -> (f64, [f64; 3]) {
+        let af = self.ice_free[i];
+        let ai = self.ice;
+        let t = temps[i];
+        // Away from the ice edge (an interior band whose neighbours lie on its side of freezing)
+        // both half bands are wholly warm or wholly cold: the fraction is 0 or exactly 1 with
+        // zero derivatives, the same numbers `ice_fraction` gives, found with two comparisons.
+        // Only the bands next to a crossing (and the two outer bands, whose virtual neighbour
+        // can cross alone) take the full rule.
+        let n = temps.len();
+        if i > 0 && i + 1 < n {
+            let tf = self.freeze;
+            let cold = t < tf;
+            if (temps[i - 1] < tf) == cold && (temps[i + 1] < tf) == cold {
+                let a = if cold { af + (ai - af) } else { af };
+                return (a, [0.0; 3]);
+            }
+        }
+        let (f, df) = self.ice_fraction(temps, i);
+        let d = ai - af;
+        (af + f * d, [d * df[0], d * df[1], d * df[2]])
+    }
+
     /// Albedo of band `i` and its derivatives by `T_{i-1}`, `T_i`, `T_{i+1}` (per K).
     #[inline(always)]
     pub fn band(&self, temps: &[f64], i: usize) -> (f64, [f64; 3]) {
@@ -172,11 +197,7 @@ impl Albedo {
         let ai = self.ice;
         let t = temps[i];
         match self.form {
-            AlbedoForm::Step => {
-                let (f, df) = self.ice_fraction(temps, i);
-                let d = ai - af;
-                (af + f * d, [d * df[0], d * df[1], d * df[2]])
-            }
+            AlbedoForm::Step => self.step_band(temps, i),
             AlbedoForm::Smooth { width } => {
                 let th = ((t - self.freeze) / width).tanh();
                 let a = ai + (af - ai) * 0.5 * (1.0 + th);

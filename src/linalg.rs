@@ -86,14 +86,18 @@ pub fn dot(a: &[f64], b: &[f64]) -> f64 {
 }
 
 /// An LU factorisation of a `Tridiag`, reusable for many right-hand sides.
+///
+/// Stored so that both sweeps of a solve are one multiply-add per row on the dependency chain
+/// (no division): forward `y_i = b_i p_i - l_i y_{i-1}` with `p_i = 1/pivot_i` and
+/// `l_i = a_i / pivot_i`, backward `x_i = y_i - c_i x_{i+1}`.
 #[derive(Debug, Clone)]
 pub struct TridiagLu {
-    /// Modified super-diagonal of the Thomas algorithm.
+    /// Modified super-diagonal of the Thomas algorithm, `upper_i / pivot_i`.
     c: Vec<f64>,
     /// Inverse pivots.
     inv_piv: Vec<f64>,
-    /// Sub-diagonal.
-    a: Vec<f64>,
+    /// Sub-diagonal over the pivot, `lower_i / pivot_i`.
+    l: Vec<f64>,
     /// For the rank-one part: `z = T^-1 (scale * ones)` and `1 + w.z`.
     z: Vec<f64>,
     denom: f64,
@@ -117,7 +121,7 @@ impl TridiagLu {
         TridiagLu {
             c: vec![0.0; n],
             inv_piv: vec![0.0; n],
-            a: vec![0.0; n],
+            l: vec![0.0; n],
             z: vec![0.0; n],
             denom: 1.0,
             has_rank_one: false,
@@ -127,17 +131,25 @@ impl TridiagLu {
 
     /// Factorise `m` in place of the previous factorisation (no allocation).
     pub fn factor(&mut self, m: &Tridiag) -> Result<(), SingularMatrix> {
+        self.factor_from(m, 0)
+    }
+
+    /// Refactorise from row `start` on, keeping rows `0..start` of the previous factorisation:
+    /// exact when `m` agrees with the previously factorised matrix in those rows (row `i` of
+    /// the forward elimination depends only on rows `0..=i`). The rank-one part is redone.
+    pub fn factor_from(&mut self, m: &Tridiag, start: usize) -> Result<(), SingularMatrix> {
         let n = m.len();
-        let mut prev_c = 0.0;
-        for i in 0..n {
+        let mut prev_c = if start > 0 { self.c[start - 1] } else { 0.0 };
+        for i in start..n {
             let a = if i > 0 { m.lower[i] } else { 0.0 };
             let piv = m.diag[i] - a * prev_c;
             if piv.abs() < 1e-300 || !piv.is_finite() {
                 return Err(SingularMatrix { row: i, pivot: piv });
             }
-            self.a[i] = a;
-            self.inv_piv[i] = 1.0 / piv;
-            prev_c = if i + 1 < n { m.upper[i] / piv } else { 0.0 };
+            let inv = 1.0 / piv;
+            self.l[i] = a * inv;
+            self.inv_piv[i] = inv;
+            prev_c = if i + 1 < n { m.upper[i] * inv } else { 0.0 };
             self.c[i] = prev_c;
         }
         self.has_rank_one = false;
@@ -158,20 +170,25 @@ impl TridiagLu {
         Ok(())
     }
 
+    #[inline]
     fn solve_tridiag(&self, b: &mut [f64]) {
         let n = b.len();
+        let (c, p, l) = (&self.c[..n], &self.inv_piv[..n], &self.l[..n]);
         let mut prev = 0.0;
         for i in 0..n {
-            let v = (b[i] - self.a[i] * prev) * self.inv_piv[i];
+            let v = b[i] * p[i] - l[i] * prev;
             b[i] = v;
             prev = v;
         }
         for i in (0..n.saturating_sub(1)).rev() {
-            b[i] -= self.c[i] * b[i + 1];
+            let v = b[i] - c[i] * prev;
+            b[i] = v;
+            prev = v;
         }
     }
 
     /// Solve `A x = b` in place.
+    #[inline]
     pub fn solve(&self, b: &mut [f64]) {
         self.solve_tridiag(b);
         if self.has_rank_one {

@@ -5,7 +5,7 @@
 //! (DESIGN section 2; docs/discrete-model.md has the exact discrete equations). This is the only
 //! module that knows every piece; it does no I/O.
 
-use crate::albedo::Albedo;
+use crate::albedo::{Albedo, AlbedoForm};
 use crate::grid::Grid;
 use crate::insolation::{self, SeasonalTable};
 use crate::linalg::Tridiag;
@@ -138,6 +138,55 @@ pub struct Budget {
     pub extra: f64,
 }
 
+/// Run `$body` with `$alb` bound to the albedo of one band (`(temps, i) -> (albedo, d/dT)`)
+/// and `$olr` to the OLR (`T -> (OLR, dOLR/dT)`), the forms chosen once here so that the band
+/// loops in `$body` are specialised (the step albedo and linear OLR inlined).
+macro_rules! with_forms {
+    ($self:ident, |$alb:ident, $olr:ident| $body:block) => {
+        match (&$self.albedo.form, &$self.longwave) {
+            (AlbedoForm::Step, Longwave::Linear { a, b }) => {
+                let (a0, b0) = (*a, *b);
+                let $alb = |t: &[f64], i: usize| $self.albedo.step_band(t, i);
+                let $olr = move |t: f64| (a0 + b0 * (t - crate::longwave::ZERO_CELSIUS), b0);
+                $body
+            }
+            (AlbedoForm::Step, _) => {
+                let $alb = |t: &[f64], i: usize| $self.albedo.step_band(t, i);
+                let $olr = |t: f64| $self.longwave.eval(t);
+                $body
+            }
+            (_, Longwave::Linear { a, b }) => {
+                let (a0, b0) = (*a, *b);
+                let $alb = |t: &[f64], i: usize| $self.albedo.band(t, i);
+                let $olr = move |t: f64| (a0 + b0 * (t - crate::longwave::ZERO_CELSIUS), b0);
+                $body
+            }
+            _ => {
+                let $alb = |t: &[f64], i: usize| $self.albedo.band(t, i);
+                let $olr = |t: f64| $self.longwave.eval(t);
+                $body
+            }
+        }
+    };
+}
+
+/// Run `$body` with `$olr` bound to the OLR (`T -> (OLR, dOLR/dT)`), the linear form inlined.
+macro_rules! with_olr {
+    ($self:ident, |$olr:ident| $body:block) => {
+        match &$self.longwave {
+            Longwave::Linear { a, b } => {
+                let (a0, b0) = (*a, *b);
+                let $olr = move |t: f64| (a0 + b0 * (t - crate::longwave::ZERO_CELSIUS), b0);
+                $body
+            }
+            _ => {
+                let $olr = |t: f64| $self.longwave.eval(t);
+                $body
+            }
+        }
+    };
+}
+
 impl Model {
     /// Number of bands.
     pub fn len(&self) -> usize {
@@ -181,18 +230,91 @@ impl Model {
     pub fn heating(&self, t_years: f64, temps: &[f64], ws: &mut Workspace, out: &mut [f64]) {
         self.refresh_sun(t_years, ws);
         let d = self.drivers_at(t_years);
-        let mut conv = std::mem::take(&mut ws.conv);
-        self.transport.convergence(&self.grid, temps, &mut conv);
-        let sun = self.sun(ws);
-        for i in 0..temps.len() {
-            let (alb, _) = self.albedo.band(temps, i);
-            let (olr, dolr) = self.longwave.eval(temps[i]);
-            let (olr, _) = d.olr(olr, dolr, temps[i]);
-            out[i] = d.solar_scale * sun[i] * (1.0 - alb) - (olr - d.greenhouse_wm2)
-                + d.transport_scale * conv[i]
-                + d.extra_wm2;
+        let n = temps.len();
+        let Workspace {
+            sun: ws_sun, conv, ..
+        } = ws;
+        let sun: &[f64] = match &self.sunlight {
+            Sunlight::Fixed(s) => s,
+            Sunlight::Seasonal(_) => ws_sun,
+        };
+        let (sun, out) = (&sun[..n], &mut out[..n]);
+        // One pass over the bands with the albedo and OLR forms chosen once outside the loop;
+        // diffusive transport is folded in (same expressions as `Transport::convergence`).
+        let diffusive = match &self.transport {
+            Transport::Diffusive { face_k, inv_dx } => Some((&face_k[..n + 1], &inv_dx[..n])),
+            Transport::Relaxation { .. } => {
+                self.transport.convergence(&self.grid, temps, conv);
+                None
+            }
+        };
+        let conv = &conv[..n];
+        if let (AlbedoForm::Step, Some((face_k, inv_dx))) = (self.albedo.form, diffusive) {
+            // Two phases, the same numbers as the one-pass loop below: every interior band as
+            // if away from the ice edge (branch-free, so the loop vectorises), then the bands
+            // next to a freezing crossing and the two outer bands redone with the full rule.
+            let (tf, ai, af) = (self.albedo.freeze, self.albedo.ice, &self.albedo.ice_free[..n]);
+            let t = &temps[..n];
+            with_olr!(self, |olr_of| {
+                let (ss, ts, g, extra) = (d.solar_scale, d.transport_scale, d.greenhouse_wm2, d.extra_wm2);
+                let band = |i: usize, a: f64| {
+                    let ti = t[i];
+                    let (o, dolr) = olr_of(ti);
+                    let (o, _) = d.olr(o, dolr, ti);
+                    let flux_hi = if i + 1 < n {
+                        face_k[i + 1] * (t[i + 1] - ti)
+                    } else {
+                        0.0
+                    };
+                    let flux_lo = if i > 0 { face_k[i] * (ti - t[i - 1]) } else { 0.0 };
+                    let c = (flux_hi - flux_lo) * inv_dx[i];
+                    ss * sun[i] * (1.0 - a) - (o - g) + ts * c + extra
+                };
+                for i in 1..n.saturating_sub(1) {
+                    let ti = t[i];
+                    let a = if ti < tf { af[i] + (ai - af[i]) } else { af[i] };
+                    let (o, dolr) = olr_of(ti);
+                    let (o, _) = d.olr(o, dolr, ti);
+                    let c = (face_k[i + 1] * (t[i + 1] - ti) - face_k[i] * (ti - t[i - 1])) * inv_dx[i];
+                    out[i] = ss * sun[i] * (1.0 - a) - (o - g) + ts * c + extra;
+                }
+                let mut fix = |i: usize| out[i] = band(i, self.albedo.step_band(t, i).0);
+                fix(0);
+                for k in 0..n.saturating_sub(1) {
+                    if (t[k] < tf) != (t[k + 1] < tf) {
+                        fix(k);
+                        fix(k + 1);
+                    }
+                }
+                fix(n - 1);
+            });
+            return;
         }
-        ws.conv = conv;
+        with_forms!(self, |alb, olr_of| {
+            let mut flux_lo = 0.0;
+            for i in 0..n {
+                let ti = temps[i];
+                let (a, _) = alb(temps, i);
+                let (o, dolr) = olr_of(ti);
+                let (o, _) = d.olr(o, dolr, ti);
+                let tr = match diffusive {
+                    Some((face_k, inv_dx)) => {
+                        let flux_hi = if i + 1 < n {
+                            face_k[i + 1] * (temps[i + 1] - ti)
+                        } else {
+                            0.0
+                        };
+                        let c = (flux_hi - flux_lo) * inv_dx[i];
+                        flux_lo = flux_hi;
+                        c
+                    }
+                    None => conv[i],
+                };
+                out[i] = d.solar_scale * sun[i] * (1.0 - a) - (o - d.greenhouse_wm2)
+                    + d.transport_scale * tr
+                    + d.extra_wm2;
+            }
+        });
     }
 
     /// `dT/dt` in K per year into `out`.
@@ -251,6 +373,103 @@ impl Model {
     ) {
         self.refresh_sun(t_years, ws);
         let d = self.drivers_at(t_years);
+        if let (Transport::Diffusive { face_k, inv_dx }, 1.0) = (&self.transport, d.transport_scale) {
+            // The common case in one fused pass: heating, local Jacobian and the (constant)
+            // diffusive Jacobian, the same expressions as the general path below.
+            let n = temps.len();
+            let sun: &[f64] = match &self.sunlight {
+                Sunlight::Fixed(s) => s,
+                Sunlight::Seasonal(_) => &ws.sun,
+            };
+            let (sun, out, face_k, inv_dx) = (&sun[..n], &mut out[..n], &face_k[..n + 1], &inv_dx[..n]);
+            let (jd, jl, ju) = (&mut jac.diag[..n], &mut jac.lower[..n], &mut jac.upper[..n]);
+            jac.rank_one = None;
+            if self.albedo.form == AlbedoForm::Step {
+                // Two phases as in `heating`: interior bands as if away from the ice edge, then
+                // the outer bands and those next to a crossing with the full rule.
+                let (tf, ai, af) = (self.albedo.freeze, self.albedo.ice, &self.albedo.ice_free[..n]);
+                let t = &temps[..n];
+                // Every interior band as if away from the edge (zero albedo derivatives,
+                // branch-free); the bands that need the full rule are redone after.
+                with_olr!(self, |olr_of| {
+                    let (g, extra) = (d.greenhouse_wm2, d.extra_wm2);
+                    for i in 1..n.saturating_sub(1) {
+                        let ti = t[i];
+                        let a = if ti < tf { af[i] + (ai - af[i]) } else { af[i] };
+                        let (o, dolr) = olr_of(ti);
+                        let (o, dolr) = d.olr(o, dolr, ti);
+                        let s = d.solar_scale * sun[i];
+                        let conv =
+                            (face_k[i + 1] * (t[i + 1] - ti) - face_k[i] * (ti - t[i - 1])) * inv_dx[i];
+                        out[i] = s * (1.0 - a) - (o - g) + conv + extra;
+                        let lo = face_k[i] * inv_dx[i];
+                        let hi = face_k[i + 1] * inv_dx[i];
+                        jd[i] = (-s * 0.0 - dolr) - (lo + hi);
+                        jl[i] = -s * 0.0 + lo;
+                        ju[i] = -s * 0.0 + hi;
+                    }
+                });
+                with_olr!(self, |olr_of| {
+                    let (g, extra) = (d.greenhouse_wm2, d.extra_wm2);
+                    let mut band = |i: usize, a: f64, da: [f64; 3]| {
+                        let ti = t[i];
+                        let (o, dolr) = olr_of(ti);
+                        let (o, dolr) = d.olr(o, dolr, ti);
+                        let s = d.solar_scale * sun[i];
+                        let flux_hi = if i + 1 < n {
+                            face_k[i + 1] * (t[i + 1] - ti)
+                        } else {
+                            0.0
+                        };
+                        let flux_lo = if i > 0 { face_k[i] * (ti - t[i - 1]) } else { 0.0 };
+                        let conv = (flux_hi - flux_lo) * inv_dx[i];
+                        out[i] = s * (1.0 - a) - (o - g) + conv + extra;
+                        let lo = face_k[i] * inv_dx[i];
+                        let hi = face_k[i + 1] * inv_dx[i];
+                        jd[i] = (-s * da[1] - dolr) - (lo + hi);
+                        jl[i] = (if i > 0 { -s * da[0] } else { 0.0 }) + lo;
+                        ju[i] = (if i + 1 < n { -s * da[2] } else { 0.0 }) + hi;
+                    };
+                    let (a0, d0) = self.albedo.step_band(t, 0);
+                    band(0, a0, d0);
+                    let (a1, d1) = self.albedo.step_band(t, n - 1);
+                    band(n - 1, a1, d1);
+                    for k in 0..n.saturating_sub(1) {
+                        if (t[k] < tf) != (t[k + 1] < tf) {
+                            for i in [k, k + 1] {
+                                let (a, da) = self.albedo.step_band(t, i);
+                                band(i, a, da);
+                            }
+                        }
+                    }
+                });
+                return;
+            }
+            with_forms!(self, |alb, olr_of| {
+                let mut flux_lo = 0.0;
+                for i in 0..n {
+                    let ti = temps[i];
+                    let (a, da) = alb(temps, i);
+                    let (o, dolr) = olr_of(ti);
+                    let (o, dolr) = d.olr(o, dolr, ti);
+                    let s = d.solar_scale * sun[i];
+                    let flux_hi = if i + 1 < n {
+                        face_k[i + 1] * (temps[i + 1] - ti)
+                    } else {
+                        0.0
+                    };
+                    let conv = (flux_hi - flux_lo) * inv_dx[i];
+                    flux_lo = flux_hi;
+                    out[i] = s * (1.0 - a) - (o - d.greenhouse_wm2) + conv + d.extra_wm2;
+                    let lo = face_k[i] * inv_dx[i];
+                    let hi = face_k[i + 1] * inv_dx[i];
+                    jd[i] = (-s * da[1] - dolr) - (lo + hi);
+                    jl[i] = (if i > 0 { -s * da[0] } else { 0.0 }) + lo;
+                    ju[i] = (if i + 1 < n { -s * da[2] } else { 0.0 }) + hi;
+                }
+            });
+            return;
+        }
         let mut conv = std::mem::take(&mut ws.conv);
         self.transport.convergence(&self.grid, temps, &mut conv);
         jac.rank_one = None;
