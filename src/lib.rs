@@ -16,6 +16,7 @@
 pub mod albedo;
 pub mod cli;
 pub mod config;
+pub mod csv;
 pub mod ensemble;
 pub mod equilibrium;
 pub mod error;

@@ -6,7 +6,7 @@
 
 pub mod raw;
 pub mod spec;
-mod table;
+pub mod table;
 mod validate;
 
 use std::path::{Path, PathBuf};
@@ -130,12 +130,39 @@ impl Loaded {
 
 /// Load a config file and apply `--set KEY=VALUE` overrides.
 pub fn load(path: &Path, sets: &[String]) -> Result<Loaded, ConfigError> {
-    let text = std::fs::read_to_string(path).map_err(|source| ConfigError::Read {
+    let text = read_config_text(path).map_err(|source| ConfigError::Read {
         path: path.to_path_buf(),
         source,
     })?;
     let base = path.parent().map(Path::to_path_buf).unwrap_or_default();
     load_str(&text, &path.display().to_string(), &base, sets)
+}
+
+/// Largest config file accepted, bytes (a longer one, or a device such as /dev/zero, is
+/// refused after reading one byte past this).
+pub const MAX_CONFIG_BYTES: u64 = 16 * 1024 * 1024;
+
+/// The config file's text, refusing more than [`MAX_CONFIG_BYTES`] and non-UTF-8 text.
+fn read_config_text(path: &Path) -> std::io::Result<String> {
+    use std::io::Read;
+    if std::fs::metadata(path)?.is_dir() {
+        return Err(std::io::Error::other("it is a directory"));
+    }
+    let mut bytes = Vec::new();
+    std::fs::File::open(path)?
+        .take(MAX_CONFIG_BYTES + 1)
+        .read_to_end(&mut bytes)?;
+    if bytes.len() as u64 > MAX_CONFIG_BYTES {
+        return Err(std::io::Error::other(format!(
+            "longer than the limit of {} MiB",
+            MAX_CONFIG_BYTES >> 20
+        )));
+    }
+    String::from_utf8(bytes).map_err(|e| {
+        let at = e.utf8_error().valid_up_to();
+        let line = e.as_bytes()[..at].iter().filter(|&&b| b == b'\n').count() + 1;
+        std::io::Error::other(format!("not UTF-8 text (invalid byte at line {line})"))
+    })
 }
 
 /// Load from TOML text (`source` names it in messages).

@@ -7,7 +7,7 @@
 //!
 //! Reference: Deuflhard, Newton Methods for Nonlinear Problems (2004), chapter 3.
 
-use crate::integrate::{check_state, SolverError};
+use crate::integrate::{band_latitude, check_state, worst_index, SolverError};
 use crate::linalg::{Tridiag, TridiagLu};
 use crate::model::{Model, Workspace};
 
@@ -47,6 +47,18 @@ fn max_abs(v: &[f64]) -> f64 {
     v.iter().fold(0.0, |m, x| m.max(x.abs()))
 }
 
+/// Where the residual `g` (W m-2) is worst at state `y` (K), for messages: band, latitude,
+/// temperature and residual.
+fn worst_residual(model: &Model, t_years: f64, y: &[f64], g: &[f64]) -> String {
+    let i = worst_index(g);
+    format!(
+        "at model year {t_years}, largest residual {:.3e} W m-2 in band {i} at latitude {:.2} degrees (temperature {:.3} K)",
+        g[i],
+        band_latitude(model, i),
+        y[i]
+    )
+}
+
 /// Solve `G(T) = 0` at model time `t_years` from `start`.
 pub fn newton(
     model: &Model,
@@ -81,7 +93,8 @@ pub fn newton(
         model.heating_jacobian(t_years, &y, &mut ws, &mut jac);
         lu.factor(&jac).map_err(|e| {
             fail(format!(
-                "singular Jacobian at iteration {it} ({e}); the state may sit on a fold"
+                "singular Jacobian at iteration {it} ({e}); the state may sit on a fold; {}",
+                worst_residual(model, t_years, &y, &g)
             ))
         })?;
         for i in 0..n {
@@ -121,7 +134,8 @@ pub fn newton(
                 });
             }
             return Err(fail(format!(
-                "no descent at iteration {it}; largest residual {r:.3e} W m-2"
+                "no descent at iteration {it}; {}",
+                worst_residual(model, t_years, &y, &g)
             )));
         }
     }
@@ -134,7 +148,8 @@ pub fn newton(
         });
     }
     Err(fail(format!(
-        "{} iterations left the largest residual at {r:.3e} W m-2 (equilibrium.max_iterations)",
-        opts.max_iterations
+        "{} iterations (equilibrium.max_iterations) ended {}",
+        opts.max_iterations,
+        worst_residual(model, t_years, &y, &g)
     )))
 }
