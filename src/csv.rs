@@ -101,7 +101,7 @@ impl<'a> Reader<'a> {
         if let Some(k) = names.iter().position(|n| n.is_empty()) {
             return Err(CsvError::at(
                 header_line,
-                format!("column {} of the header `{header}` has no name", k + 1),
+                format!("column {} of the header `{}` has no name", k + 1, shorten(header)),
             ));
         }
         Ok(Reader {
@@ -136,7 +136,10 @@ impl<'a> Reader<'a> {
             if !v.is_finite() {
                 return Err(CsvError::at(
                     ln,
-                    format!("`{field}` in column `{name}` is not finite (allowed: a finite number)"),
+                    format!(
+                        "`{}` in column `{name}` is not finite (allowed: a finite number)",
+                        shorten(field)
+                    ),
                 ));
             }
             out.push(v);
@@ -154,12 +157,15 @@ impl<'a> Reader<'a> {
     }
 }
 
-/// At most 40 characters of `s` for a message (long garbage is cut, marked with `...`).
+/// At most 40 characters of `s` for a message (long garbage is cut, marked with `...`), with
+/// control characters escaped so the message stays one line.
 pub fn shorten(s: &str) -> String {
+    let cut: String = s.chars().take(40).collect();
+    let cut = crate::config::one_line(&cut).into_owned();
     if s.chars().count() <= 40 {
-        s.to_string()
+        cut
     } else {
-        format!("{}...", s.chars().take(40).collect::<String>())
+        format!("{cut}...")
     }
 }
 

@@ -26,7 +26,7 @@ pub enum ConfigError {
         source: std::io::Error,
     },
     /// TOML syntax error (the message carries line and column).
-    #[error("{path}: TOML syntax error: {message}")]
+    #[error("{}: TOML syntax error: {}", one_line(.path), one_line(.message))]
     Syntax {
         /// The file.
         path: String,
@@ -34,7 +34,7 @@ pub enum ConfigError {
         message: String,
     },
     /// Unknown key or wrong type.
-    #[error("{path}: key `{key}`: {message}")]
+    #[error("{}: key `{}`: {}", one_line(.path), one_line(.key), one_line(.message))]
     Key {
         /// The file.
         path: String,
@@ -44,7 +44,7 @@ pub enum ConfigError {
         message: String,
     },
     /// A value out of its allowed range.
-    #[error("{path}: key `{key}` = {value}: {allowed}")]
+    #[error("{}: key `{}` = {}: {}", one_line(.path), one_line(.key), one_line(.value), one_line(.allowed))]
     Range {
         /// The file.
         path: String,
@@ -56,7 +56,7 @@ pub enum ConfigError {
         allowed: String,
     },
     /// A malformed `--set` argument.
-    #[error("--set {arg}: {message}")]
+    #[error("--set {}: {}", one_line(.arg), one_line(.message))]
     Set {
         /// The argument.
         arg: String,
@@ -64,13 +64,31 @@ pub enum ConfigError {
         message: String,
     },
     /// A data file referenced by the config (OLR table) is bad.
-    #[error("{path}: {message}")]
+    #[error("{}: {}", one_line(.path), one_line(.message))]
     DataFile {
         /// The file (with `:line` when known).
         path: String,
         /// What is wrong.
         message: String,
     },
+}
+
+/// `s` with control characters (newlines, tabs, NUL...) escaped, so every message is one line.
+pub fn one_line(s: &str) -> std::borrow::Cow<'_, str> {
+    if s.chars().any(char::is_control) {
+        s.chars()
+            .map(|c| {
+                if c.is_control() {
+                    c.escape_default().to_string()
+                } else {
+                    c.to_string()
+                }
+            })
+            .collect::<String>()
+            .into()
+    } else {
+        s.into()
+    }
 }
 
 /// A loaded configuration: the resolved raw values (every default filled in), the typed spec,
