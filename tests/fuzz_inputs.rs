@@ -5,7 +5,7 @@
 //! Inputs: arbitrary strings, mutations of the shipped configs and CSVs (byte flips,
 //! truncation, deletions, inserted hostile tokens: huge numbers, NaN/inf, quotes, brackets,
 //! NUL, a byte-order mark), and structured CSVs from random headers (duplicate and unknown
-//! columns) and random fields. Each property runs `ICEFOLD_FUZZ_CASES` cases (default 64, a
+//! columns) and random fields. Each property runs `ICEFOLD_FUZZ_CASES` cases (default 256, a
 //! few seconds in all in `cargo test --release`); raise it for a longer run, e.g.
 //! `ICEFOLD_FUZZ_CASES=20000 cargo test --release --test fuzz_inputs`.
 //! Inputs that found bugs are kept as explicit regression tests at the end.
@@ -30,12 +30,12 @@ const HOSTILE: &[&str] = &[
     "[[forcing.pieces]]", "[ensemble]", "bands = 20001", "bands = 0", "years = 1e12",
 ];
 
-/// Cases per property (env `ICEFOLD_FUZZ_CASES`, default 64).
+/// Cases per property (env `ICEFOLD_FUZZ_CASES`, default 256).
 fn cases() -> u32 {
     std::env::var("ICEFOLD_FUZZ_CASES")
         .ok()
         .and_then(|v| v.parse().ok())
-        .unwrap_or(64)
+        .unwrap_or(256)
 }
 
 fn config() -> ProptestConfig {

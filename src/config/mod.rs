@@ -233,7 +233,7 @@ fn from_tree(mut tree: toml::Value, source: &str, base_dir: &Path) -> Result<Loa
         ConfigError::Key {
             path: source.to_string(),
             key: if key == "." { "(top level)".into() } else { key },
-            message: e.into_inner().message().to_string(),
+            message: plain_types(e.into_inner().message()),
         }
     })?;
     let (resolved_raw, spec) = validate::validate(raw, source, base_dir)?;
@@ -248,6 +248,14 @@ fn from_tree(mut tree: toml::Value, source: &str, base_dir: &Path) -> Result<Loa
         resolved,
         spec,
     })
+}
+
+/// Serde's type names in plain words: "expected f64" reads "expected a number".
+fn plain_types(message: &str) -> String {
+    message
+        .replace("expected f64", "expected a number")
+        .replace("expected i64", "expected a whole number")
+        .replace("expected a boolean", "expected true or false")
 }
 
 /// Integers become floats except at integer keys, so `solar_constant = 1361` reads as written.
@@ -316,7 +324,13 @@ fn set_dotted(tree: &mut toml::Value, key: &str, value: toml::Value) -> Result<(
     for (k, part) in parts.iter().enumerate() {
         let table = cur
             .as_table_mut()
-            .ok_or_else(|| format!("`{}` is not a table", parts[..k].join(".")))?;
+            .ok_or_else(|| {
+                format!(
+                    "`{}` is a value, not a table, so `{key}` cannot be set; set `{}` itself",
+                    parts[..k].join("."),
+                    parts[..k].join(".")
+                )
+            })?;
         if k + 1 == parts.len() {
             table.insert(part.to_string(), value);
             return Ok(());
