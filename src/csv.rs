@@ -147,10 +147,7 @@ impl<'a> Reader<'a> {
         if found != ncol {
             return Err(CsvError::at(
                 ln,
-                format!(
-                    "expected {ncol} fields ({}), found {found}",
-                    shorten(self.header)
-                ),
+                format!("expected {ncol} fields ({}), found {found}", shorten(self.header)),
             ));
         }
         Ok(Some(ln))

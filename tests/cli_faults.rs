@@ -25,7 +25,10 @@ fn files_in(dir: &Path) -> Vec<String> {
 
 fn icefold(dir: &Path, args: &[&str]) -> (Option<i32>, String) {
     let out: Output = Command::new(BIN).current_dir(dir).args(args).output().unwrap();
-    (out.status.code(), String::from_utf8_lossy(&out.stderr).into_owned())
+    (
+        out.status.code(),
+        String::from_utf8_lossy(&out.stderr).into_owned(),
+    )
 }
 
 fn is_root() -> bool {
@@ -50,12 +53,18 @@ fn unwritable_places_exit_2_and_leave_nothing() {
     // A path under a regular file cannot be created, even by root.
     let (code, err) = icefold(&dir, &["run", "c.toml", "-o", "plainfile/out.nc"]);
     assert_eq!(code, Some(2), "{err}");
-    assert!(err.contains("plainfile/out.nc") && err.contains("plainfile"), "{err}");
+    assert!(
+        err.contains("plainfile/out.nc") && err.contains("plainfile"),
+        "{err}"
+    );
     assert_eq!(err.trim().lines().count(), 1, "{err}");
     // /proc takes no new files, even from root.
     let (code, err) = icefold(&dir, &["equilibrium", "c.toml", "-o", "/proc/icefold-out.nc"]);
     assert_eq!(code, Some(2), "{err}");
-    assert!(err.contains("/proc/icefold-out.nc") && err.contains("cannot create"), "{err}");
+    assert!(
+        err.contains("/proc/icefold-out.nc") && err.contains("cannot create"),
+        "{err}"
+    );
     // A read-only directory stops everyone but root.
     if !is_root() {
         let ro = dir.join("ro");
@@ -64,7 +73,10 @@ fn unwritable_places_exit_2_and_leave_nothing() {
         std::fs::set_permissions(&ro, std::fs::Permissions::from_mode(0o500)).unwrap();
         let (code, err) = icefold(&dir, &["run", "c.toml", "-o", "ro/out.nc"]);
         assert_eq!(code, Some(2), "{err}");
-        assert!(err.contains("ro/out.nc") && err.contains("Permission denied"), "{err}");
+        assert!(
+            err.contains("ro/out.nc") && err.contains("Permission denied"),
+            "{err}"
+        );
         assert!(files_in(&ro).is_empty());
         std::fs::set_permissions(&ro, std::fs::Permissions::from_mode(0o700)).unwrap();
     } else {
@@ -84,7 +96,10 @@ fn existing_output_is_kept_without_overwrite_for_every_command() {
         std::fs::write(dir.join("o.nc"), &precious).unwrap();
         let (code, err) = icefold(&dir, &[cmd, "c.toml", "-o", "o.nc"]);
         assert_eq!(code, Some(2), "{cmd}: {err}");
-        assert!(err.contains("o.nc") && err.contains("--overwrite"), "{cmd}: {err}");
+        assert!(
+            err.contains("o.nc") && err.contains("--overwrite"),
+            "{cmd}: {err}"
+        );
         assert_eq!(std::fs::read(dir.join("o.nc")).unwrap(), precious, "{cmd}");
         assert_eq!(files_in(&dir), ["c.toml", "o.nc"].map(String::from), "{cmd}");
     }
@@ -129,7 +144,11 @@ fn full_disk_gives_a_clear_error_and_keeps_the_previous_file() {
     assert!(err.contains("no space left on device"), "{err}");
     assert!(err.contains("small/out.nc"), "{err}");
     assert_eq!(err.trim().lines().count(), 1, "one message line: {err}");
-    assert_eq!(files_in(&mnt), ["out.nc".to_string()], "temporary file left behind");
+    assert_eq!(
+        files_in(&mnt),
+        ["out.nc".to_string()],
+        "temporary file left behind"
+    );
     assert_eq!(std::fs::read(mnt.join("out.nc")).unwrap(), b"previous result");
     drop(guard);
     let _ = std::fs::remove_dir_all(&dir);
@@ -140,7 +159,10 @@ fn assert_blow_up(code: Option<i32>, err: &str, what: &str) {
     assert_eq!(code, Some(3), "{what}: {err}");
     assert!(err.contains("numerical failure"), "{what}: {err}");
     assert!(err.contains("model year"), "{what}: {err}");
-    assert!(err.contains("latitude") && err.contains("degrees"), "{what}: {err}");
+    assert!(
+        err.contains("latitude") && err.contains("degrees"),
+        "{what}: {err}"
+    );
     assert!(err.contains(" K"), "{what}: value missing: {err}");
     assert_eq!(err.trim().lines().count(), 1, "{what}: {err}");
 }

@@ -23,11 +23,51 @@ const TABLE_CSV: &str = "temperature_k,olr_wm2\n# a comment\n180,120.5\n250,200\
 
 /// Tokens that break parsers: numbers at the edge of f64, non-finite spellings, syntax.
 const HOSTILE: &[&str] = &[
-    "nan", "NaN", "inf", "-inf", "+inf", "infinity", "1e309", "-1e309", "1e308", "4.9e-324",
-    "-0", "0", "99999999999999999999999", "-9223372036854775809", "9223372036854775807",
-    "0x10", "1_000", "\"", "'", "[", "]", "[[", "]]", "=", ",", ",,", "\n", "\r\n", "#", "{", "}",
-    "\u{feff}", "\0", "\u{ff}", "é", "\t", "year", "co2_ppm", "temperature_k", "olr_wm2",
-    "[[forcing.pieces]]", "[ensemble]", "bands = 20001", "bands = 0", "years = 1e12",
+    "nan",
+    "NaN",
+    "inf",
+    "-inf",
+    "+inf",
+    "infinity",
+    "1e309",
+    "-1e309",
+    "1e308",
+    "4.9e-324",
+    "-0",
+    "0",
+    "99999999999999999999999",
+    "-9223372036854775809",
+    "9223372036854775807",
+    "0x10",
+    "1_000",
+    "\"",
+    "'",
+    "[",
+    "]",
+    "[[",
+    "]]",
+    "=",
+    ",",
+    ",,",
+    "\n",
+    "\r\n",
+    "#",
+    "{",
+    "}",
+    "\u{feff}",
+    "\0",
+    "\u{ff}",
+    "é",
+    "\t",
+    "year",
+    "co2_ppm",
+    "temperature_k",
+    "olr_wm2",
+    "[[forcing.pieces]]",
+    "[ensemble]",
+    "bands = 20001",
+    "bands = 0",
+    "years = 1e12",
 ];
 
 /// Cases per property (env `ICEFOLD_FUZZ_CASES`, default 256).
@@ -97,7 +137,10 @@ fn mutate(seed: &str, edits: &[Edit]) -> Vec<u8> {
 /// A rejection must be one clear, non-empty line.
 fn check_message(what: &str, input: &dyn std::fmt::Debug, msg: String) -> Result<(), TestCaseError> {
     prop_assert!(!msg.trim().is_empty(), "{what}: empty message for {input:?}");
-    prop_assert!(!msg.contains('\n'), "{what}: multi-line message for {input:?}: {msg}");
+    prop_assert!(
+        !msg.contains('\n'),
+        "{what}: multi-line message for {input:?}: {msg}"
+    );
     Ok(())
 }
 
@@ -114,8 +157,10 @@ fn parse_forcing(text: &str) -> Result<(), TestCaseError> {
             Ok(s) => {
                 // Accepted series are usable: strictly increasing years, finite values.
                 prop_assert!(s.years.windows(2).all(|w| w[0] < w[1]));
-                prop_assert!(s.columns.iter().all(|(_, v)| v.len() == s.years.len()
-                    && v.iter().all(|x| x.is_finite())));
+                prop_assert!(s
+                    .columns
+                    .iter()
+                    .all(|(_, v)| v.len() == s.years.len() && v.iter().all(|x| x.is_finite())));
                 let _ = s.check_covers(10.0);
                 let _ = s.value(0, 0.5 * (s.years[0] + s.years[s.years.len() - 1]));
             }
@@ -154,8 +199,18 @@ fn field() -> impl Strategy<Value = String> {
 /// A forcing header: `year` (usually) and known, unknown or repeated column names.
 fn forcing_header() -> impl Strategy<Value = Vec<String>> {
     let names = proptest::sample::select(vec![
-        "year", "co2_ppm", "greenhouse.co2_ppm", "solar_scale", "forcing_wm2", "longwave.a",
-        "longwave.emissivity", "transport.diffusivity", "albedo.ice", "", " co2_ppm ", "YEAR",
+        "year",
+        "co2_ppm",
+        "greenhouse.co2_ppm",
+        "solar_scale",
+        "forcing_wm2",
+        "longwave.a",
+        "longwave.emissivity",
+        "transport.diffusivity",
+        "albedo.ice",
+        "",
+        " co2_ppm ",
+        "YEAR",
     ]);
     (any::<bool>(), proptest::collection::vec(names, 0..5)).prop_map(|(year, rest)| {
         let mut h = if year { vec!["year".to_string()] } else { vec![] };
@@ -296,7 +351,9 @@ fn data_files_mutated_on_disk() {
 fn endless_data_file_is_refused() {
     for key in ["[forcing]\nfile", "[longwave]\nkind = \"table\"\ntable"] {
         let cfg = format!("[grid]\nbands = 6\n{key} = \"/dev/zero\"\n");
-        let e = load_str(&cfg, "c.toml", Path::new("/"), &[]).unwrap_err().to_string();
+        let e = load_str(&cfg, "c.toml", Path::new("/"), &[])
+            .unwrap_err()
+            .to_string();
         assert!(e.contains("/dev/zero") && e.contains("limit"), "{e}");
     }
 }
@@ -319,7 +376,10 @@ fn huge_table_values_are_refused() {
     let e = parse_olr_table("temperature_k,olr_wm2\n200,1e308\n300,-1e308\n", "t.csv")
         .unwrap_err()
         .to_string();
-    assert!(e.contains("t.csv:2") && e.contains("olr_wm2") && e.contains("1000000"), "{e}");
+    assert!(
+        e.contains("t.csv:2") && e.contains("olr_wm2") && e.contains("1000000"),
+        "{e}"
+    );
     let e = parse_olr_table("temperature_k,olr_wm2\n200,100\n1e300,200\n", "t.csv")
         .unwrap_err()
         .to_string();

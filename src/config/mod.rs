@@ -322,15 +322,13 @@ fn set_dotted(tree: &mut toml::Value, key: &str, value: toml::Value) -> Result<(
     let mut cur = tree;
     let parts: Vec<&str> = key.split('.').collect();
     for (k, part) in parts.iter().enumerate() {
-        let table = cur
-            .as_table_mut()
-            .ok_or_else(|| {
-                format!(
-                    "`{}` is a value, not a table, so `{key}` cannot be set; set `{}` itself",
-                    parts[..k].join("."),
-                    parts[..k].join(".")
-                )
-            })?;
+        let table = cur.as_table_mut().ok_or_else(|| {
+            format!(
+                "`{}` is a value, not a table, so `{key}` cannot be set; set `{}` itself",
+                parts[..k].join("."),
+                parts[..k].join(".")
+            )
+        })?;
         if k + 1 == parts.len() {
             table.insert(part.to_string(), value);
             return Ok(());

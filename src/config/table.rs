@@ -38,8 +38,11 @@ pub fn parse_olr_table(text: &str, shown: &str) -> Result<OlrTable, ConfigError>
         path: format!("{shown}:{line}"),
         message: m,
     };
-    let mut reader = Reader::new(text, "empty OLR table; expected the header `temperature_k,olr_wm2`")
-        .map_err(|e| err(e.line, e.message))?;
+    let mut reader = Reader::new(
+        text,
+        "empty OLR table; expected the header `temperature_k,olr_wm2`",
+    )
+    .map_err(|e| err(e.line, e.message))?;
     let hl = reader.header_line;
     if reader.names != ["temperature_k", "olr_wm2"] {
         return Err(err(
@@ -86,10 +89,7 @@ pub fn parse_olr_table(text: &str, shown: &str) -> Result<OlrTable, ConfigError>
     if temps.len() < 2 {
         return Err(err(
             hl,
-            format!(
-                "an OLR table needs at least two data rows, found {}",
-                temps.len()
-            ),
+            format!("an OLR table needs at least two data rows, found {}", temps.len()),
         ));
     }
     Ok(OlrTable::new(temps, olr))
