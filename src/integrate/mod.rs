@@ -194,3 +194,39 @@ pub trait Integrator {
     /// Counters so far.
     fn stats(&self) -> Stats;
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn the_worst_band_is_the_largest_or_the_first_nan() {
+        assert_eq!(worst_index(&[1.0, -5.0, 3.0]), 1);
+        assert_eq!(worst_index(&[1.0, f64::INFINITY, f64::NAN, 9.0]), 2);
+        assert_eq!(worst_index(&[f64::NAN, f64::NAN]), 0);
+    }
+
+    #[test]
+    fn messages_name_time_latitude_and_value() {
+        let e = SolverError::StepCollapsed {
+            t: 12.5,
+            h: 1e-13,
+            band: 3,
+            lat: -41.25,
+            value: 2.5e20,
+            rate: -7.0e9,
+        }
+        .to_string();
+        for frag in [
+            "model year 12.500000",
+            "band 3",
+            "latitude -41.25 degrees",
+            "2.500e20 K",
+            "-7.000e9 K per year",
+        ] {
+            assert!(e.contains(frag), "{frag}: {e}");
+        }
+        assert_eq!(kelvin(288.14159), "288.142");
+        assert_eq!(kelvin(f64::NAN), "NaN");
+    }
+}
