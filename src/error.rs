@@ -18,8 +18,8 @@ pub enum Error {
     /// Output could not be created where asked (exit 2).
     #[error("output error: {0}")]
     OutputPath(OutputError),
-    /// Other output failure (exit 1).
-    #[error("output error: {0}")]
+    /// Other output failure (exit 1); a full disk is said first, on one line.
+    #[error("output error: {}", output_message(.0))]
     Output(OutputError),
     /// Numerical failure (exit 3).
     #[error("numerical failure: {0}")]
@@ -67,5 +67,16 @@ impl Error {
             Error::Interrupted { signal, .. } => 128 + signal,
             Error::Output(_) | Error::Other(_) => 1,
         }
+    }
+}
+
+/// An output failure as one line, leading with "no space left on device" when the disk is
+/// full (HDF5 reports errno 28 deep inside a multi-line message).
+fn output_message(e: &OutputError) -> String {
+    let text = e.to_string().replace('\n', " ");
+    if text.contains("errno = 28") || text.contains("No space left on device") {
+        format!("no space left on device: {text}")
+    } else {
+        text
     }
 }

@@ -22,6 +22,7 @@
 //! exponential pieces. The series is checked to cover the whole run when it is loaded (unless
 //! told to hold its end values), so evaluation during a run never fails.
 
+use crate::csv::{shorten, CsvError, Reader};
 use crate::longwave::co2_forcing;
 use crate::model::{DriverSource, Drivers};
 use std::f64::consts::PI;
@@ -47,6 +48,9 @@ pub const TIME_VARYING_KEYS: &[&str] = &[
 
 /// Largest forcing file accepted, rows (refused up front beyond it).
 pub const MAX_ROWS: usize = 20_000_000;
+
+/// Largest forcing file accepted, bytes (refused before it is read).
+pub const MAX_FILE_BYTES: u64 = 2 * 1024 * 1024 * 1024;
 
 /// Every name a CSV column or piece target may have, for messages.
 pub fn allowed_names() -> String {
@@ -87,6 +91,15 @@ pub struct ForcingError {
     pub message: String,
 }
 
+impl From<CsvError> for ForcingError {
+    fn from(e: CsvError) -> Self {
+        ForcingError {
+            line: e.line,
+            message: e.message,
+        }
+    }
+}
+
 /// A parsed forcing history.
 #[derive(Debug, Clone, PartialEq)]
 pub struct ForcingSeries {
@@ -112,32 +125,24 @@ fn value_range(name: &str) -> (fn(f64) -> bool, &'static str) {
 }
 
 impl ForcingSeries {
-    /// Parse CSV text.
+    /// Parse CSV text (the dialect of [`crate::csv`]).
     pub fn parse(
         text: &str,
         interpolation: Interpolation,
         hold: bool,
     ) -> Result<ForcingSeries, ForcingError> {
         let err = |line: usize, m: String| ForcingError { line, message: m };
-        let mut lines = text
-            .lines()
-            .enumerate()
-            .map(|(i, l)| (i + 1, l.trim()))
-            .filter(|(_, l)| !l.is_empty() && !l.starts_with('#'));
-        let (hl, header) = lines.next().ok_or_else(|| {
-            err(
-                1,
-                "empty forcing file (no header); expected a header such as `year,co2_ppm`".into(),
-            )
-        })?;
-        let names: Vec<&str> = header.split(',').map(str::trim).collect();
-        if names.first() != Some(&"year") {
+        let mut reader = Reader::new(
+            text,
+            "empty forcing file (no header); expected a header such as `year,co2_ppm`",
+        )
+        .map_err(ForcingError::from)?;
+        let hl = reader.header_line;
+        let names = reader.names.clone();
+        if names[0] != "year" {
             return Err(err(
                 hl,
-                format!(
-                    "the first column must be `year`, found `{}`",
-                    names.first().unwrap_or(&"")
-                ),
+                format!("the first column must be `year`, found `{}`", shorten(names[0])),
             ));
         }
         if names.len() < 2 {
@@ -150,7 +155,7 @@ impl ForcingSeries {
             if !COLUMNS.contains(n) && !TIME_VARYING_KEYS.contains(n) {
                 return Err(err(
                     hl,
-                    format!("unknown column `{n}`; allowed: {}", allowed_names()),
+                    format!("unknown column `{}`; allowed: {}", shorten(n), allowed_names()),
                 ));
             }
             if names[1..k].iter().any(|m| canonical(m) == canonical(n)) {
@@ -160,50 +165,38 @@ impl ForcingSeries {
                 ));
             }
         }
-        let ncol = names.len();
         let mut years = Vec::new();
-        let mut cols: Vec<Vec<f64>> = vec![Vec::new(); ncol - 1];
-        for (ln, line) in lines {
+        let mut cols: Vec<Vec<f64>> = vec![Vec::new(); names.len() - 1];
+        let mut row = Vec::with_capacity(names.len());
+        while let Some(ln) = reader.next_row(&mut row).map_err(ForcingError::from)? {
             if years.len() >= MAX_ROWS {
-                return Err(err(ln, format!("more than {MAX_ROWS} rows; that is the limit")));
-            }
-            let fields: Vec<&str> = line.split(',').map(str::trim).collect();
-            if fields.len() != ncol {
                 return Err(err(
                     ln,
-                    format!("expected {ncol} fields ({header}), found {}", fields.len()),
+                    format!("more than {MAX_ROWS} data rows; that is the limit of a forcing file"),
                 ));
             }
-            for (k, f) in fields.iter().enumerate() {
-                let v: f64 = f
-                    .parse()
-                    .map_err(|_| err(ln, format!("`{f}` in column `{}` is not a number", names[k])))?;
-                if !v.is_finite() {
-                    return Err(err(ln, format!("`{f}` in column `{}` is not finite", names[k])));
+            let v = row[0];
+            if let Some(&prev) = years.last() {
+                if v <= prev {
+                    return Err(err(
+                        ln,
+                        format!("years must increase strictly: {v} follows {prev}"),
+                    ));
                 }
-                if k == 0 {
-                    if let Some(&prev) = years.last() {
-                        if v <= prev {
-                            return Err(err(
-                                ln,
-                                format!("years must increase strictly: {v} follows {prev}"),
-                            ));
-                        }
-                    }
-                    years.push(v);
-                } else {
-                    let (ok, allowed) = value_range(names[k]);
-                    if !ok(v) {
-                        return Err(err(
-                            ln,
-                            format!(
-                                "{v} in column `{}` is out of range (allowed: {allowed})",
-                                names[k]
-                            ),
-                        ));
-                    }
-                    cols[k - 1].push(v);
+            }
+            years.push(v);
+            for (k, &v) in row.iter().enumerate().skip(1) {
+                let (ok, allowed) = value_range(names[k]);
+                if !ok(v) {
+                    return Err(err(
+                        ln,
+                        format!(
+                            "{v} in column `{}` is out of range (allowed: {allowed})",
+                            names[k]
+                        ),
+                    ));
                 }
+                cols[k - 1].push(v);
             }
         }
         if years.is_empty() {

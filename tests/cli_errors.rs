@@ -18,7 +18,7 @@ const BASE: &str = "[grid]\nbands = 6\n[time]\nyears = 2\n";
 struct Case {
     name: &'static str,
     config: String,
-    files: Vec<(&'static str, &'static str)>,
+    files: Vec<(&'static str, Vec<u8>)>,
     args: Vec<String>,
     expect: Vec<&'static str>,
 }
@@ -191,17 +191,215 @@ fn bad_inputs_exit_2_with_a_clear_message_and_no_output() {
         &[],
         &["olr.csv:4", "increase strictly"],
     );
-    t.files.push(("olr.csv", table_bad));
+    t.files.push(("olr.csv", table_bad.into()));
     cases.push(t);
+    // Forcing CSVs and OLR tables: (config section, file name, contents, expected fragments).
+    let forcing = "[forcing]\nfile = \"f.csv\"\n";
+    let table = "[longwave]\nkind = \"table\"\ntable = \"f.csv\"\n";
+    let file_cases: Vec<(&'static str, &str, &[u8], Vec<&'static str>)> = vec![
+        (
+            "forcing empty",
+            forcing,
+            b"",
+            vec!["f.csv:1", "empty forcing file", "year,co2_ppm"],
+        ),
+        (
+            "forcing duplicate column",
+            forcing,
+            b"year,co2_ppm,greenhouse.co2_ppm\n0,1,2\n",
+            vec!["f.csv:1", "appears twice"],
+        ),
+        (
+            "forcing unknown column",
+            forcing,
+            b"year,carbon\n0,1\n",
+            vec!["f.csv:1", "unknown column `carbon`", "allowed: co2_ppm"],
+        ),
+        (
+            "forcing without year",
+            forcing,
+            b"co2_ppm\n280\n",
+            vec!["f.csv:1", "first column must be `year`"],
+        ),
+        (
+            "forcing years not increasing",
+            forcing,
+            b"year,co2_ppm\n0,280\n2,290\n1,300\n",
+            vec!["f.csv:4", "increase strictly", "1 follows 2"],
+        ),
+        (
+            "forcing infinite value",
+            forcing,
+            b"year,co2_ppm\n0,280\n2,inf\n",
+            vec!["f.csv:3", "`inf` in column `co2_ppm`", "finite"],
+        ),
+        (
+            "forcing negative CO2",
+            forcing,
+            b"year,co2_ppm\n0,-5\n2,280\n",
+            vec!["f.csv:2", "co2_ppm", "above 0"],
+        ),
+        (
+            "forcing extra field",
+            forcing,
+            b"year,co2_ppm\n0,280,1\n",
+            vec!["f.csv:2", "expected 2 fields (year,co2_ppm), found 3"],
+        ),
+        (
+            "forcing header only",
+            forcing,
+            b"year,co2_ppm\n",
+            vec!["f.csv:1", "no data rows"],
+        ),
+        (
+            "forcing not UTF-8",
+            forcing,
+            b"year,co2_ppm\n0,280\n2,2\xff0\n",
+            vec!["f.csv", "not UTF-8", "line 3"],
+        ),
+        (
+            "table empty",
+            table,
+            b"",
+            vec!["f.csv:1", "empty OLR table", "temperature_k,olr_wm2"],
+        ),
+        (
+            "table wrong header",
+            table,
+            b"temp,olr\n200,100\n300,200\n",
+            vec![
+                "f.csv:1",
+                "header is `temp,olr`",
+                "expected `temperature_k,olr_wm2`",
+            ],
+        ),
+        (
+            "table one row",
+            table,
+            b"temperature_k,olr_wm2\n200,100\n",
+            vec!["f.csv:1", "at least two data rows"],
+        ),
+        (
+            "table negative temperature",
+            table,
+            b"temperature_k,olr_wm2\n-5,100\n300,200\n",
+            vec!["f.csv:2", "temperature_k", "above 0"],
+        ),
+        (
+            "table NaN OLR",
+            table,
+            b"temperature_k,olr_wm2\n200,nan\n300,200\n",
+            vec!["f.csv:2", "`nan` in column `olr_wm2`", "finite"],
+        ),
+        (
+            "table huge OLR",
+            table,
+            b"temperature_k,olr_wm2\n200,1e9\n300,200\n",
+            vec!["f.csv:2", "olr_wm2", "from -1000000 to 1000000"],
+        ),
+        (
+            "table text",
+            table,
+            b"temperature_k,olr_wm2\n200,100\n3OO,200\n",
+            vec!["f.csv:3", "`3OO` in column `temperature_k` is not a number"],
+        ),
+    ];
+    for (name, section, body, expect) in file_cases {
+        let mut c = case(name, section, &[], &expect);
+        c.files.push(("f.csv", body.to_vec()));
+        cases.push(c);
+    }
+    // Configs and --set.
+    cases.extend([
+        case(
+            "--set too many bands",
+            "",
+            &["--set", "grid.bands=100000"],
+            &["--set grid.bands=100000", "from 1 to 20000"],
+        ),
+        case(
+            "--set wrong type",
+            "",
+            &["--set", "grid.bands=\"many\""],
+            &["grid.bands", "expected a whole number"],
+        ),
+        case(
+            "--set empty value",
+            "",
+            &["--set", "albedo.ice="],
+            &["albedo.ice", "expected a number"],
+        ),
+        case(
+            "--set empty key",
+            "",
+            &["--set", "=5"],
+            &["--set =5", "dotted name"],
+        ),
+        case(
+            "--set below a value",
+            "",
+            &["--set", "time.years.x=1"],
+            &["time.years.x", "`time.years` is a value, not a table"],
+        ),
+        case(
+            "--set unknown method",
+            "",
+            &["--set", "time.method=rk4"],
+            &["time.method", "\"rk4\"", "\"implicit\", \"dopri5\""],
+        ),
+        case(
+            "--set negative diffusivity",
+            "",
+            &["--set", "transport.diffusivity=-1"],
+            &["transport.diffusivity", "-1", "from 0 to"],
+        ),
+        case(
+            "duplicate key",
+            "[albedo]\nice = 0.5\nice = 0.6\n",
+            &[],
+            &["duplicate key `ice`", "line"],
+        ),
+        case(
+            "piece on a fixed key",
+            "[[forcing.pieces]]\ntarget = \"albedo.ice\"\nkind = \"step\"\nstart_year = 0\nsize = 0.1\n",
+            &[],
+            &["forcing.pieces[0].target", "albedo.ice", "allowed: co2_ppm"],
+        ),
+        case(
+            "piece of unknown kind",
+            "[[forcing.pieces]]\ntarget = \"co2_ppm\"\nkind = \"wiggle\"\nstart_year = 0\n",
+            &[],
+            &["forcing.pieces[0].kind", "\"wiggle\"", "\"ramp\""],
+        ),
+        case(
+            "obliquity out of range",
+            "[insolation]\nkind = \"seasonal\"\nobliquity_deg = 200\n",
+            &[],
+            &["insolation.obliquity_deg", "200", "from 0 to 180"],
+        ),
+        case(
+            "no ensemble members",
+            "[ensemble]\nmembers = 0\n",
+            &[],
+            &["ensemble.members", "from 1 to"],
+        ),
+        case(
+            "forcing file is a directory",
+            "[forcing]\nfile = \".\"\n",
+            &[],
+            &["forcing.file", "is a directory"],
+        ),
+    ]);
     for c in cases.iter_mut() {
         if c.name.starts_with("forcing file text") {
-            c.files.push(("f.csv", "year,co2_ppm\n0,280\n1,2x0\n"));
+            c.files.push(("f.csv", b"year,co2_ppm\n0,280\n1,2x0\n".to_vec()));
         }
         if c.name.starts_with("forcing file not covering") {
-            c.files.push(("short.csv", "year,co2_ppm\n0,280\n1,300\n"));
+            c.files
+                .push(("short.csv", b"year,co2_ppm\n0,280\n1,300\n".to_vec()));
         }
     }
-    assert!(cases.len() >= 15);
+    assert!(cases.len() >= 40, "{} cases", cases.len());
     for (k, c) in cases.iter().enumerate() {
         let dir = tempdir(&format!("{k}"));
         let cfg = dir.join("case.toml");

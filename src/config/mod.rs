@@ -6,7 +6,7 @@
 
 pub mod raw;
 pub mod spec;
-mod table;
+pub mod table;
 mod validate;
 
 use std::path::{Path, PathBuf};
@@ -26,7 +26,7 @@ pub enum ConfigError {
         source: std::io::Error,
     },
     /// TOML syntax error (the message carries line and column).
-    #[error("{path}: TOML syntax error: {message}")]
+    #[error("{}: TOML syntax error: {}", one_line(.path), one_line(.message))]
     Syntax {
         /// The file.
         path: String,
@@ -34,7 +34,7 @@ pub enum ConfigError {
         message: String,
     },
     /// Unknown key or wrong type.
-    #[error("{path}: key `{key}`: {message}")]
+    #[error("{}: key `{}`: {}", one_line(.path), one_line(.key), one_line(.message))]
     Key {
         /// The file.
         path: String,
@@ -44,7 +44,7 @@ pub enum ConfigError {
         message: String,
     },
     /// A value out of its allowed range.
-    #[error("{path}: key `{key}` = {value}: {allowed}")]
+    #[error("{}: key `{}` = {}: {}", one_line(.path), one_line(.key), one_line(.value), one_line(.allowed))]
     Range {
         /// The file.
         path: String,
@@ -56,7 +56,7 @@ pub enum ConfigError {
         allowed: String,
     },
     /// A malformed `--set` argument.
-    #[error("--set {arg}: {message}")]
+    #[error("--set {}: {}", one_line(.arg), one_line(.message))]
     Set {
         /// The argument.
         arg: String,
@@ -64,13 +64,31 @@ pub enum ConfigError {
         message: String,
     },
     /// A data file referenced by the config (OLR table) is bad.
-    #[error("{path}: {message}")]
+    #[error("{}: {}", one_line(.path), one_line(.message))]
     DataFile {
         /// The file (with `:line` when known).
         path: String,
         /// What is wrong.
         message: String,
     },
+}
+
+/// `s` with control characters (newlines, tabs, NUL...) escaped, so every message is one line.
+pub fn one_line(s: &str) -> std::borrow::Cow<'_, str> {
+    if s.chars().any(char::is_control) {
+        s.chars()
+            .map(|c| {
+                if c.is_control() {
+                    c.escape_default().to_string()
+                } else {
+                    c.to_string()
+                }
+            })
+            .collect::<String>()
+            .into()
+    } else {
+        s.into()
+    }
 }
 
 /// A loaded configuration: the resolved raw values (every default filled in), the typed spec,
@@ -130,12 +148,39 @@ impl Loaded {
 
 /// Load a config file and apply `--set KEY=VALUE` overrides.
 pub fn load(path: &Path, sets: &[String]) -> Result<Loaded, ConfigError> {
-    let text = std::fs::read_to_string(path).map_err(|source| ConfigError::Read {
+    let text = read_config_text(path).map_err(|source| ConfigError::Read {
         path: path.to_path_buf(),
         source,
     })?;
     let base = path.parent().map(Path::to_path_buf).unwrap_or_default();
     load_str(&text, &path.display().to_string(), &base, sets)
+}
+
+/// Largest config file accepted, bytes (a longer one, or a device such as /dev/zero, is
+/// refused after reading one byte past this).
+pub const MAX_CONFIG_BYTES: u64 = 16 * 1024 * 1024;
+
+/// The config file's text, refusing more than [`MAX_CONFIG_BYTES`] and non-UTF-8 text.
+fn read_config_text(path: &Path) -> std::io::Result<String> {
+    use std::io::Read;
+    if std::fs::metadata(path)?.is_dir() {
+        return Err(std::io::Error::other("it is a directory"));
+    }
+    let mut bytes = Vec::new();
+    std::fs::File::open(path)?
+        .take(MAX_CONFIG_BYTES + 1)
+        .read_to_end(&mut bytes)?;
+    if bytes.len() as u64 > MAX_CONFIG_BYTES {
+        return Err(std::io::Error::other(format!(
+            "longer than the limit of {} MiB",
+            MAX_CONFIG_BYTES >> 20
+        )));
+    }
+    String::from_utf8(bytes).map_err(|e| {
+        let at = e.utf8_error().valid_up_to();
+        let line = e.as_bytes()[..at].iter().filter(|&&b| b == b'\n').count() + 1;
+        std::io::Error::other(format!("not UTF-8 text (invalid byte at line {line})"))
+    })
 }
 
 /// Load from TOML text (`source` names it in messages).
@@ -188,7 +233,7 @@ fn from_tree(mut tree: toml::Value, source: &str, base_dir: &Path) -> Result<Loa
         ConfigError::Key {
             path: source.to_string(),
             key: if key == "." { "(top level)".into() } else { key },
-            message: e.into_inner().message().to_string(),
+            message: plain_types(e.into_inner().message()),
         }
     })?;
     let (resolved_raw, spec) = validate::validate(raw, source, base_dir)?;
@@ -203,6 +248,14 @@ fn from_tree(mut tree: toml::Value, source: &str, base_dir: &Path) -> Result<Loa
         resolved,
         spec,
     })
+}
+
+/// Serde's type names in plain words: "expected f64" reads "expected a number".
+fn plain_types(message: &str) -> String {
+    message
+        .replace("expected f64", "expected a number")
+        .replace("expected i64", "expected a whole number")
+        .replace("expected a boolean", "expected true or false")
 }
 
 /// Integers become floats except at integer keys, so `solar_constant = 1361` reads as written.
@@ -269,9 +322,13 @@ fn set_dotted(tree: &mut toml::Value, key: &str, value: toml::Value) -> Result<(
     let mut cur = tree;
     let parts: Vec<&str> = key.split('.').collect();
     for (k, part) in parts.iter().enumerate() {
-        let table = cur
-            .as_table_mut()
-            .ok_or_else(|| format!("`{}` is not a table", parts[..k].join(".")))?;
+        let table = cur.as_table_mut().ok_or_else(|| {
+            format!(
+                "`{}` is a value, not a table, so `{key}` cannot be set; set `{}` itself",
+                parts[..k].join("."),
+                parts[..k].join(".")
+            )
+        })?;
         if k + 1 == parts.len() {
             table.insert(part.to_string(), value);
             return Ok(());

@@ -555,19 +555,14 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
         Some(rel) => {
             let path = base_dir.join(&rel);
             let shown = path.display().to_string();
-            let meta = std::fs::metadata(&path).map_err(|e| ConfigError::DataFile {
+            let text = crate::csv::read_text(
+                &path,
+                crate::forcing::MAX_FILE_BYTES,
+                "forcing file (forcing.file)",
+            )
+            .map_err(|message| ConfigError::DataFile {
                 path: shown.clone(),
-                message: format!("cannot read forcing file (forcing.file): {e}"),
-            })?;
-            if meta.len() > 2 * 1024 * 1024 * 1024 {
-                return Err(ConfigError::DataFile {
-                    path: shown,
-                    message: format!("forcing file is {} bytes; the limit is 2 GiB", meta.len()),
-                });
-            }
-            let text = std::fs::read_to_string(&path).map_err(|e| ConfigError::DataFile {
-                path: shown.clone(),
-                message: format!("cannot read forcing file (forcing.file): {e}"),
+                message,
             })?;
             let series = crate::forcing::ForcingSeries::parse(&text, interp, hold)
                 .and_then(|s| s.check_covers(years).map(|_| s))

@@ -7,7 +7,7 @@
 //!
 //! Reference: Deuflhard, Newton Methods for Nonlinear Problems (2004), chapter 3.
 
-use crate::integrate::{check_state, SolverError};
+use crate::integrate::{band_latitude, check_state, worst_index, SolverError};
 use crate::linalg::{Tridiag, TridiagLu};
 use crate::model::{Model, Workspace};
 
@@ -47,6 +47,18 @@ fn max_abs(v: &[f64]) -> f64 {
     v.iter().fold(0.0, |m, x| m.max(x.abs()))
 }
 
+/// Where the residual `g` (W m-2) is worst at state `y` (K), for messages: band, latitude,
+/// temperature and residual.
+fn worst_residual(model: &Model, t_years: f64, y: &[f64], g: &[f64]) -> String {
+    let i = worst_index(g);
+    format!(
+        "at model year {t_years}, largest residual {:.3e} W m-2 in band {i} at latitude {:.2} degrees (temperature {:.3} K)",
+        g[i],
+        band_latitude(model, i),
+        y[i]
+    )
+}
+
 /// Solve `G(T) = 0` at model time `t_years` from `start`.
 pub fn newton(
     model: &Model,
@@ -81,7 +93,8 @@ pub fn newton(
         model.heating_jacobian(t_years, &y, &mut ws, &mut jac);
         lu.factor(&jac).map_err(|e| {
             fail(format!(
-                "singular Jacobian at iteration {it} ({e}); the state may sit on a fold"
+                "singular Jacobian at iteration {it} ({e}); the state may sit on a fold; {}",
+                worst_residual(model, t_years, &y, &g)
             ))
         })?;
         for i in 0..n {
@@ -111,8 +124,13 @@ pub fn newton(
             lambda *= 0.5;
         }
         if !accepted {
-            // Round-off floor: accept a residual near machine precision of the terms.
-            let scale = 1e-12 * (1.0 + max_abs(&model.budget(t_years, &y, &mut ws).absorbed));
+            // Round-off floor: accept a residual near machine precision of the terms. The
+            // transport term is a difference of neighbours scaled by about D n^2, so its
+            // round-off is about eps |J_ii T_i| (the residual floor grows as n^2: 2e-5 W m-2
+            // at 20000 bands, far above the default tolerance).
+            let transport = (0..n).fold(0.0_f64, |m, i| m.max((jac.diag[i] * y[i]).abs()));
+            let scale = 1e-12 * (1.0 + max_abs(&model.budget(t_years, &y, &mut ws).absorbed))
+                + 4.0 * f64::EPSILON * transport;
             if r <= scale.max(opts.tolerance_wm2 * 10.0) {
                 return Ok(NewtonResult {
                     state: y,
@@ -121,7 +139,8 @@ pub fn newton(
                 });
             }
             return Err(fail(format!(
-                "no descent at iteration {it}; largest residual {r:.3e} W m-2"
+                "no descent at iteration {it}; {}",
+                worst_residual(model, t_years, &y, &g)
             )));
         }
     }
@@ -134,7 +153,8 @@ pub fn newton(
         });
     }
     Err(fail(format!(
-        "{} iterations left the largest residual at {r:.3e} W m-2 (equilibrium.max_iterations)",
-        opts.max_iterations
+        "{} iterations (equilibrium.max_iterations) ended {}",
+        opts.max_iterations,
+        worst_residual(model, t_years, &y, &g)
     )))
 }

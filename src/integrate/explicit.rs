@@ -1,15 +1,15 @@
 //! Dormand-Prince 5(4) and 8(5,3) through the `ode_solvers` crate.
 //!
-//! `ode_solvers` keeps every output point in memory until a call ends, so the run is integrated
-//! one output interval at a time (sparse output: start and end only), which keeps memory flat
-//! in run length. Stiffness detection is on by default: this model is stiff at fine grids
+//! `ode_solvers` keeps every accepted step of a call in memory (its "sparse" output too), so the
+//! run is integrated one output interval at a time and each interval in calls capped to about
+//! 64 MiB of steps, which keeps memory flat in run length and step count. Stiffness detection is on by default: this model is stiff at fine grids
 //! (the fastest transport mode decays in hours), and the error message points to the implicit
 //! scheme.
 //!
 //! Reference: Hairer, Norsett and Wanner, Solving Ordinary Differential Equations I (2nd ed.,
 //! 1993), sections II.5 and II.10 (the codes `ode_solvers` follows).
 
-use super::{check_state, Integrator, SolverError, Stats};
+use super::{band_latitude, check_state, step_collapsed, worst_index, Integrator, SolverError, Stats};
 use crate::model::{Model, Workspace};
 use ode_solvers::dop_shared::IntegrationError;
 use ode_solvers::{DVector, Dop853, Dopri5, OutputType, System};
@@ -36,12 +36,31 @@ impl Scheme {
 struct Rhs<'m> {
     model: &'m Model,
     ws: RefCell<Workspace>,
+    last: &'m RefCell<Last>,
+}
+
+/// The last state an explicit scheme evaluated, for the message when it fails inside an
+/// output interval, and the count of evaluations.
+struct Last {
+    /// Time, years.
+    t: f64,
+    /// Temperatures, K.
+    y: Vec<f64>,
+    /// Their rates, K per year.
+    rate: Vec<f64>,
+    /// Right-hand-side evaluations.
+    evals: u64,
 }
 
 impl System<f64, DVector<f64>> for Rhs<'_> {
     fn system(&self, t: f64, y: &DVector<f64>, dy: &mut DVector<f64>) {
         self.model
             .tendency(t, y.as_slice(), &mut self.ws.borrow_mut(), dy.as_mut_slice());
+        let mut last = self.last.borrow_mut();
+        last.t = t;
+        last.y.copy_from_slice(y.as_slice());
+        last.rate.copy_from_slice(dy.as_slice());
+        last.evals += 1;
     }
 }
 
@@ -83,16 +102,41 @@ impl<'m> Explicit<'m> {
         }
     }
 
+    /// Integrate to `t_end` in calls of at most [`steps_per_call`] steps each.
     fn chunk(&mut self, t_end: f64) -> Result<(), SolverError> {
+        let n = self.model.len();
+        let per_call = steps_per_call(n);
+        while self.t < t_end {
+            let left = self.max_steps.saturating_sub(self.stats.steps);
+            if left == 0 {
+                return Err(SolverError::TooManySteps {
+                    t: self.t,
+                    limit: self.max_steps,
+                });
+            }
+            if self.call(t_end, left.min(per_call))? {
+                self.t = t_end;
+            }
+        }
+        check_state(self.model, self.t, self.y.as_slice())
+    }
+
+    /// One `ode_solvers` call towards `t_end` of at most `cap` steps. Returns whether it got
+    /// there (otherwise the state and time are where it stopped).
+    fn call(&mut self, t_end: f64, cap: u64) -> Result<bool, SolverError> {
+        let n = self.model.len();
+        let last = RefCell::new(Last {
+            t: self.t,
+            y: self.y.as_slice().to_vec(),
+            rate: vec![0.0; n],
+            evals: 0,
+        });
         let rhs = Rhs {
             model: self.model,
-            ws: RefCell::new(Workspace::new(self.model.len())),
+            ws: RefCell::new(Workspace::new(n)),
+            last: &last,
         };
         let n_stiff = if self.stiffness_check { 1000 } else { u32::MAX };
-        let left = self
-            .max_steps
-            .saturating_sub(self.stats.steps)
-            .min(u32::MAX as u64) as u32;
         let span = t_end - self.t;
         let h_max = self.max_step.min(span);
         // rtol 0 and atol = tolerance: an absolute error control in K, as for the implicit scheme.
@@ -112,48 +156,79 @@ impl<'m> Explicit<'m> {
                     10.0,
                     h_max,
                     0.0,
-                    left.max(1),
+                    cap.clamp(1, u32::MAX as u64) as u32,
                     n_stiff,
                     OutputType::Sparse,
                 );
                 let res = s.integrate();
+                // Sparse output holds the start and then every accepted step.
+                let accepted = s.y_out().len().saturating_sub(1) as u64;
                 let y = s.y_out().last().cloned();
-                (res, y)
+                (res, y, accepted)
             }};
         }
-        let (res, y) = match self.scheme {
+        let (res, y, accepted) = match self.scheme {
             Scheme::Dopri5 => go!(Dopri5),
             Scheme::Dop853 => go!(Dop853),
         };
+        let last = last.into_inner();
+        self.stats.rhs_evals += last.evals;
+        if res.is_err() {
+            // Name the state the scheme last saw: a blow-up there is reported as such.
+            check_state(self.model, last.t, &last.y)?;
+        }
+        let y = y.ok_or_else(|| SolverError::NoConvergence {
+            what: self.scheme.name().into(),
+            detail: format!("no output from model year {:.6}", self.t),
+        })?;
         match res {
             Ok(st) => {
                 self.stats.steps += st.accepted_steps as u64;
                 self.stats.rejected += st.rejected_steps as u64;
-                self.stats.rhs_evals += st.num_eval as u64;
-            }
-            Err(IntegrationError::StiffnessDetected { x }) => {
-                return Err(SolverError::Stiff {
-                    method: self.scheme.name(),
-                    t: x,
-                })
+                self.y = y;
+                Ok(true)
             }
             Err(IntegrationError::MaxNumStepReached { x, .. }) => {
-                return Err(SolverError::TooManySteps {
+                self.stats.steps += accepted;
+                if cap >= self.max_steps.saturating_sub(self.stats.steps - accepted) {
+                    return Err(SolverError::TooManySteps {
+                        t: x,
+                        limit: self.max_steps,
+                    });
+                }
+                if accepted == 0 {
+                    // Every step of the call was rejected.
+                    return Err(step_collapsed(self.model, x, 0.0, &last.y, &last.rate));
+                }
+                self.y = y;
+                self.t = x;
+                Ok(false)
+            }
+            Err(IntegrationError::StiffnessDetected { x }) => {
+                let band = worst_index(&last.rate);
+                Err(SolverError::Stiff {
+                    method: self.scheme.name(),
                     t: x,
-                    limit: self.max_steps,
+                    band,
+                    lat: band_latitude(self.model, band),
+                    value: last.y[band],
+                    rate: last.rate[band],
                 })
             }
             Err(IntegrationError::StepSizeUnderflow { x }) => {
-                return Err(SolverError::StepCollapsed { t: x, h: 0.0 })
+                // ode_solvers stops when the step falls below 10 eps |t|.
+                let h = 10.0 * f64::EPSILON * x.abs();
+                Err(step_collapsed(self.model, x, h, &last.y, &last.rate))
             }
         }
-        self.y = y.ok_or_else(|| SolverError::NoConvergence {
-            what: self.scheme.name().into(),
-            detail: "no output".into(),
-        })?;
-        self.t = t_end;
-        check_state(self.model, self.t, self.y.as_slice())
     }
+}
+
+/// Steps of one `ode_solvers` call: it keeps every accepted state of a call in memory, so a
+/// call is capped to about 64 MiB of them (`8 n` bytes plus about 64 of overhead each), and
+/// the driver continues from where a capped call stopped.
+fn steps_per_call(n: usize) -> u64 {
+    ((64usize << 20) / (8 * n + 64)).max(1000) as u64
 }
 
 impl Integrator for Explicit<'_> {

@@ -16,7 +16,7 @@
 //!
 //! Reference: Verwer, Spee, Blom and Hundsdorfer (1999, SIAM J. Sci. Comput. 20, 1456-1480).
 
-use super::{check_state, Integrator, SolverError, Stats};
+use super::{check_state, step_collapsed, Integrator, SolverError, Stats};
 use crate::linalg::{Tridiag, TridiagLu};
 use crate::model::{Model, Workspace, YEAR_SECONDS};
 
@@ -294,7 +294,7 @@ impl<'m> Ros2<'m> {
                 StepPolicy::Adaptive { .. } => {
                     self.h = h * fac;
                     if self.h < 1e-12 * (1.0 + self.t.abs()) {
-                        return Err(SolverError::StepCollapsed { t: self.t, h: self.h });
+                        return Err(step_collapsed(model, self.t, self.h, &self.y, &self.f));
                     }
                 }
             }
