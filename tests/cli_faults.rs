@@ -54,7 +54,7 @@ fn unwritable_places_exit_2_and_leave_nothing() {
     let (code, err) = icefold(&dir, &["run", "c.toml", "-o", "plainfile/out.nc"]);
     assert_eq!(code, Some(2), "{err}");
     assert!(
-        err.contains("plainfile/out.nc") && err.contains("plainfile"),
+        err.contains("plainfile/out.nc") && err.contains("is a file, not a directory"),
         "{err}"
     );
     assert_eq!(err.trim().lines().count(), 1, "{err}");

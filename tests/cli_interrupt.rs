@@ -164,6 +164,17 @@ fn interrupted_sweep_writes_its_finished_steps_with_complete_0() {
         r.attr_f64("control_reached").unwrap(),
         r.read_f64("control").unwrap().last().copied()
     );
+    drop(r);
+    let shown = icefold(&dir, &["inspect", "sw.nc"]);
+    ok(&shown);
+    let text = String::from_utf8_lossy(&shown.stdout);
+    assert!(
+        text.contains(&format!(
+            "complete:   NO (stopped after sweep step {done}, control"
+        )),
+        "{text}"
+    );
+    assert!(text.contains("stopped by: SIGINT"), "{text}");
 }
 
 #[test]
@@ -238,9 +249,60 @@ fn sigterm_mid_ensemble_keeps_the_finished_members_and_exits_143() {
     assert!((4..20_000).contains(&done), "{done}");
     assert_eq!(r.read_f64("member").unwrap().len() as i64, done);
     assert_eq!(r.attr_i64("members_total").unwrap(), Some(20_000));
+    let shown = icefold(&dir, &["inspect", "e.nc"]);
+    ok(&shown);
+    let text = String::from_utf8_lossy(&shown.stdout);
+    assert!(
+        text.contains(&format!("complete:   NO (stopped after {done} finished members)")),
+        "{text}"
+    );
     // An incomplete shard is not merged.
     let merged = icefold(&dir, &["merge", "e.nc", "-o", "m.nc"]);
     assert_eq!(merged.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&merged.stderr).contains("incomplete"));
     assert!(!dir.join("m.nc").exists());
+}
+
+#[test]
+fn interrupted_regimes_map_writes_its_finished_rows_with_complete_0() {
+    let dir = tempdir("regimes");
+    let cfg = config("regimes-classic.toml");
+    // 4000 rows take about a minute; the signal comes after 1.5 s, long after the handler is
+    // installed (the first thing the command does) and long before the map could finish.
+    let child = spawn(
+        &dir,
+        &[
+            "regimes",
+            &cfg,
+            "-o",
+            "map.nc",
+            "--threads",
+            "2",
+            "--set",
+            "regimes.rows=4000",
+        ],
+    );
+    std::thread::sleep(std::time::Duration::from_millis(1500));
+    signal(&child, libc::SIGINT);
+    let out = finish(child);
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(130), "{err}");
+    assert!(err.contains("rows"), "{err}");
+    let r = NcReader::open(&dir.join("map.nc")).unwrap();
+    assert_eq!(r.attr_i64("complete").unwrap(), Some(0));
+    assert_eq!(r.attr_i64("rows_total").unwrap(), Some(4000));
+    let done = r.attr_i64("rows_done").unwrap().unwrap();
+    assert!((1..4000).contains(&done), "{done}");
+    let p2 = r.read_f64("p2").unwrap();
+    assert_eq!(p2.len() as i64, done);
+    // The rows kept are finished rows in increasing order of the row control.
+    assert!(p2.windows(2).all(|w| w[0] < w[1]), "{p2:?}");
+    drop(r);
+    let shown = icefold(&dir, &["inspect", "map.nc"]);
+    ok(&shown);
+    let text = String::from_utf8_lossy(&shown.stdout);
+    assert!(
+        text.contains(&format!("complete:   NO (stopped after {done} of 4000 rows)")),
+        "{text}"
+    );
 }

@@ -11,6 +11,35 @@ pub fn main(path: &Path) -> Result<(), Error> {
     Ok(())
 }
 
+/// How far an incomplete file's job got, from the progress attributes each command writes.
+fn how_far(r: &NcReader) -> Result<String, Error> {
+    if let Some(t) = r.attr_f64("model_time_reached_years")? {
+        return Ok(format!("stopped at model time {t} years"));
+    }
+    if let Some(n) = r.attr_i64("steps_done")? {
+        let at = r.attr_f64("control_reached")?;
+        return Ok(format!(
+            "stopped after sweep step {n}{}",
+            at.map(|c| format!(", control {c}")).unwrap_or_default()
+        ));
+    }
+    if let Some(n) = r.attr_i64("seeds_done")? {
+        let total = r.attr_i64("seeds_total")?;
+        return Ok(format!(
+            "stopped after seed {n}{}",
+            total.map(|t| format!(" of {t}")).unwrap_or_default()
+        ));
+    }
+    if let Some(n) = r.attr_i64("rows_done")? {
+        let total = r.attr_i64("rows_total")?.unwrap_or(0);
+        return Ok(format!("stopped after {n} of {total} rows"));
+    }
+    if let Some(n) = r.attr_i64("members_done")? {
+        return Ok(format!("stopped after {n} finished members"));
+    }
+    Ok("stopped early; how far is not recorded".into())
+}
+
 /// The summary text.
 pub fn summary(r: &NcReader) -> Result<String, Error> {
     use std::fmt::Write;
@@ -39,15 +68,13 @@ pub fn summary(r: &NcReader) -> Result<String, Error> {
         "complete:   {}",
         match complete {
             Some(1) => "yes".to_string(),
-            Some(_) => format!(
-                "NO (stopped at model time {})",
-                r.attr_f64("model_time_reached_years")?
-                    .map(|t| format!("{t} years"))
-                    .unwrap_or_else(|| "unknown".into())
-            ),
+            Some(_) => format!("NO ({})", how_far(r)?),
             None => "unknown".into(),
         }
     );
+    if let Some(sig) = r.attr_str("interrupted_by")? {
+        let _ = writeln!(s, "stopped by: {sig}");
+    }
     if let Some(f) = r.attr_str("failure")? {
         let _ = writeln!(s, "failure:    {f}");
     }

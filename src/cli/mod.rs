@@ -211,6 +211,7 @@ fn dispatch(cli: Cli) -> Result<(), Error> {
             | Command::Sweep { .. }
             | Command::Branches { .. }
             | Command::Ensemble { .. }
+            | Command::Regimes { .. }
             | Command::Merge { .. }
             | Command::Demo { .. }
     ) {

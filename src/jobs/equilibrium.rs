@@ -104,11 +104,18 @@ pub fn family(cfg: &Loaded, section_key: &str, key: &str, ends: [f64; 2]) -> Res
     for p in ends {
         fam.model_at(p)?;
     }
-    // Does the key act? Compare the heating at the initial state for two values.
+    // Does the key act? Compare the heating for two values at a probe state warm at the
+    // equator and ice-covered at the poles (15 C - 30 K P2(x)), so that keys of the transport
+    // and of both albedo regions show even when the configured initial state is uniform.
     let p0 = fam.base_value();
     let p1 = if p0 == 0.0 { 1e-3 } else { p0 * (1.0 + 1e-3) };
     let (m0, m1) = (fam.model_at(p0)?, fam.model_at(p1)?);
-    let t = m0.initial_state(&cfg.spec.initial);
+    let t: Vec<f64> = m0
+        .grid
+        .x_centres
+        .iter()
+        .map(|&x| crate::longwave::ZERO_CELSIUS + 15.0 - 30.0 * crate::grid::p2(x))
+        .collect();
     let n = m0.len();
     let mut ws = crate::model::Workspace::new(n);
     let (mut g0, mut g1) = (vec![0.0; n], vec![0.0; n]);

@@ -5,6 +5,7 @@
 //! the same for any number of threads.
 
 use super::equilibrium::require_steady;
+use super::run::interrupted;
 use super::run::{build_model, provenance};
 use crate::cli::progress;
 use crate::config::spec::RegimesSpec;
@@ -15,7 +16,10 @@ pub use crate::equilibrium::regimes::RegimeMap;
 use crate::equilibrium::regimes::{fold_lines, regime_row, RegimeRow};
 use crate::error::Error;
 use crate::integrate::SolverError;
-use crate::output::regimes_file::write_regimes;
+use crate::interrupt::{signal_name, StopFlag};
+use crate::output::common::Completion;
+use crate::output::regimes_file::write_regimes_with;
+use crate::output::Attr;
 use rayon::prelude::*;
 use std::path::Path;
 
@@ -61,40 +65,32 @@ fn continuation_error(e: ContinuationError, row_key: &str, row_value: f64) -> Er
 /// and that the key changes the heating of a state with a pole-to-equator gradient (a
 /// uniform state would hide keys such as the diffusivity).
 fn check_key(cfg: &Loaded, section_key: &str, key: &str, ends: [f64; 2]) -> Result<(), ConfigError> {
-    let fam = Controlled::new(cfg, key).map_err(|e| match e {
-        ConfigError::Key { path, message, .. } => ConfigError::Key {
-            path,
-            key: section_key.to_string(),
-            message: format!("`{key}` is {message}"),
-        },
-        other => other,
-    })?;
-    let (m0, m1) = (fam.model_at(ends[0])?, fam.model_at(ends[1])?);
-    let n = m0.len();
-    let t: Vec<f64> = m0
-        .grid
-        .x_centres
-        .iter()
-        .map(|&x| 273.15 + 15.0 - 30.0 * crate::grid::p2(x))
-        .collect();
-    let mut ws = crate::model::Workspace::new(n);
-    let (mut g0, mut g1) = (vec![0.0; n], vec![0.0; n]);
-    m0.heating(0.0, &t, &mut ws, &mut g0);
-    m1.heating(0.0, &t, &mut ws, &mut g1);
-    if g0 == g1 {
-        return Err(ConfigError::Key {
-            path: cfg.source.clone(),
-            key: section_key.to_string(),
-            message: format!(
-                "`{key}` has no effect on this configuration (e.g. albedo.width_k with the step albedo, or transport.relaxation_rate with diffusive transport): choose a key the model uses"
-            ),
-        });
-    }
-    Ok(())
+    super::equilibrium::family(cfg, section_key, key, ends).map(|_| ())
 }
 
 /// Compute the map of a loaded config (no file).
 pub fn run_regimes(cfg: &Loaded, opts: RegimesOptions) -> Result<RegimeMap, Error> {
+    let (map, outcome) = compute(cfg, opts)?;
+    match outcome {
+        Outcome::Failed(e) => Err(e),
+        _ => Ok(map),
+    }
+}
+
+/// How a map computation ended.
+enum Outcome {
+    /// Every row finished.
+    Finished,
+    /// A stop was requested (signal number); the map holds the rows that finished.
+    Stopped(i32),
+    /// A row failed; the map holds the rows that finished.
+    Failed(Error),
+}
+
+/// The map of the rows that finish, and how the computation ended. Rows not yet started when
+/// a stop is requested (SIGINT/SIGTERM, see `interrupt`) are skipped; a failing row is left
+/// out and reported.
+fn compute(cfg: &Loaded, opts: RegimesOptions) -> Result<(RegimeMap, Outcome), Error> {
     require_steady(cfg)?;
     let spec = regimes_spec(cfg)?;
     // Both keys must act on the model and both ranges be allowed values.
@@ -122,38 +118,94 @@ pub fn run_regimes(cfg: &Loaded, opts: RegimesOptions) -> Result<RegimeMap, Erro
     } else {
         indicatif::ProgressBar::hidden()
     };
-    let work = || -> Result<Vec<RegimeRow>, Error> {
+    let stop = StopFlag;
+    let work = || -> Vec<Option<Result<RegimeRow, Error>>> {
         values
             .par_iter()
             .map(|&q| {
-                let row_cfg = cfg.with_value(&spec.row_control, q)?;
-                let fam = Controlled::new(&row_cfg, &spec.control)?;
-                let r = regime_row(&fam, copts, &columns, q)
-                    .map_err(|e| continuation_error(e, &spec.row_control, q));
+                if stop.requested().is_some() {
+                    return None;
+                }
+                let row = || -> Result<RegimeRow, Error> {
+                    let row_cfg = cfg.with_value(&spec.row_control, q)?;
+                    let fam = Controlled::new(&row_cfg, &spec.control)?;
+                    regime_row(&fam, copts, &columns, q)
+                        .map_err(|e| continuation_error(e, &spec.row_control, q))
+                };
+                let r = row();
                 pb.inc(1);
-                r
+                Some(r)
             })
             .collect()
     };
-    let rows = match &pool {
-        Some(p) => p.install(work)?,
-        None => work()?,
+    let results = match &pool {
+        Some(p) => p.install(work),
+        None => work(),
     };
     pb.finish_and_clear();
+    let mut rows = Vec::with_capacity(results.len());
+    let mut failure = None;
+    for r in results.into_iter().flatten() {
+        match r {
+            Ok(row) => rows.push(row),
+            Err(e) if failure.is_none() => failure = Some(e),
+            Err(_) => {}
+        }
+    }
+    let outcome = match (failure, stop.requested()) {
+        (Some(e), _) => Outcome::Failed(e),
+        (None, Some(sig)) if rows.len() < values.len() => Outcome::Stopped(sig),
+        _ => Outcome::Finished,
+    };
     let lines = fold_lines(&rows, spec.to - spec.from);
-    Ok(RegimeMap { columns, rows, lines })
+    Ok((RegimeMap { columns, rows, lines }, outcome))
 }
 
-/// Compute and write the file at `path`.
+/// Compute and write the file at `path`. Interrupted (SIGINT/SIGTERM) or failing, it writes
+/// the rows that finished with `complete = 0`, `rows_done`, `rows_total` and `interrupted_by`
+/// or `failure`, then returns the error (exit 130/143 or 3).
 pub fn regimes_to_file(
     cfg: &Loaded,
     path: &Path,
     command_line: &str,
     opts: RegimesOptions,
 ) -> Result<RegimeMap, Error> {
-    let map = run_regimes(cfg, opts)?;
+    let (map, outcome) = compute(cfg, opts)?;
     let spec = regimes_spec(cfg)?;
     let model = build_model(cfg)?;
-    write_regimes(path, &model, &provenance(cfg, command_line), spec, &map)?;
-    Ok(map)
+    let total = spec.row_values().len();
+    let done = map.rows.len();
+    let mut progress = vec![
+        ("rows_done".to_string(), Attr::I64(done as i64)),
+        ("rows_total".to_string(), Attr::I64(total as i64)),
+    ];
+    let completion = match &outcome {
+        Outcome::Finished => Completion::finished(),
+        Outcome::Stopped(sig) => {
+            progress.push(("interrupted_by".into(), Attr::Str(signal_name(*sig).into())));
+            Completion::partial(progress)
+        }
+        Outcome::Failed(e) => {
+            progress.push(("failure".into(), Attr::Str(e.to_string())));
+            Completion::partial(progress)
+        }
+    };
+    write_regimes_with(
+        path,
+        &model,
+        &provenance(cfg, command_line),
+        spec,
+        &map,
+        &completion,
+    )?;
+    match outcome {
+        Outcome::Finished => Ok(map),
+        Outcome::Stopped(sig) => Err(interrupted(
+            sig,
+            format!("stopped after {done} of {total} rows"),
+            path,
+            None,
+        )),
+        Outcome::Failed(e) => Err(e),
+    }
 }

@@ -60,12 +60,14 @@ pub(crate) const NOT_A_VARIABLE: &str = "This is a netCDF dimension but not a ne
 #[non_exhaustive]
 pub enum OutputError {
     /// The directory that should hold the output does not exist or is not a directory.
-    #[error("cannot write {path}: directory {dir} does not exist")]
+    #[error("cannot write {path}: {dir} {problem}")]
     NoDirectory {
         /// The requested output file.
         path: PathBuf,
         /// Its parent directory.
         dir: PathBuf,
+        /// "does not exist" or "is a file, not a directory".
+        problem: &'static str,
     },
     /// HDF5 could not create the temporary file beside the target.
     #[error("cannot create output file {path} (temporary file {temp}): {source}")]

@@ -5,7 +5,7 @@
 //! `p1` is `regimes.control` (continued along each row), `p2` is `regimes.row_control`; map
 //! variables have dimensions `(p2, p1)`, so each row is one continuation.
 
-use super::common::{attrs, mark_complete, write_provenance, Provenance};
+use super::common::{apply_completion, attrs, write_provenance, Completion, Provenance};
 use super::OutputError;
 use super::{Attr, NcWriter};
 use crate::config::spec::RegimesSpec;
@@ -14,13 +14,26 @@ use crate::equilibrium::regimes::{Kind, RegimeMap, SMALL_CAP_MIN_LATITUDE};
 use crate::model::Model;
 use std::path::Path;
 
-/// Write the regimes file at `path` (atomically, via a temporary file).
+/// Write the regimes file of a finished map at `path` (atomically, via a temporary file).
 pub fn write_regimes(
     path: &Path,
     model: &Model,
     prov: &Provenance,
     spec: &RegimesSpec,
     map: &RegimeMap,
+) -> Result<(), OutputError> {
+    write_regimes_with(path, model, prov, spec, map, &Completion::finished())
+}
+
+/// The same, with `complete` and progress attributes from `completion` (a stopped map holds
+/// the rows that finished).
+pub fn write_regimes_with(
+    path: &Path,
+    model: &Model,
+    prov: &Provenance,
+    spec: &RegimesSpec,
+    map: &RegimeMap,
+    completion: &Completion,
 ) -> Result<(), OutputError> {
     let (u1, u2) = (control_units(&spec.control), control_units(&spec.row_control));
     let mut w = NcWriter::create(path)?;
@@ -197,6 +210,6 @@ pub fn write_regimes(
         "linearisations",
         map.rows.iter().map(|r| r.linearisations as i64).sum(),
     )?;
-    mark_complete(&mut w, true)?;
+    apply_completion(&mut w, completion)?;
     w.finish()
 }

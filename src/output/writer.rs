@@ -388,6 +388,11 @@ impl NcWriter {
             return Err(OutputError::NoDirectory {
                 path: target.to_path_buf(),
                 dir: dir.to_path_buf(),
+                problem: if dir.exists() {
+                    "is a file, not a directory"
+                } else {
+                    "does not exist"
+                },
             });
         }
         let Some(file_name) = target.file_name() else {
