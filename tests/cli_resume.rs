@@ -58,6 +58,11 @@ fn resume_matches(tag: &str, command: &str, cfg: &str, extra: &[&str], ck: [&str
             partial.attr_i64("steps_done").unwrap() == Some(done as i64) && done < all
         }
         "branches" => partial.attr_i64("seeds_done").unwrap() < partial.attr_i64("seeds_total").unwrap(),
+        "regimes" => {
+            let done = partial.attr_i64("rows_done").unwrap();
+            done == Some(partial.read_f64("p2").unwrap().len() as i64)
+                && done < partial.attr_i64("rows_total").unwrap()
+        }
         _ => partial.attr_i64("members_done").unwrap() < partial.attr_i64("members_total").unwrap(),
     };
     assert!(short, "the partial file does not look partial");
@@ -158,6 +163,19 @@ fn ensemble_resumed_from_a_checkpoint_is_identical() {
         "ensemble-lhs.toml",
         &["--set", "ensemble.members=24", "--threads", "2"],
         ["--checkpoint-every-members", "5"],
+        2,
+    );
+}
+
+#[test]
+fn regimes_map_resumed_from_a_checkpoint_is_identical() {
+    // 12 rows, checkpoints every 3: interrupted after the second checkpoint (6 rows kept).
+    resume_matches(
+        "regimes",
+        "regimes",
+        "regimes-classic.toml",
+        &["--set", "regimes.rows=12", "--threads", "2"],
+        ["--checkpoint-every-rows", "3"],
         2,
     );
 }

@@ -137,6 +137,11 @@ pub enum Command {
         /// Worker threads (default: all cores, or RAYON_NUM_THREADS).
         #[arg(long, value_name = "N")]
         threads: Option<usize>,
+        /// Write a restart file beside the output every N finished rows (rows run N at a time).
+        #[arg(long, value_name = "N")]
+        checkpoint_every_rows: Option<usize>,
+        #[command(flatten)]
+        resume: ResumeArgs,
     },
     /// Join ensemble shard files into the file a single run writes.
     Merge {
@@ -261,7 +266,9 @@ fn dispatch(cli: Cli) -> Result<(), Error> {
             config,
             output,
             threads,
-        } => regimes::main(&config, &output, threads),
+            checkpoint_every_rows,
+            resume,
+        } => regimes::main(&config, &output, threads, checkpoint_every_rows, &resume),
         Command::Merge {
             files,
             output,

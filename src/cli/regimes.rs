@@ -1,18 +1,34 @@
 //! `icefold regimes CONFIG`: the map of which climates exist over two control keys.
 
-use super::{ConfigArgs, OutputArgs};
+use super::{ConfigArgs, OutputArgs, ResumeArgs};
 use crate::error::Error;
-use crate::jobs::regimes::{regimes_to_file, RegimesOptions};
+use crate::jobs::regimes::{regimes_job, RegimesOptions};
+use crate::jobs::run::Checkpointing;
 
 /// Compute the `[regimes]` map of the config and write the file.
-pub fn main(args: &ConfigArgs, out: &OutputArgs, threads: Option<usize>) -> Result<(), Error> {
+pub fn main(
+    args: &ConfigArgs,
+    out: &OutputArgs,
+    threads: Option<usize>,
+    checkpoint_every: Option<usize>,
+    resume: &ResumeArgs,
+) -> Result<(), Error> {
+    if threads == Some(0) {
+        return Err(Error::Usage(
+            "--threads 0: give at least 1 (or leave it out for all cores)".into(),
+        ));
+    }
     let cfg = super::load(args)?;
-    let path = super::output_path(out, &args.config, "regimes")?;
+    let path = super::output_path_resuming(out, &args.config, "regimes", resume.resume.is_some())?;
     let opts = RegimesOptions {
         threads,
         progress: true,
     };
-    let map = regimes_to_file(&cfg, &path, &super::command_line(), opts)?;
+    let ck = Checkpointing {
+        every: checkpoint_every.map(|n| n as f64),
+        resume: resume.resume.clone(),
+    };
+    let map = regimes_job(&cfg, &path, &super::command_line(), opts, &ck)?;
     let folds: usize = map.rows.iter().map(|r| r.folds.len()).sum();
     let most = map
         .rows

@@ -6,14 +6,16 @@
 
 use super::equilibrium::require_steady;
 use super::run::interrupted;
+use super::run::Checkpointing;
 use super::run::{build_model, provenance};
+use crate::checkpoint::{self, Restart, RestartError};
 use crate::cli::progress;
 use crate::config::spec::RegimesSpec;
 use crate::config::{ConfigError, Loaded};
 use crate::equilibrium::continuation::{ContinuationError, ContinuationOptions};
 use crate::equilibrium::control::Controlled;
 pub use crate::equilibrium::regimes::RegimeMap;
-use crate::equilibrium::regimes::{fold_lines, regime_row, RegimeRow};
+use crate::equilibrium::regimes::{fold_lines, regime_row, RegimeRow, RowFold};
 use crate::error::Error;
 use crate::integrate::SolverError;
 use crate::interrupt::{signal_name, StopFlag};
@@ -70,7 +72,7 @@ fn check_key(cfg: &Loaded, section_key: &str, key: &str, ends: [f64; 2]) -> Resu
 
 /// Compute the map of a loaded config (no file).
 pub fn run_regimes(cfg: &Loaded, opts: RegimesOptions) -> Result<RegimeMap, Error> {
-    let (map, outcome) = compute(cfg, opts)?;
+    let (map, outcome, _) = compute(cfg, opts, &Checkpointing::default(), None)?;
     match outcome {
         Outcome::Failed(e) => Err(e),
         _ => Ok(map),
@@ -90,7 +92,20 @@ enum Outcome {
 /// The map of the rows that finish, and how the computation ended. Rows not yet started when
 /// a stop is requested (SIGINT/SIGTERM, see `interrupt`) are skipped; a failing row is left
 /// out and reported.
-fn compute(cfg: &Loaded, opts: RegimesOptions) -> Result<(RegimeMap, Outcome), Error> {
+fn compute(
+    cfg: &Loaded,
+    opts: RegimesOptions,
+    ck: &Checkpointing,
+    restart_to: Option<&Path>,
+) -> Result<(RegimeMap, Outcome, bool), Error> {
+    if let Some(e) = ck.every {
+        if !(e >= 1.0) || e.fract() != 0.0 {
+            return Err(Error::Usage(format!(
+                "--checkpoint-every-rows {e}: give a whole number of rows, at least 1"
+            )));
+        }
+    }
+    let resume = ck.load("regimes", cfg)?;
     require_steady(cfg)?;
     let spec = regimes_spec(cfg)?;
     // Both keys must act on the model and both ranges be allowed values.
@@ -118,47 +133,66 @@ fn compute(cfg: &Loaded, opts: RegimesOptions) -> Result<(RegimeMap, Outcome), E
     } else {
         indicatif::ProgressBar::hidden()
     };
+    // Rows by index; a resumed map starts with the rows its restart file holds.
+    let mut done: Vec<Option<RegimeRow>> = vec![None; values.len()];
+    if let Some(r) = &resume {
+        restore_rows(r, &columns, &values, &mut done).map_err(super::run::restart_error)?;
+    }
+    let todo: Vec<usize> = (0..values.len()).filter(|&i| done[i].is_none()).collect();
+    pb.set_position((values.len() - todo.len()) as u64);
+    let chunk = ck.every.map_or(todo.len().max(1), |e| e as usize);
     let stop = StopFlag;
-    let work = || -> Vec<Option<Result<RegimeRow, Error>>> {
-        values
-            .par_iter()
-            .map(|&q| {
-                if stop.requested().is_some() {
-                    return None;
-                }
-                let row = || -> Result<RegimeRow, Error> {
-                    let row_cfg = cfg.with_value(&spec.row_control, q)?;
-                    let fam = Controlled::new(&row_cfg, &spec.control)?;
-                    regime_row(&fam, copts, &columns, q)
-                        .map_err(|e| continuation_error(e, &spec.row_control, q))
-                };
-                let r = row();
-                pb.inc(1);
-                Some(r)
-            })
-            .collect()
-    };
-    let results = match &pool {
-        Some(p) => p.install(work),
-        None => work(),
-    };
-    pb.finish_and_clear();
-    let mut rows = Vec::with_capacity(results.len());
     let mut failure = None;
-    for r in results.into_iter().flatten() {
-        match r {
-            Ok(row) => rows.push(row),
-            Err(e) if failure.is_none() => failure = Some(e),
-            Err(_) => {}
+    let mut saved = false;
+    for part in todo.chunks(chunk) {
+        let work = || -> Vec<(usize, Option<Result<RegimeRow, Error>>)> {
+            part.par_iter()
+                .map(|&i| {
+                    if stop.requested().is_some() {
+                        return (i, None);
+                    }
+                    let q = values[i];
+                    let row = || -> Result<RegimeRow, Error> {
+                        let row_cfg = cfg.with_value(&spec.row_control, q)?;
+                        let fam = Controlled::new(&row_cfg, &spec.control)?;
+                        regime_row(&fam, copts, &columns, q)
+                            .map_err(|e| continuation_error(e, &spec.row_control, q))
+                    };
+                    let r = row();
+                    pb.inc(1);
+                    (i, Some(r))
+                })
+                .collect()
+        };
+        let results = match &pool {
+            Some(p) => p.install(work),
+            None => work(),
+        };
+        for (i, r) in results {
+            match r {
+                Some(Ok(row)) => done[i] = Some(row),
+                Some(Err(e)) if failure.is_none() => failure = Some(e),
+                _ => {}
+            }
+        }
+        if let (Some(_), Some(to)) = (ck.every, restart_to) {
+            save_rows(to, cfg, &columns, &done).map_err(super::run::restart_error)?;
+            saved = true;
+            crate::interrupt::checkpoint_written();
+        }
+        if failure.is_some() || stop.requested().is_some() {
+            break;
         }
     }
+    pb.finish_and_clear();
+    let rows: Vec<RegimeRow> = done.into_iter().flatten().collect();
     let outcome = match (failure, stop.requested()) {
         (Some(e), _) => Outcome::Failed(e),
         (None, Some(sig)) if rows.len() < values.len() => Outcome::Stopped(sig),
         _ => Outcome::Finished,
     };
     let lines = fold_lines(&rows, spec.to - spec.from);
-    Ok((RegimeMap { columns, rows, lines }, outcome))
+    Ok((RegimeMap { columns, rows, lines }, outcome, saved))
 }
 
 /// Compute and write the file at `path`. Interrupted (SIGINT/SIGTERM) or failing, it writes
@@ -170,7 +204,20 @@ pub fn regimes_to_file(
     command_line: &str,
     opts: RegimesOptions,
 ) -> Result<RegimeMap, Error> {
-    let (map, outcome) = compute(cfg, opts)?;
+    regimes_job(cfg, path, command_line, opts, &Checkpointing::default())
+}
+
+/// [`regimes_to_file`] with a checkpoint after every `ck.every` rows into `<path>.restart`
+/// and/or resuming from `ck.resume` (rows are independent: a resumed map computes only the
+/// rows its restart file lacks, and its file is identical to an uninterrupted one).
+pub fn regimes_job(
+    cfg: &Loaded,
+    path: &Path,
+    command_line: &str,
+    opts: RegimesOptions,
+    ck: &Checkpointing,
+) -> Result<RegimeMap, Error> {
+    let (map, outcome, saved) = compute(cfg, opts, ck, Some(path))?;
     let spec = regimes_spec(cfg)?;
     let model = build_model(cfg)?;
     let total = spec.row_values().len();
@@ -198,14 +245,138 @@ pub fn regimes_to_file(
         &map,
         &completion,
     )?;
+    let restart = checkpoint::restart_path(path);
     match outcome {
-        Outcome::Finished => Ok(map),
+        Outcome::Finished => {
+            if ck.every.is_some() || ck.resume.is_some() {
+                super::run::remove_restart(path);
+            }
+            Ok(map)
+        }
         Outcome::Stopped(sig) => Err(interrupted(
             sig,
             format!("stopped after {done} of {total} rows"),
             path,
-            None,
+            saved.then_some(restart.as_path()),
         )),
         Outcome::Failed(e) => Err(e),
     }
+}
+
+/// Save the finished rows (any subset, by index) to the restart file beside `path`.
+fn save_rows(
+    path: &Path,
+    cfg: &Loaded,
+    columns: &[f64],
+    done: &[Option<RegimeRow>],
+) -> Result<(), RestartError> {
+    let mut r = Restart::new("regimes", &cfg.resolved_text());
+    let rows: Vec<(usize, &RegimeRow)> = done
+        .iter()
+        .enumerate()
+        .filter_map(|(i, row)| row.as_ref().map(|row| (i, row)))
+        .collect();
+    let u =
+        |f: &dyn Fn(&RegimeRow) -> Vec<u64>| -> Vec<u64> { rows.iter().flat_map(|(_, x)| f(x)).collect() };
+    let g =
+        |f: &dyn Fn(&RegimeRow) -> Vec<f64>| -> Vec<f64> { rows.iter().flat_map(|(_, x)| f(x)).collect() };
+    r.put_f64("columns", columns);
+    r.put_u64(
+        "rows.index",
+        &rows.iter().map(|(i, _)| *i as u64).collect::<Vec<_>>(),
+    );
+    r.put_f64("rows.value", &g(&|x| vec![x.row_value]));
+    r.put_u64(
+        "rows.stable",
+        &u(&|x| x.stable.iter().map(|&v| u64::from(v)).collect()),
+    );
+    r.put_u64(
+        "rows.equilibria",
+        &u(&|x| x.equilibria.iter().map(|&v| u64::from(v)).collect()),
+    );
+    r.put_u64(
+        "rows.kinds",
+        &u(&|x| x.kinds.iter().map(|&v| u64::from(v)).collect()),
+    );
+    r.put_u64("rows.branches", &u(&|x| vec![x.branches as u64]));
+    r.put_u64("rows.linearisations", &u(&|x| vec![x.linearisations]));
+    r.put_u64("rows.folds", &u(&|x| vec![x.folds.len() as u64]));
+    r.put_f64(
+        "folds.control",
+        &g(&|x| x.folds.iter().map(|f| f.control).collect()),
+    );
+    r.put_f64(
+        "folds.ice_edge",
+        &g(&|x| x.folds.iter().map(|f| f.ice_edge).collect()),
+    );
+    r.put_u64(
+        "folds.corner",
+        &u(&|x| x.folds.iter().map(|f| u64::from(f.corner)).collect()),
+    );
+    r.save(&checkpoint::restart_path(path))
+}
+
+/// The rows saved by [`save_rows`] into `done`, checked against this map's columns and rows.
+fn restore_rows(
+    r: &Restart,
+    columns: &[f64],
+    values: &[f64],
+    done: &mut [Option<RegimeRow>],
+) -> Result<(), RestartError> {
+    let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+    if bits(r.f64s("columns")?) != bits(columns) {
+        return Err(r.bad("its columns differ from this map's"));
+    }
+    let index = r.u64s("rows.index")?;
+    let k = index.len();
+    let nc = columns.len();
+    let (value, stable, equilibria, kinds) = (
+        r.f64s("rows.value")?,
+        r.u64s("rows.stable")?,
+        r.u64s("rows.equilibria")?,
+        r.u64s("rows.kinds")?,
+    );
+    let (branches, lins, nfolds) = (
+        r.u64s("rows.branches")?,
+        r.u64s("rows.linearisations")?,
+        r.u64s("rows.folds")?,
+    );
+    let (fc, fe, fk) = (
+        r.f64s("folds.control")?,
+        r.f64s("folds.ice_edge")?,
+        r.u64s("folds.corner")?,
+    );
+    let total_folds: u64 = nfolds.iter().sum();
+    if [value.len(), branches.len(), lins.len(), nfolds.len()] != [k; 4]
+        || [stable.len(), equilibria.len(), kinds.len()] != [k * nc; 3]
+        || [fc.len(), fe.len(), fk.len()] != [total_folds as usize; 3]
+    {
+        return Err(r.bad("its row arrays have inconsistent lengths"));
+    }
+    let mut f0 = 0;
+    for (j, &i) in index.iter().enumerate() {
+        let i = i as usize;
+        if i >= values.len() || values[i].to_bits() != value[j].to_bits() {
+            return Err(r.bad(format!("its row {i} does not belong to this map")));
+        }
+        let cells = j * nc..(j + 1) * nc;
+        let nf = nfolds[j] as usize;
+        done[i] = Some(RegimeRow {
+            row_value: value[j],
+            stable: stable[cells.clone()].iter().map(|&v| v as u32).collect(),
+            equilibria: equilibria[cells.clone()].iter().map(|&v| v as u32).collect(),
+            kinds: kinds[cells].iter().map(|&v| v as u8).collect(),
+            folds: (f0..f0 + nf)
+                .map(|m| RowFold {
+                    control: fc[m],
+                    ice_edge: fe[m],
+                    corner: fk[m] != 0,
+                })
+                .collect(),
+            branches: branches[j] as usize,
+            linearisations: lins[j],
+        });
+        f0 += nf;
+    }
+    Ok(())
 }
