@@ -4,6 +4,7 @@
 use super::equilibrium::{family, require_steady};
 use super::run::{build_model, provenance};
 use super::run::{interrupted, remove_restart, restart_error, Checkpointing};
+use super::Ending;
 use crate::checkpoint::{self, Restart, RestartError};
 use crate::config::spec::BranchesSpec;
 use crate::config::{ConfigError, Loaded};
@@ -15,8 +16,7 @@ use crate::equilibrium::stability::SpectrumMethod;
 use crate::error::Error;
 use crate::integrate::SolverError;
 use crate::interrupt::StopFlag;
-use crate::output::branches_file::{write_branches, write_branches_with, BranchesInfo};
-use crate::output::common::Completion;
+use crate::output::branches_file::{write_branches_with, BranchesInfo};
 use crate::output::Attr;
 use std::path::Path;
 
@@ -135,34 +135,23 @@ pub fn branches_job(
         ),
         ("seeds_total".to_string(), Attr::I64(run.seeds_total as i64)),
     ];
+    let ending = match (&run.error, run.stopped) {
+        (Some(e), _) => Ending::Failed(e.to_string()),
+        (None, true) => Ending::Stopped(stopped_by.unwrap_or(libc::SIGINT)),
+        (None, false) => Ending::Finished,
+    };
+    write_branches_with(
+        path,
+        &model,
+        &prov,
+        &info,
+        &run.set.branches,
+        &ending.completion(reached),
+    )?;
     if let Some(e) = run.error {
-        let mut attrs = reached;
-        attrs.push(("failure".into(), Attr::Str(e.to_string())));
-        write_branches_with(
-            path,
-            &model,
-            &prov,
-            &info,
-            &run.set.branches,
-            &Completion::partial(attrs),
-        )?;
         return Err(continuation_error(e));
     }
-    if run.stopped {
-        let sig = stopped_by.unwrap_or(libc::SIGINT);
-        let mut attrs = reached;
-        attrs.push((
-            "interrupted_by".into(),
-            Attr::Str(crate::interrupt::signal_name(sig).into()),
-        ));
-        write_branches_with(
-            path,
-            &model,
-            &prov,
-            &info,
-            &run.set.branches,
-            &Completion::partial(attrs),
-        )?;
+    if let Ending::Stopped(sig) = ending {
         return Err(interrupted(
             sig,
             format!(
@@ -173,7 +162,6 @@ pub fn branches_job(
             saved.then_some(restart.as_path()),
         ));
     }
-    write_branches(path, &model, &prov, &info, &run.set.branches)?;
     if every.is_some() || ck.resume.is_some() {
         remove_restart(path);
     }

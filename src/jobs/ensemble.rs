@@ -17,7 +17,6 @@ use crate::error::Error;
 use crate::integrate::driver::{self, Observer, RunError};
 use crate::interrupt::StopFlag;
 use crate::model::{Model, Workspace};
-use crate::output::common::Completion;
 use crate::output::ensemble_file::{self, EnsembleData, SensitivityColumns};
 use crate::output::run_file::YearMean;
 use crate::output::Attr;
@@ -570,13 +569,7 @@ pub fn ensemble_job(
     let EnsembleRun { data, stopped, saved } = run_ensemble_ck(cfg, opts, ck, Some(path))?;
     if let Some(sig) = stopped {
         let done = data.count();
-        let c = Completion::partial(vec![
-            ("members_done".into(), Attr::I64(done as i64)),
-            (
-                "interrupted_by".into(),
-                Attr::Str(crate::interrupt::signal_name(sig).into()),
-            ),
-        ]);
+        let c = super::Ending::Stopped(sig).completion(vec![("members_done".into(), Attr::I64(done as i64))]);
         ensemble_file::write_with(path, &data, command_line, opts.shard, &c)?;
         let restart = checkpoint::restart_path(path);
         return Err(super::run::interrupted(

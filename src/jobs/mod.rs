@@ -11,6 +11,34 @@ pub mod run;
 pub mod sweep;
 
 use crate::config::{ConfigError, Loaded};
+use crate::output::common::Completion;
+use crate::output::Attr;
+
+/// How a job that may stop early ended: the attributes its file gets besides how far it got.
+pub(crate) enum Ending {
+    /// Finished: `complete = 1`.
+    Finished,
+    /// A numerical failure (its message goes into `failure`).
+    Failed(String),
+    /// Stopped by this signal (its name goes into `interrupted_by`).
+    Stopped(i32),
+}
+
+impl Ending {
+    /// The file's completion: finished, or partial with `reached` (how far the job got) and
+    /// `failure` or `interrupted_by`.
+    pub(crate) fn completion(&self, mut reached: Vec<(String, Attr)>) -> Completion {
+        match self {
+            Ending::Finished => return Completion::finished(),
+            Ending::Failed(m) => reached.push(("failure".into(), Attr::Str(m.clone()))),
+            Ending::Stopped(sig) => reached.push((
+                "interrupted_by".into(),
+                Attr::Str(crate::interrupt::signal_name(*sig).into()),
+            )),
+        }
+        Completion::partial(reached)
+    }
+}
 
 /// A validated control section (`[sweep]`, `[branches]`) with both ends given, or a config error
 /// naming what is missing.

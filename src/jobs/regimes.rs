@@ -8,6 +8,7 @@ use super::equilibrium::require_steady;
 use super::run::interrupted;
 use super::run::Checkpointing;
 use super::run::{build_model, provenance};
+use super::Ending;
 use crate::checkpoint::{self, Restart, RestartError};
 use crate::cli::progress;
 use crate::config::spec::RegimesSpec;
@@ -18,8 +19,7 @@ pub use crate::equilibrium::regimes::RegimeMap;
 use crate::equilibrium::regimes::{fold_lines, regime_row, RegimeRow, RowFold};
 use crate::error::Error;
 use crate::integrate::SolverError;
-use crate::interrupt::{signal_name, StopFlag};
-use crate::output::common::Completion;
+use crate::interrupt::StopFlag;
 use crate::output::regimes_file::write_regimes_with;
 use crate::output::Attr;
 use rayon::prelude::*;
@@ -222,21 +222,16 @@ pub fn regimes_job(
     let model = build_model(cfg)?;
     let total = spec.row_values().len();
     let done = map.rows.len();
-    let mut progress = vec![
+    let progress = vec![
         ("rows_done".to_string(), Attr::I64(done as i64)),
         ("rows_total".to_string(), Attr::I64(total as i64)),
     ];
     let completion = match &outcome {
-        Outcome::Finished => Completion::finished(),
-        Outcome::Stopped(sig) => {
-            progress.push(("interrupted_by".into(), Attr::Str(signal_name(*sig).into())));
-            Completion::partial(progress)
-        }
-        Outcome::Failed(e) => {
-            progress.push(("failure".into(), Attr::Str(e.to_string())));
-            Completion::partial(progress)
-        }
-    };
+        Outcome::Finished => Ending::Finished,
+        Outcome::Stopped(sig) => Ending::Stopped(*sig),
+        Outcome::Failed(e) => Ending::Failed(e.to_string()),
+    }
+    .completion(progress);
     write_regimes_with(
         path,
         &model,

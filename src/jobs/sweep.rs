@@ -4,6 +4,7 @@
 use super::equilibrium::{family, require_steady};
 use super::run::{build_model, provenance};
 use super::run::{interrupted, remove_restart, restart_error, Checkpointing};
+use super::Ending;
 use crate::checkpoint::{self, Restart, RestartError};
 use crate::cli::progress;
 use crate::config::spec::SweepSpec;
@@ -13,8 +14,7 @@ use crate::equilibrium::sweep::{
 };
 use crate::error::Error;
 use crate::interrupt::StopFlag;
-use crate::output::common::Completion;
-use crate::output::sweep_file::{write_sweep, write_sweep_with};
+use crate::output::sweep_file::write_sweep_with;
 use crate::output::Attr;
 use std::path::Path;
 
@@ -151,34 +151,23 @@ pub fn sweep_job(
         ("steps_done".to_string(), Attr::I64(done)),
         ("control_reached".to_string(), Attr::F64(last)),
     ];
+    let ending = match (&run.error, run.stopped) {
+        (Some(e), _) => Ending::Failed(e.to_string()),
+        (None, true) => Ending::Stopped(stopped_by.unwrap_or(libc::SIGINT)),
+        (None, false) => Ending::Finished,
+    };
+    write_sweep_with(
+        path,
+        &model,
+        &prov,
+        spec,
+        &run.result,
+        &ending.completion(reached),
+    )?;
     if let Some(e) = run.error {
-        let mut attrs = reached;
-        attrs.push(("failure".into(), Attr::Str(e.to_string())));
-        write_sweep_with(
-            path,
-            &model,
-            &prov,
-            spec,
-            &run.result,
-            &Completion::partial(attrs),
-        )?;
         return Err(sweep_error(e));
     }
-    if run.stopped {
-        let sig = stopped_by.unwrap_or(libc::SIGINT);
-        let mut attrs = reached;
-        attrs.push((
-            "interrupted_by".into(),
-            Attr::Str(crate::interrupt::signal_name(sig).into()),
-        ));
-        write_sweep_with(
-            path,
-            &model,
-            &prov,
-            spec,
-            &run.result,
-            &Completion::partial(attrs),
-        )?;
+    if let Ending::Stopped(sig) = ending {
         return Err(interrupted(
             sig,
             format!(
@@ -189,7 +178,6 @@ pub fn sweep_job(
             saved.then_some(restart.as_path()),
         ));
     }
-    write_sweep(path, &model, &prov, spec, &run.result)?;
     if every.is_some() || ck.resume.is_some() {
         remove_restart(path);
     }
