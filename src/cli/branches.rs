@@ -3,7 +3,6 @@
 use super::{ConfigArgs, OutputArgs, ResumeArgs};
 use crate::error::Error;
 use crate::jobs::branches::branches_job;
-use crate::jobs::run::Checkpointing;
 
 /// Trace the `[branches]` of the config and write the file.
 pub fn main(
@@ -14,10 +13,7 @@ pub fn main(
 ) -> Result<(), Error> {
     let cfg = super::load(args)?;
     let path = super::output_path_resuming(out, &args.config, "branches", resume.resume.is_some())?;
-    let ck = Checkpointing {
-        every: checkpoint_every.map(|n| n as f64),
-        resume: resume.resume.clone(),
-    };
+    let ck = resume.checkpointing(checkpoint_every.map(|n| n as f64));
     let set = branches_job(&cfg, &path, &super::command_line(), &ck)?;
     let points: usize = set.branches.iter().map(|b| b.points.len()).sum();
     let folds: Vec<String> = set

@@ -4,7 +4,6 @@
 use super::{ConfigArgs, OutputArgs, ResumeArgs};
 use crate::error::Error;
 use crate::jobs::ensemble::{ensemble_job, EnsembleOptions};
-use crate::jobs::run::Checkpointing;
 
 /// Run the configured ensemble (or one shard of it).
 pub fn main(
@@ -19,21 +18,14 @@ pub fn main(
         .map(crate::ensemble::parse_shard)
         .transpose()
         .map_err(Error::Usage)?;
-    if threads == Some(0) {
-        return Err(Error::Usage(
-            "--threads 0: give at least 1 (or leave it out for all cores)".into(),
-        ));
-    }
+    super::check_threads(threads)?;
     let cfg = super::load(args)?;
     let command = match shard {
         Some((k, n)) => format!("ensemble-{k}of{n}"),
         None => "ensemble".to_string(),
     };
     let path = super::output_path_resuming(out, &args.config, &command, resume.resume.is_some())?;
-    let ck = Checkpointing {
-        every: checkpoint_every.map(|n| n as f64),
-        resume: resume.resume.clone(),
-    };
+    let ck = resume.checkpointing(checkpoint_every.map(|n| n as f64));
     let start = std::time::Instant::now();
     let report = ensemble_job(
         &cfg,

@@ -60,6 +60,27 @@ pub struct ResumeArgs {
     pub resume: Option<PathBuf>,
 }
 
+impl ResumeArgs {
+    /// The job's checkpoint settings: a checkpoint every `every` (years, steps, seeds, members
+    /// or rows, by command) and this resume file.
+    pub fn checkpointing(&self, every: Option<f64>) -> crate::jobs::run::Checkpointing {
+        crate::jobs::run::Checkpointing {
+            every,
+            resume: self.resume.clone(),
+        }
+    }
+}
+
+/// Refuse `--threads 0` (1 or more workers, or none given for all cores).
+fn check_threads(threads: Option<usize>) -> Result<(), Error> {
+    if threads == Some(0) {
+        return Err(Error::Usage(
+            "--threads 0: give at least 1 (or leave it out for all cores)".into(),
+        ));
+    }
+    Ok(())
+}
+
 /// The subcommands.
 #[derive(Debug, Subcommand)]
 pub enum Command {

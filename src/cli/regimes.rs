@@ -3,7 +3,6 @@
 use super::{ConfigArgs, OutputArgs, ResumeArgs};
 use crate::error::Error;
 use crate::jobs::regimes::{regimes_job, RegimesOptions};
-use crate::jobs::run::Checkpointing;
 
 /// Compute the `[regimes]` map of the config and write the file.
 pub fn main(
@@ -13,21 +12,14 @@ pub fn main(
     checkpoint_every: Option<usize>,
     resume: &ResumeArgs,
 ) -> Result<(), Error> {
-    if threads == Some(0) {
-        return Err(Error::Usage(
-            "--threads 0: give at least 1 (or leave it out for all cores)".into(),
-        ));
-    }
+    super::check_threads(threads)?;
     let cfg = super::load(args)?;
     let path = super::output_path_resuming(out, &args.config, "regimes", resume.resume.is_some())?;
     let opts = RegimesOptions {
         threads,
         progress: true,
     };
-    let ck = Checkpointing {
-        every: checkpoint_every.map(|n| n as f64),
-        resume: resume.resume.clone(),
-    };
+    let ck = resume.checkpointing(checkpoint_every.map(|n| n as f64));
     let map = regimes_job(&cfg, &path, &super::command_line(), opts, &ck)?;
     let folds: usize = map.rows.iter().map(|r| r.folds.len()).sum();
     let most = map

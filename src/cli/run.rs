@@ -13,10 +13,7 @@ pub fn main(
 ) -> Result<(), Error> {
     let cfg = super::load(args)?;
     let path = super::output_path_resuming(out, &args.config, "run", resume.resume.is_some())?;
-    let ck = jobs::run::Checkpointing {
-        every: checkpoint_every,
-        resume: resume.resume.clone(),
-    };
+    let ck = resume.checkpointing(checkpoint_every);
     let report = jobs::run::run_job(&cfg, &path, &super::command_line(), true, &ck)?;
     eprintln!(
         "icefold: wrote {} ({} records, {} steps, {} right-hand-side evaluations); final global mean {:.3} K, ice edge {:.2} degrees N",

@@ -2,7 +2,6 @@
 
 use super::{ConfigArgs, OutputArgs, ResumeArgs};
 use crate::error::Error;
-use crate::jobs::run::Checkpointing;
 use crate::jobs::sweep::sweep_job;
 
 /// Run the `[sweep]` of the config and write the file.
@@ -14,10 +13,7 @@ pub fn main(
 ) -> Result<(), Error> {
     let cfg = super::load(args)?;
     let path = super::output_path_resuming(out, &args.config, "sweep", resume.resume.is_some())?;
-    let ck = Checkpointing {
-        every: checkpoint_every.map(|n| n as f64),
-        resume: resume.resume.clone(),
-    };
+    let ck = resume.checkpointing(checkpoint_every.map(|n| n as f64));
     let r = sweep_job(&cfg, &path, &super::command_line(), true, &ck)?;
     let tips: Vec<String> = r
         .tipping

@@ -22,18 +22,12 @@ use std::path::Path;
 
 /// The validated `[branches]` section, or a config error naming what is missing.
 pub fn branches_spec(cfg: &Loaded) -> Result<&BranchesSpec, ConfigError> {
-    let ends = cfg
-        .spec
-        .branches
-        .as_ref()
-        .map(|s| [s.from, s.to])
-        .unwrap_or([0.0; 2]);
     super::control_section(
         cfg,
         cfg.spec.branches.as_ref(),
+        |s| [s.from, s.to],
         "branches",
         "control (a dotted key such as \"insolation.solar_constant\"), from and to",
-        ends,
     )
 }
 

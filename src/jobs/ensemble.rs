@@ -249,15 +249,7 @@ fn run_ensemble_ck(
             n
         )));
     }
-    let pool = match opts.threads {
-        Some(t) => Some(
-            rayon::ThreadPoolBuilder::new()
-                .num_threads(t)
-                .build()
-                .map_err(|e| Error::Other(format!("cannot start {t} worker threads: {e}")))?,
-        ),
-        None => None,
-    };
+    let pool = super::worker_pool(opts.threads)?;
     let pb = if opts.progress {
         progress::bar(range.len() as u64, "members")
     } else {

@@ -11,6 +11,7 @@ pub mod run;
 pub mod sweep;
 
 use crate::config::{ConfigError, Loaded};
+use crate::error::Error;
 use crate::output::common::Completion;
 use crate::output::Attr;
 
@@ -40,21 +41,21 @@ impl Ending {
     }
 }
 
-/// A validated control section (`[sweep]`, `[branches]`) with both ends given, or a config error
-/// naming what is missing.
+/// A validated control section (`[sweep]`, `[branches]`, `[regimes]`) with both ends (`ends`
+/// of the section: from and to) given, or a config error naming what is missing.
 pub(crate) fn control_section<'a, T>(
     cfg: &Loaded,
     section: Option<&'a T>,
+    ends: impl Fn(&T) -> [f64; 2],
     name: &str,
     needs: &str,
-    ends: [f64; 2],
 ) -> Result<&'a T, ConfigError> {
     let spec = section.ok_or_else(|| ConfigError::Key {
         path: cfg.source.clone(),
         key: name.into(),
         message: format!("icefold {name} needs a [{name}] section with {needs}"),
     })?;
-    for (end, v) in ["from", "to"].iter().zip(ends) {
+    for (end, v) in ["from", "to"].iter().zip(ends(spec)) {
         if !v.is_finite() {
             return Err(ConfigError::Key {
                 path: cfg.source.clone(),
@@ -64,4 +65,17 @@ pub(crate) fn control_section<'a, T>(
         }
     }
     Ok(spec)
+}
+
+/// A rayon pool of `threads` workers, or `None` for rayon's default (all cores or
+/// `RAYON_NUM_THREADS`).
+pub(crate) fn worker_pool(threads: Option<usize>) -> Result<Option<rayon::ThreadPool>, Error> {
+    threads
+        .map(|t| {
+            rayon::ThreadPoolBuilder::new()
+                .num_threads(t)
+                .build()
+                .map_err(|e| Error::Other(format!("cannot start {t} worker threads: {e}")))
+        })
+        .transpose()
 }

@@ -36,18 +36,12 @@ pub struct RegimesOptions {
 
 /// The validated `[regimes]` section, or a config error naming what is missing.
 pub fn regimes_spec(cfg: &Loaded) -> Result<&RegimesSpec, ConfigError> {
-    let ends = cfg
-        .spec
-        .regimes
-        .as_ref()
-        .map(|s| [s.from, s.to])
-        .unwrap_or([0.0; 2]);
     super::control_section(
         cfg,
         cfg.spec.regimes.as_ref(),
+        |s| [s.from, s.to],
         "regimes",
         "control, from, to (continued along each row) and row_control, row_from, row_to (one row per value)",
-        ends,
     )
 }
 
@@ -119,15 +113,7 @@ fn compute(
     let columns = spec.column_values();
     let values = spec.row_values();
     let copts = ContinuationOptions::from_spec(&spec.row_branches(), cfg.spec.equilibrium.tolerance_wm2);
-    let pool = match opts.threads {
-        Some(t) => Some(
-            rayon::ThreadPoolBuilder::new()
-                .num_threads(t)
-                .build()
-                .map_err(|e| Error::Other(format!("cannot start {t} worker threads: {e}")))?,
-        ),
-        None => None,
-    };
+    let pool = super::worker_pool(opts.threads)?;
     let pb = if opts.progress {
         progress::bar(values.len() as u64, "regime rows")
     } else {

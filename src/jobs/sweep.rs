@@ -20,18 +20,12 @@ use std::path::Path;
 
 /// The validated `[sweep]` section, or a config error naming what is missing.
 pub fn sweep_spec(cfg: &Loaded) -> Result<&SweepSpec, ConfigError> {
-    let ends = cfg
-        .spec
-        .sweep
-        .as_ref()
-        .map(|s| [s.from, s.to])
-        .unwrap_or([0.0; 2]);
     super::control_section(
         cfg,
         cfg.spec.sweep.as_ref(),
+        |s| [s.from, s.to],
         "sweep",
         "control (a dotted key such as \"insolation.solar_constant\"), from, to and steps",
-        ends,
     )
 }
 
