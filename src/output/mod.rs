@@ -239,3 +239,26 @@ pub(crate) mod ds {
         ) -> herr_t;
     }
 }
+
+/// Mark the operating-system descriptor of an open HDF5 file close-on-exec. HDF5 (sec2 driver,
+/// the default) opens files without `O_CLOEXEC`, so a child process started while a file is
+/// open would inherit the descriptor and, with it, HDF5's lock on the file until the child
+/// exits: a reader in the parent would then be refused with "unable to lock file". Best effort
+/// (a driver without a plain descriptor is left as it is).
+pub(crate) fn close_on_exec(file: &hdf5::File) {
+    hdf5::sync::sync(|| {
+        let mut handle: *mut std::ffi::c_void = std::ptr::null_mut();
+        // SAFETY: a valid file id; for the sec2 driver the handle points to its `int` fd.
+        unsafe {
+            if hdf5_sys::h5f::H5Fget_vfd_handle(file.id(), hdf5_sys::h5p::H5P_DEFAULT, &mut handle) >= 0
+                && !handle.is_null()
+            {
+                let fd = *(handle as *const libc::c_int);
+                let flags = libc::fcntl(fd, libc::F_GETFD);
+                if flags >= 0 {
+                    libc::fcntl(fd, libc::F_SETFD, flags | libc::FD_CLOEXEC);
+                }
+            }
+        }
+    });
+}

@@ -40,6 +40,7 @@ impl NcReader {
             path: path.to_path_buf(),
             source,
         })?;
+        super::close_on_exec(&file);
         let group = file.group("/").map_err(|source| OutputError::Open {
             path: path.to_path_buf(),
             source,

@@ -425,6 +425,7 @@ impl NcWriter {
                 temp: temp.path.clone(),
                 source,
             })?;
+        super::close_on_exec(&file);
         Ok(NcWriter {
             inner: Inner {
                 vars: HashMap::new(),
@@ -1281,6 +1282,22 @@ mod tests {
         let msg = err.to_string();
         assert!(msg.contains(&target.display().to_string()), "{msg}");
         assert!(msg.contains("does not exist"), "{msg}");
+    }
+
+    #[test]
+    fn a_child_started_while_a_file_is_open_does_not_hold_its_lock() {
+        // Without close-on-exec the child inherits the descriptor and HDF5's lock, and the
+        // reader below is refused with "unable to lock file" until the child exits.
+        let dir = TestDir::new("cloexec");
+        let target = dir.file("out.nc");
+        let mut w = NcWriter::create(&target).unwrap();
+        w.set_attr_str("icefold_kind", "test").unwrap();
+        let mut child = std::process::Command::new("sleep").arg("5").spawn().unwrap();
+        w.finish().unwrap();
+        let opened = crate::output::NcReader::open(&target);
+        child.kill().unwrap();
+        child.wait().unwrap();
+        assert!(opened.is_ok(), "{:?}", opened.err());
     }
 
     #[test]
