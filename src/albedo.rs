@@ -113,6 +113,35 @@ fn linear_cold(va: f64, vb: f64, len: f64, tf: f64) -> f64 {
     }
 }
 
+/// Call `f(k)` for every pair of neighbouring bands `k`, `k + 1` on opposite sides of `tf`
+/// (a freezing crossing), in increasing `k`. Blocks of eight pairs are tested branch-free
+/// (vectorised) and only a block holding a crossing is searched.
+#[inline(always)]
+pub fn for_each_crossing(t: &[f64], tf: f64, mut f: impl FnMut(usize)) {
+    let pairs = t.len().saturating_sub(1);
+    let mut k = 0;
+    while k + 8 <= pairs {
+        let b: &[f64; 9] = t[k..k + 9].try_into().expect("nine values");
+        let mut any = false;
+        for j in 0..8 {
+            any |= (b[j] < tf) != (b[j + 1] < tf);
+        }
+        if any {
+            for j in 0..8 {
+                if (b[j] < tf) != (b[j + 1] < tf) {
+                    f(k + j);
+                }
+            }
+        }
+        k += 8;
+    }
+    for k in k..pairs {
+        if (t[k] < tf) != (t[k + 1] < tf) {
+            f(k);
+        }
+    }
+}
+
 impl Albedo {
     /// Build from the band ice-free albedo, ice albedo and freezing temperature (K).
     pub fn new(grid: &Grid, form: AlbedoForm, ice_free: Vec<f64>, ice: f64, freeze: f64) -> Albedo {

@@ -17,6 +17,7 @@ pub mod albedo;
 pub mod checkpoint;
 pub mod cli;
 pub mod config;
+pub mod cpu;
 pub mod csv;
 pub mod ensemble;
 pub mod equilibrium;

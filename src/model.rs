@@ -228,6 +228,13 @@ impl Model {
 
     /// Net heating `G(t, T)` in W m-2 into `out`.
     pub fn heating(&self, t_years: f64, temps: &[f64], ws: &mut Workspace, out: &mut [f64]) {
+        self.heating_inline(t_years, temps, ws, out)
+    }
+
+    /// [`Model::heating`], inlined into the caller (the time-stepping kernels, which are
+    /// compiled once per CPU feature level: see [`crate::cpu`]).
+    #[inline(always)]
+    pub(crate) fn heating_inline(&self, t_years: f64, temps: &[f64], ws: &mut Workspace, out: &mut [f64]) {
         self.refresh_sun(t_years, ws);
         let d = self.drivers_at(t_years);
         let n = temps.len();
@@ -270,22 +277,29 @@ impl Model {
                     let c = (flux_hi - flux_lo) * inv_dx[i];
                     ss * sun[i] * (1.0 - a) - (o - g) + ts * c + extra
                 };
-                for i in 1..n.saturating_sub(1) {
-                    let ti = t[i];
-                    let a = if ti < tf { af[i] + (ai - af[i]) } else { af[i] };
-                    let (o, dolr) = olr_of(ti);
-                    let (o, _) = d.olr(o, dolr, ti);
-                    let c = (face_k[i + 1] * (t[i + 1] - ti) - face_k[i] * (ti - t[i - 1])) * inv_dx[i];
-                    out[i] = ss * sun[i] * (1.0 - a) - (o - g) + ts * c + extra;
+                if n > 2 {
+                    // Interior band i = j + 1, over slices of one length (no bounds checks, so
+                    // the loop vectorises).
+                    let m = n - 2;
+                    let (tl, tc, th) = (&t[..m], &t[1..m + 1], &t[2..]);
+                    let (k_lo, k_hi) = (&face_k[1..m + 1], &face_k[2..m + 2]);
+                    let (idx, sn, afs) = (&inv_dx[1..m + 1], &sun[1..m + 1], &af[1..m + 1]);
+                    let o_in = &mut out[1..m + 1];
+                    for j in 0..m {
+                        let ti = tc[j];
+                        let a = if ti < tf { afs[j] + (ai - afs[j]) } else { afs[j] };
+                        let (o, dolr) = olr_of(ti);
+                        let (o, _) = d.olr(o, dolr, ti);
+                        let c = (k_hi[j] * (th[j] - ti) - k_lo[j] * (ti - tl[j])) * idx[j];
+                        o_in[j] = ss * sn[j] * (1.0 - a) - (o - g) + ts * c + extra;
+                    }
                 }
                 let mut fix = |i: usize| out[i] = band(i, self.albedo.step_band(t, i).0);
                 fix(0);
-                for k in 0..n.saturating_sub(1) {
-                    if (t[k] < tf) != (t[k + 1] < tf) {
-                        fix(k);
-                        fix(k + 1);
-                    }
-                }
+                crate::albedo::for_each_crossing(t, tf, |k| {
+                    fix(k);
+                    fix(k + 1);
+                });
                 fix(n - 1);
             });
             return;
@@ -371,6 +385,19 @@ impl Model {
         out: &mut [f64],
         jac: &mut Tridiag,
     ) {
+        self.heating_with_jacobian_inline(t_years, temps, ws, out, jac)
+    }
+
+    /// [`Model::heating_with_jacobian`], inlined into the caller (see [`Model::heating_inline`]).
+    #[inline(always)]
+    pub(crate) fn heating_with_jacobian_inline(
+        &self,
+        t_years: f64,
+        temps: &[f64],
+        ws: &mut Workspace,
+        out: &mut [f64],
+        jac: &mut Tridiag,
+    ) {
         self.refresh_sun(t_years, ws);
         let d = self.drivers_at(t_years);
         if let (Transport::Diffusive { face_k, inv_dx }, 1.0) = (&self.transport, d.transport_scale) {
@@ -393,20 +420,28 @@ impl Model {
                 // branch-free); the bands that need the full rule are redone after.
                 with_olr!(self, |olr_of| {
                     let (g, extra) = (d.greenhouse_wm2, d.extra_wm2);
-                    for i in 1..n.saturating_sub(1) {
-                        let ti = t[i];
-                        let a = if ti < tf { af[i] + (ai - af[i]) } else { af[i] };
-                        let (o, dolr) = olr_of(ti);
-                        let (o, dolr) = d.olr(o, dolr, ti);
-                        let s = d.solar_scale * sun[i];
-                        let conv =
-                            (face_k[i + 1] * (t[i + 1] - ti) - face_k[i] * (ti - t[i - 1])) * inv_dx[i];
-                        out[i] = s * (1.0 - a) - (o - g) + conv + extra;
-                        let lo = face_k[i] * inv_dx[i];
-                        let hi = face_k[i + 1] * inv_dx[i];
-                        jd[i] = (-s * 0.0 - dolr) - (lo + hi);
-                        jl[i] = -s * 0.0 + lo;
-                        ju[i] = -s * 0.0 + hi;
+                    if n > 2 {
+                        // Interior band i = j + 1 over slices of one length (vectorised).
+                        let m = n - 2;
+                        let (tl, tc, th) = (&t[..m], &t[1..m + 1], &t[2..]);
+                        let (k_lo, k_hi) = (&face_k[1..m + 1], &face_k[2..m + 2]);
+                        let (idx, sn, afs) = (&inv_dx[1..m + 1], &sun[1..m + 1], &af[1..m + 1]);
+                        let o_in = &mut out[1..m + 1];
+                        let (jd, jl, ju) = (&mut jd[1..m + 1], &mut jl[1..m + 1], &mut ju[1..m + 1]);
+                        for j in 0..m {
+                            let ti = tc[j];
+                            let a = if ti < tf { afs[j] + (ai - afs[j]) } else { afs[j] };
+                            let (o, dolr) = olr_of(ti);
+                            let (o, dolr) = d.olr(o, dolr, ti);
+                            let s = d.solar_scale * sn[j];
+                            let conv = (k_hi[j] * (th[j] - ti) - k_lo[j] * (ti - tl[j])) * idx[j];
+                            o_in[j] = s * (1.0 - a) - (o - g) + conv + extra;
+                            let lo = k_lo[j] * idx[j];
+                            let hi = k_hi[j] * idx[j];
+                            jd[j] = (-s * 0.0 - dolr) - (lo + hi);
+                            jl[j] = -s * 0.0 + lo;
+                            ju[j] = -s * 0.0 + hi;
+                        }
                     }
                 });
                 with_olr!(self, |olr_of| {
@@ -434,14 +469,12 @@ impl Model {
                     band(0, a0, d0);
                     let (a1, d1) = self.albedo.step_band(t, n - 1);
                     band(n - 1, a1, d1);
-                    for k in 0..n.saturating_sub(1) {
-                        if (t[k] < tf) != (t[k + 1] < tf) {
-                            for i in [k, k + 1] {
-                                let (a, da) = self.albedo.step_band(t, i);
-                                band(i, a, da);
-                            }
+                    crate::albedo::for_each_crossing(t, tf, |k| {
+                        for i in [k, k + 1] {
+                            let (a, da) = self.albedo.step_band(t, i);
+                            band(i, a, da);
                         }
-                    }
+                    });
                 });
                 return;
             }

@@ -63,3 +63,32 @@ fn run_sweep_and_branches_files_are_identical_run_to_run() {
         same_values(&dir.join("a.nc"), &dir.join("b.nc"));
     }
 }
+
+#[test]
+fn baseline_and_wide_cpu_kernels_give_the_same_files() {
+    // The time-stepping kernels are compiled twice (baseline x86-64, and AVX2 with FMA; see
+    // src/cpu.rs) and must compute the same bits: ICEFOLD_BASELINE_CPU forces the baseline copy.
+    // On a CPU without AVX2 and FMA both runs take the baseline copy and the check is trivial.
+    let dir = tempdir("det-cpu");
+    for (cmd, cfg, extra) in [
+        ("run", "classic-step-albedo.toml", vec!["--set", "time.years=50"]),
+        ("run", "seasonal-globe.toml", vec!["--set", "time.years=3"]),
+        ("run", "forcing-orvane.toml", vec![]),
+        ("sweep", "sweep-solar.toml", vec!["--set", "grid.bands=30"]),
+    ] {
+        let cfg = config(cfg);
+        for (baseline, out) in [(false, "wide.nc"), (true, "base.nc")] {
+            let mut args = vec![cmd, cfg.as_str(), "-o", out, "--overwrite"];
+            args.extend_from_slice(&extra);
+            let mut c = Command::new(BIN);
+            c.args(&args).current_dir(&dir);
+            if baseline {
+                c.env("ICEFOLD_BASELINE_CPU", "1");
+            } else {
+                c.env_remove("ICEFOLD_BASELINE_CPU");
+            }
+            ok(&c.output().unwrap());
+        }
+        same_values(&dir.join("wide.nc"), &dir.join("base.nc"));
+    }
+}

@@ -113,7 +113,23 @@ pub enum SolverError {
 
 /// Check a state after a step: finite, and inside the model's valid range.
 pub fn check_state(model: &Model, t: f64, temps: &[f64]) -> Result<(), SolverError> {
+    check_state_inline(model, t, temps)
+}
+
+/// [`check_state`] inlined into a time-stepping kernel: one branch-free pass decides, and only
+/// a failing state is searched band by band.
+#[inline(always)]
+pub(crate) fn check_state_inline(model: &Model, t: f64, temps: &[f64]) -> Result<(), SolverError> {
     let (lo, hi) = model.valid_range();
+    // NaN fails both comparisons; the range is finite, so infinities fail one.
+    if temps.iter().fold(true, |ok, &v| ok & (v >= lo) & (v <= hi)) {
+        return Ok(());
+    }
+    check_state_slow(model, t, temps, lo, hi)
+}
+
+#[cold]
+fn check_state_slow(model: &Model, t: f64, temps: &[f64], lo: f64, hi: f64) -> Result<(), SolverError> {
     for (band, &v) in temps.iter().enumerate() {
         if !v.is_finite() || v < lo || v > hi {
             let lat = band_latitude(model, band);

@@ -16,7 +16,7 @@
 //!
 //! Reference: Verwer, Spee, Blom and Hundsdorfer (1999, SIAM J. Sci. Comput. 20, 1456-1480).
 
-use super::{check_state, step_collapsed, Integrator, SolverError, Stats};
+use super::{step_collapsed, Integrator, SolverError, Stats};
 use crate::linalg::{Tridiag, TridiagLu};
 use crate::model::{Model, Workspace, YEAR_SECONDS};
 
@@ -68,6 +68,8 @@ pub struct Ros2<'m> {
     k2: Vec<f64>,
     tmp: Vec<f64>,
     stats: Stats,
+    /// Run the AVX2 and FMA copy of the step (see [`crate::cpu`]).
+    wide: bool,
 }
 
 impl<'m> Ros2<'m> {
@@ -129,6 +131,7 @@ impl<'m> Ros2<'m> {
             k2: vec![0.0; n],
             tmp: vec![0.0; n],
             stats: Stats::default(),
+            wide: crate::cpu::wide_fma(),
         }
     }
 
@@ -149,6 +152,23 @@ impl<'m> Ros2<'m> {
 
     /// One accepted step (retrying with smaller steps on rejection). Returns the step taken.
     pub fn step(&mut self) -> Result<f64, SolverError> {
+        #[cfg(target_arch = "x86_64")]
+        if self.wide {
+            // SAFETY: `wide` is set only when the CPU has AVX2 and FMA (`cpu::wide_fma`).
+            return unsafe { self.step_wide() };
+        }
+        self.step_impl()
+    }
+
+    /// [`Ros2::step`] compiled for AVX2 and FMA (the same numbers: see [`crate::cpu`]).
+    #[cfg(target_arch = "x86_64")]
+    #[target_feature(enable = "avx2,fma")]
+    unsafe fn step_wide(&mut self) -> Result<f64, SolverError> {
+        self.step_impl()
+    }
+
+    #[inline(always)]
+    fn step_impl(&mut self) -> Result<f64, SolverError> {
         let model = self.model;
         let n = self.y.len();
         if self.stats.steps >= self.max_steps {
@@ -180,28 +200,40 @@ impl<'m> Ros2<'m> {
                     }
                 }
             };
-            // M = C/yr - gamma h J, refactorised only from the first row whose Jacobian entry
-            // changed since the last factorisation with the same step (rows before it factor
-            // identically); unchanged (ice free, ice covered, linear OLR): no work at all.
+            // M = C/yr - gamma h J, refactorised only in the rows whose Jacobian entries
+            // changed since the last factorisation with the same step (the twisted
+            // factorisation keeps the rows on either side); unchanged (ice free, ice covered,
+            // linear OLR): no work at all.
             let gh = GAMMA * h;
-            let first = self.first_changed_row(gh);
-            let factored = if first < n {
+            let (lo, hi) = self.changed_rows(gh);
+            let factored = if lo < hi {
                 let (jac, mat) = (&self.jac, &mut self.mat);
-                for i in first..n {
-                    mat.diag[i] = self.cap[i] - gh * jac.diag[i];
-                    mat.lower[i] = -gh * jac.lower[i];
-                    mat.upper[i] = -gh * jac.upper[i];
+                let (cap, jd, jl, ju) = (
+                    &self.cap[lo..hi],
+                    &jac.diag[lo..hi],
+                    &jac.lower[lo..hi],
+                    &jac.upper[lo..hi],
+                );
+                let (md, ml, mu) = (
+                    &mut mat.diag[lo..hi],
+                    &mut mat.lower[lo..hi],
+                    &mut mat.upper[lo..hi],
+                );
+                for i in 0..hi - lo {
+                    md[i] = cap[i] - gh * jd[i];
+                    ml[i] = -gh * jl[i];
+                    mu[i] = -gh * ju[i];
                 }
                 mat.rank_one = jac.rank_one.map(|s| -gh * s);
                 self.stats.factorisations += 1;
-                let ok = self.lu.factor_from(&self.mat, first).is_ok();
+                let ok = self.lu.factor_rows(&self.mat, lo, hi).is_ok();
                 if ok {
-                    if first == 0 {
+                    if lo == 0 && hi == n {
                         self.lu_gh = gh;
                     }
-                    self.lu_jac.diag[first..].copy_from_slice(&self.jac.diag[first..]);
-                    self.lu_jac.lower[first..].copy_from_slice(&self.jac.lower[first..]);
-                    self.lu_jac.upper[first..].copy_from_slice(&self.jac.upper[first..]);
+                    self.lu_jac.diag[lo..hi].copy_from_slice(&self.jac.diag[lo..hi]);
+                    self.lu_jac.lower[lo..hi].copy_from_slice(&self.jac.lower[lo..hi]);
+                    self.lu_jac.upper[lo..hi].copy_from_slice(&self.jac.upper[lo..hi]);
                     self.lu_jac.rank_one = self.jac.rank_one;
                 } else {
                     self.lu_gh = f64::NAN;
@@ -221,7 +253,7 @@ impl<'m> Ros2<'m> {
                 for ((x, y), k) in self.tmp.iter_mut().zip(&self.y).zip(&self.k1) {
                     *x = y + h * k;
                 }
-                model.heating(self.t + h, &self.tmp, &mut self.ws, &mut self.k2);
+                model.heating_inline(self.t + h, &self.tmp, &mut self.ws, &mut self.k2);
                 self.stats.rhs_evals += 1;
                 for ((k2, c), k1) in self.k2.iter_mut().zip(&self.cap).zip(&self.k1) {
                     *k2 -= 2.0 * c * k1;
@@ -252,9 +284,9 @@ impl<'m> Ros2<'m> {
                     *y = yp + h * (1.5 * k1 + 0.5 * k2);
                 }
                 self.t = if last { self.t_end } else { self.t + h };
-                check_state(model, self.t, &self.y)?;
+                super::check_state_inline(model, self.t, &self.y)?;
                 // FSAL: the new state's heating starts the next step, and its Jacobian with it.
-                model.heating_with_jacobian(self.t, &self.y, &mut self.ws, &mut self.f, &mut self.jac);
+                model.heating_with_jacobian_inline(self.t, &self.y, &mut self.ws, &mut self.f, &mut self.jac);
                 self.jac_fresh = true;
                 self.stats.rhs_evals += 1;
                 for (fi, c) in self.f.iter_mut().zip(&self.inv_cap) {
@@ -301,27 +333,54 @@ impl<'m> Ros2<'m> {
         }
     }
 
-    /// First row from which the factorisation must be redone for `gh = gamma h` (`n`: none).
-    #[inline]
-    fn first_changed_row(&self, gh: f64) -> usize {
+    /// The rows `lo..hi` whose factorisation must be redone for `gh = gamma h` (`lo >= hi`:
+    /// none; `0..n`: all).
+    #[inline(always)]
+    fn changed_rows(&self, gh: f64) -> (usize, usize) {
         let n = self.y.len();
         // A fixed step is `t0 + (k + 1) h - t`, equal to `h` only to round-off: a relative
         // difference below 1e-12 keeps the factorisation (a W-method keeps its order with any
         // matrix; the change is 1e-12 of the implicit part). Measured against the `gamma h` of
         // the last full factorisation, so differences never accumulate.
         if !((gh - self.lu_gh).abs() <= 1e-12 * gh.abs()) || self.jac.rank_one != self.lu_jac.rank_one {
-            return 0;
+            return (0, n);
+        }
+        let (a, b) = (&self.jac, &self.lu_jac);
+        let (ad, al, au) = (&a.diag[..n], &a.lower[..n], &a.upper[..n]);
+        let (bd, bl, bu) = (&b.diag[..n], &b.lower[..n], &b.upper[..n]);
+        // One pass in blocks of eight rows, each tested branch-free (vectorised); only a block
+        // holding a change is searched row by row.
+        let differs = |i: usize| (ad[i] != bd[i]) | (al[i] != bl[i]) | (au[i] != bu[i]);
+        let (mut lo, mut hi) = (n, 0);
+        let mut k = 0;
+        while k < n {
+            let end = (k + 8).min(n);
+            let mut any = false;
+            if end - k == 8 {
+                for i in k..k + 8 {
+                    any |= differs(i);
+                }
+            } else {
+                any = true; // the short last block is searched directly
+            }
+            if any {
+                for i in k..end {
+                    if differs(i) {
+                        lo = lo.min(i);
+                        hi = i + 1;
+                    }
+                }
+            }
+            k = end;
+        }
+        if lo >= hi {
+            return (n, n);
         }
         // With a rank-one part every row's z changes with any entry: all or nothing.
-        let (a, b) = (&self.jac, &self.lu_jac);
-        let first = (0..n)
-            .find(|&i| a.diag[i] != b.diag[i] || a.lower[i] != b.lower[i] || a.upper[i] != b.upper[i])
-            .unwrap_or(n);
-        if first < n && a.rank_one.is_some() {
-            0
-        } else {
-            first
+        if a.rank_one.is_some() {
+            return (0, n);
         }
+        (lo, hi)
     }
 
     /// Cubic Hermite interpolation of the state at `t` within the last step into `out`.
