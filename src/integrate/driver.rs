@@ -38,6 +38,8 @@ pub struct RunSummary {
     pub outputs: u64,
     /// Integrator counters.
     pub stats: Stats,
+    /// Wall time spent stepping (inside the integrator, not recording), seconds.
+    pub stepping_seconds: f64,
 }
 
 /// The output times of a run: `0, dt, 2 dt, ...` and the end.
@@ -301,9 +303,12 @@ pub fn run_from(
     let mut state = last.to_vec();
     let mut outputs = done;
     let mut t_last = 0.0;
+    let mut stepping = std::time::Duration::ZERO;
     for t in output_times(time.years, time.output_every).skip(done as usize) {
         if t > 0.0 {
+            let start = std::time::Instant::now();
             stepper.integ().advance_to(t, &mut state)?;
+            stepping += start.elapsed();
         }
         observer.record(t, &state).map_err(RunError::Output)?;
         outputs += 1;
@@ -324,6 +329,7 @@ pub fn run_from(
         final_state: state,
         outputs,
         stats: stepper.stats(),
+        stepping_seconds: stepping.as_secs_f64(),
     })
 }
 
@@ -346,6 +352,7 @@ fn run_every_step(
     };
     let mut outputs = done;
     let mut stop = false;
+    let mut stepping = std::time::Duration::ZERO;
     if done == 0 {
         observer.record(0.0, last).map_err(RunError::Output)?;
         outputs = 1;
@@ -356,7 +363,9 @@ fn run_every_step(
         if r.time() >= time.years {
             break;
         }
+        let start = std::time::Instant::now();
         r.step()?;
+        stepping += start.elapsed();
         let t = r.time();
         observer.record(t, r.state()).map_err(RunError::Output)?;
         outputs += 1;
@@ -369,5 +378,6 @@ fn run_every_step(
         final_state: r.state().to_vec(),
         outputs,
         stats: r.stats(),
+        stepping_seconds: stepping.as_secs_f64(),
     })
 }

@@ -975,21 +975,28 @@ impl Inner {
         var.dataset.write_raw(values).map_err(fail)
     }
 
+    /// Buffers one record (called once per variable per output time: the full path is built
+    /// once, and the file path is cloned only for an error).
     fn append<T: Elem>(&mut self, group: &str, name: &str, row: &[T]) -> Result<(), OutputError> {
-        let path = self.path.clone();
-        let var = self.var_mut(group, name)?;
         let full = join(group, name);
-        var.check_kind::<T>(&path, &full)?;
+        let Inner { vars, path, .. } = self;
+        let Some(var) = vars.get_mut(&full) else {
+            return Err(OutputError::UnknownVariable {
+                path: path.clone(),
+                variable: full,
+            });
+        };
+        var.check_kind::<T>(path, &full)?;
         let Some(rec) = var.record.as_mut() else {
             return Err(OutputError::Layout {
-                path,
+                path: path.clone(),
                 variable: full,
                 reason: "is not along an unlimited dimension; write it whole".to_owned(),
             });
         };
         if row.len() != rec.row_len {
             return Err(OutputError::LengthMismatch {
-                path,
+                path: path.clone(),
                 variable: full,
                 expected: rec.row_len,
                 actual: row.len(),
@@ -1005,7 +1012,7 @@ impl Inner {
         };
         if buffered >= full_chunk {
             var.flush().map_err(|source| OutputError::Hdf5 {
-                path,
+                path: path.clone(),
                 object: format!("variable `{full}`"),
                 source,
             })?;
