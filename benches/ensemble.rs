@@ -141,9 +141,24 @@ fn member_count() {
         .join("target")
         .join("criterion");
     let _ = std::fs::create_dir_all(&dir);
+    // The kernel rows (src/tally.rs) of the whole 1000-member job, on one thread.
+    let cfg = load(
+        "ensemble-lhs.toml",
+        &["ensemble.members=1000", "ensemble.sensitivity=false"],
+    );
+    let before = icefold::tally::snapshot();
+    let opts = EnsembleOptions {
+        threads: Some(1),
+        ..EnsembleOptions::default()
+    };
+    black_box(run_ensemble(&cfg, opts).unwrap().count());
+    let mut body = vec![format!("  \"member_steps\": {}", st.steps + st.rejected)];
+    for (name, rows) in icefold::tally::snapshot().since(&before).named() {
+        body.push(format!("  \"ensemble.{name}\": {rows}"));
+    }
     let _ = std::fs::write(
         dir.join("icefold-counts-ensemble.json"),
-        format!("{{\n  \"member_steps\": {}\n}}\n", st.steps + st.rejected),
+        format!("{{\n{}\n}}\n", body.join(",\n")),
     );
 }
 

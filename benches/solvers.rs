@@ -68,6 +68,24 @@ fn peak(c: &mut Criterion) {
             black_box(x[17])
         })
     });
+    // The same two kernels compiled for AVX2 and FMA (what the implicit step runs on such a
+    // CPU, src/cpu.rs): four lanes per instruction, a multiply-add in one instruction.
+    #[cfg(target_arch = "x86_64")]
+    if icefold::cpu::wide_fma() {
+        g.bench_function("independent_fma_wide", |b| {
+            b.iter(|| {
+                // SAFETY: the CPU has AVX2 and FMA (checked just above).
+                unsafe { wide::independent(&mut x, black_box(0.999_999), black_box(1e-7)) };
+                black_box(x[17])
+            })
+        });
+        g.bench_function("dependent_fma_wide", |b| {
+            b.iter(|| {
+                // SAFETY: as above.
+                black_box(unsafe { wide::dependent(black_box(1.0), black_box(0.999_999), black_box(1e-7)) })
+            })
+        });
+    }
     g.bench_function("dependent_mul_add", |b| {
         b.iter(|| {
             let (a, s) = (black_box(0.999_999), black_box(1e-7));
@@ -79,6 +97,37 @@ fn peak(c: &mut Criterion) {
         })
     });
     g.finish();
+}
+
+#[cfg(target_arch = "x86_64")]
+mod wide {
+    /// `x = x a + s` over `x`, fused, vectorised by the compiler.
+    #[target_feature(enable = "avx2,fma")]
+    pub unsafe fn independent(x: &mut [f64], a: f64, s: f64) {
+        for v in x.iter_mut() {
+            *v = v.mul_add(a, s);
+        }
+    }
+
+    /// One chain of 4096 fused multiply-adds.
+    #[target_feature(enable = "avx2,fma")]
+    pub unsafe fn dependent(mut v: f64, a: f64, s: f64) -> f64 {
+        for _ in 0..4096 {
+            v = v.mul_add(a, s);
+        }
+        v
+    }
+}
+
+/// Record the kernel rows (src/tally.rs) one call of `f` does, under `key`, for the bounds of
+/// whole workloads.
+fn tally<T>(key: &str, f: impl FnOnce() -> T) -> T {
+    let before = icefold::tally::snapshot();
+    let out = f();
+    for (name, rows) in icefold::tally::snapshot().since(&before).named() {
+        count(&format!("{key}.{name}"), rows as f64);
+    }
+    out
 }
 
 fn per_band_step(c: &mut Criterion) {
@@ -182,7 +231,7 @@ fn workloads(c: &mut Criterion) {
     let y0 = model.initial_state(&cfg.spec.initial);
     let mut out = vec![0.0; model.len()];
     let mut integ = driver::integrator(&model, &cfg.spec.time, 0.0, &y0, 1000.0);
-    integ.advance_to(1000.0, &mut out).unwrap();
+    tally("run_1000yr", || integ.advance_to(1000.0, &mut out).unwrap());
     let st = integ.stats();
     count("run_1000yr_steps", (st.steps + st.rejected) as f64);
     g.bench_function("run_1000yr_90bands", |b| {
@@ -196,7 +245,9 @@ fn workloads(c: &mut Criterion) {
     let cfg = load("classic-step-albedo.toml", &[]);
     let model = Model::from_spec(&cfg.spec.model);
     let y0 = model.initial_state(&cfg.spec.initial);
-    let res = newton(&model, 0.0, &y0, NewtonOptions::default()).unwrap();
+    let res = tally("newton", || {
+        newton(&model, 0.0, &y0, NewtonOptions::default()).unwrap()
+    });
     count("newton_iterations", res.iterations as f64);
     g.bench_function("newton_90bands", |b| {
         b.iter(|| {
@@ -209,6 +260,7 @@ fn workloads(c: &mut Criterion) {
     });
     // Two-way sweep: 121 values of S0 each way, settled, tipping points refined.
     let cfg = load("sweep-solar.toml", &[]);
+    tally("sweep", || icefold::jobs::sweep::run_sweep(&cfg, false).unwrap());
     g.bench_function("sweep_121x2_90bands", |b| {
         b.iter(|| {
             black_box(
@@ -221,7 +273,9 @@ fn workloads(c: &mut Criterion) {
     });
     // Full continuation curve (every branch, folds located).
     let cfg = load("branches-solar.toml", &[]);
-    let set = icefold::jobs::branches::run_branches(&cfg).unwrap();
+    let set = tally("continuation", || {
+        icefold::jobs::branches::run_branches(&cfg).unwrap()
+    });
     let points: usize = set.branches.iter().map(|b| b.points.len()).sum();
     count("continuation_points", points as f64);
     count("continuation_linearisations", set.linearisations as f64);
@@ -234,6 +288,26 @@ fn workloads(c: &mut Criterion) {
             )
         })
     });
+    // The regime map of configs/regimes-classic.toml (21 x 141 cells, each a continuation in
+    // the second control), rows spread over 1 and 2 threads; counted on one thread (the same
+    // work on any number).
+    let cfg = load("regimes-classic.toml", &[]);
+    let one = icefold::jobs::regimes::RegimesOptions {
+        threads: Some(1),
+        ..Default::default()
+    };
+    tally("regimes", || {
+        icefold::jobs::regimes::run_regimes(&cfg, one).unwrap()
+    });
+    for threads in [1usize, 2] {
+        let opts = icefold::jobs::regimes::RegimesOptions {
+            threads: Some(threads),
+            ..Default::default()
+        };
+        g.bench_with_input(BenchmarkId::new("regimes_21x141", threads), &threads, |b, _| {
+            b.iter(|| black_box(icefold::jobs::regimes::run_regimes(&cfg, opts).unwrap()))
+        });
+    }
     g.finish();
 }
 

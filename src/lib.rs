@@ -35,4 +35,5 @@ pub mod model;
 pub mod output;
 pub mod plot;
 pub mod quadrature;
+pub mod tally;
 pub mod transport;

@@ -137,6 +137,54 @@ fn pivot_ok(piv: f64, row: usize) -> Result<f64, SingularMatrix> {
     }
 }
 
+/// The rows of a matrix being factorised.
+struct Rows<'a> {
+    a: &'a [f64],
+    b: &'a [f64],
+    c: &'a [f64],
+    n: usize,
+}
+
+impl Rows<'_> {
+    /// Eliminate row `i` downward, given `g` of row `i - 1`; returns `g` of row `i`.
+    #[inline(always)]
+    fn down(
+        &self,
+        i: usize,
+        g_prev: f64,
+        elim: &mut [f64],
+        inv_piv: &mut [f64],
+        back: &mut [f64],
+    ) -> Result<f64, SingularMatrix> {
+        let ai = if i > 0 { self.a[i] } else { 0.0 };
+        let p = pivot_ok(self.b[i] - ai * g_prev, i)?;
+        elim[i] = ai * p;
+        inv_piv[i] = p;
+        let g = if i + 1 < self.n { self.c[i] * p } else { 0.0 };
+        back[i] = g;
+        Ok(g)
+    }
+
+    /// Eliminate row `i` upward, given `g` of row `i + 1`; returns `g` of row `i`.
+    #[inline(always)]
+    fn up(
+        &self,
+        i: usize,
+        g_prev: f64,
+        elim: &mut [f64],
+        inv_piv: &mut [f64],
+        back: &mut [f64],
+    ) -> Result<f64, SingularMatrix> {
+        let ci = if i + 1 < self.n { self.c[i] } else { 0.0 };
+        let p = pivot_ok(self.b[i] - ci * g_prev, i)?;
+        elim[i] = ci * p;
+        inv_piv[i] = p;
+        let g = self.a[i] * p;
+        back[i] = g;
+        Ok(g)
+    }
+}
+
 impl TridiagLu {
     /// Workspace for size `n`.
     pub fn new(n: usize, weights: &[f64]) -> TridiagLu {
@@ -167,6 +215,7 @@ impl TridiagLu {
     /// factorisation: exact when `m` agrees with the previously factorised matrix outside
     /// those rows (the downward elimination of row `i` depends only on rows `0..=i`, the upward
     /// one only on rows `i..n`). `lo >= hi` redoes only the meeting and the rank-one part.
+    #[inline]
     pub fn factor_rows(&mut self, m: &Tridiag, lo: usize, hi: usize) -> Result<(), SingularMatrix> {
         let n = m.len();
         if n == 0 {
@@ -182,36 +231,18 @@ impl TridiagLu {
         let up = if hi > mid + 1 && lo < hi { top - mid } else { 0 };
         let mut g_dn = if lo > 0 && down > 0 { back[lo - 1] } else { 0.0 };
         let mut g_up = if top + 1 < n && up > 0 { back[top + 1] } else { 0.0 };
-        let down_row = |k: usize, g_prev: f64, elim: &mut [f64], inv_piv: &mut [f64], back: &mut [f64]| {
-            let i = lo + k;
-            let ai = if i > 0 { a[i] } else { 0.0 };
-            let p = pivot_ok(b[i] - ai * g_prev, i)?;
-            elim[i] = ai * p;
-            inv_piv[i] = p;
-            let g = if i + 1 < n { c[i] * p } else { 0.0 };
-            back[i] = g;
-            Ok(g)
-        };
-        let up_row = |k: usize, g_prev: f64, elim: &mut [f64], inv_piv: &mut [f64], back: &mut [f64]| {
-            let i = top - k;
-            let ci = if i + 1 < n { c[i] } else { 0.0 };
-            let p = pivot_ok(b[i] - ci * g_prev, i)?;
-            elim[i] = ci * p;
-            inv_piv[i] = p;
-            let g = a[i] * p;
-            back[i] = g;
-            Ok::<f64, SingularMatrix>(g)
-        };
+        let rows = Rows { a, b, c, n };
         for k in 0..down.min(up) {
-            g_dn = down_row(k, g_dn, elim, inv_piv, back)?;
-            g_up = up_row(k, g_up, elim, inv_piv, back)?;
+            g_dn = rows.down(lo + k, g_dn, elim, inv_piv, back)?;
+            g_up = rows.up(top - k, g_up, elim, inv_piv, back)?;
         }
         for k in down.min(up)..down {
-            g_dn = down_row(k, g_dn, elim, inv_piv, back)?;
+            g_dn = rows.down(lo + k, g_dn, elim, inv_piv, back)?;
         }
         for k in down.min(up)..up {
-            g_up = up_row(k, g_up, elim, inv_piv, back)?;
+            g_up = rows.up(top - k, g_up, elim, inv_piv, back)?;
         }
+        crate::tally::add(crate::tally::Kernel::FactorRow, down + up);
         self.inv_meet = if mid + 1 < n {
             let det = 1.0 - back[mid] * back[mid + 1];
             pivot_ok(det, mid + 1)?
@@ -222,6 +253,7 @@ impl TridiagLu {
         if let Some(s) = m.rank_one {
             self.z.iter_mut().for_each(|v| *v = s);
             let mut z = std::mem::take(&mut self.z);
+            crate::tally::add(crate::tally::Kernel::SolveRow, n);
             self.solve_tridiag(&mut z);
             self.z = z;
             self.denom = 1.0 + dot(&self.weights, &self.z);
@@ -286,6 +318,7 @@ impl TridiagLu {
     /// Solve `A x = b` in place.
     #[inline(always)]
     pub fn solve(&self, b: &mut [f64]) {
+        crate::tally::add(crate::tally::Kernel::SolveRow, b.len());
         self.solve_tridiag(b);
         if self.has_rank_one {
             let f = dot(&self.weights, b) / self.denom;

@@ -235,6 +235,7 @@ impl Model {
     /// compiled once per CPU feature level: see [`crate::cpu`]).
     #[inline(always)]
     pub(crate) fn heating_inline(&self, t_years: f64, temps: &[f64], ws: &mut Workspace, out: &mut [f64]) {
+        crate::tally::add(crate::tally::Kernel::Heating, temps.len());
         self.refresh_sun(t_years, ws);
         let d = self.drivers_at(t_years);
         let n = temps.len();
@@ -341,6 +342,7 @@ impl Model {
 
     /// Jacobian of the net heating, `dG_i/dT_j` in W m-2 K-1, into `jac` (overwritten).
     pub fn heating_jacobian(&self, t_years: f64, temps: &[f64], ws: &mut Workspace, jac: &mut Tridiag) {
+        crate::tally::add(crate::tally::Kernel::Jacobian, temps.len());
         self.refresh_sun(t_years, ws);
         let d = self.drivers_at(t_years);
         jac.diag.iter_mut().for_each(|v| *v = 0.0);
@@ -398,6 +400,7 @@ impl Model {
         out: &mut [f64],
         jac: &mut Tridiag,
     ) {
+        crate::tally::add(crate::tally::Kernel::HeatingJacobian, temps.len());
         self.refresh_sun(t_years, ws);
         let d = self.drivers_at(t_years);
         if let (Transport::Diffusive { face_k, inv_dx }, 1.0) = (&self.transport, d.transport_scale) {

@@ -250,6 +250,7 @@ impl Stability {
 /// Number of eigenvalues below `x` of the symmetric tridiagonal with diagonal `d` and squared
 /// off-diagonal `e2` (Sturm count).
 fn sturm_count(d: &[f64], e2: &[f64], x: f64) -> usize {
+    crate::tally::add(crate::tally::Kernel::SturmRow, d.len());
     let mut count = 0;
     let mut q = 1.0_f64;
     for i in 0..d.len() {
@@ -267,6 +268,7 @@ fn sturm_count(d: &[f64], e2: &[f64], x: f64) -> usize {
 /// `det(A - x I) / (d/dx det(A - x I))` by the pivot recurrence, or `None` when a pivot
 /// vanishes.
 fn newton_ratio(d: &[f64], e2: &[f64], x: f64) -> Option<f64> {
+    crate::tally::add(crate::tally::Kernel::RatioRow, d.len());
     // q_i = d_i - x - e2_{i-1} / q_{i-1};  q_i' = -1 + e2_{i-1} q_{i-1}' / q_{i-1}^2;
     // (log det)' = sum q_i' / q_i.
     let (mut q, mut dq) = (1.0_f64, 0.0_f64);

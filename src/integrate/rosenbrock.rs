@@ -243,6 +243,7 @@ impl<'m> Ros2<'m> {
                 true
             };
             let mut err = f64::INFINITY;
+            crate::tally::add(crate::tally::Kernel::Ros2Row, n);
             if factored {
                 // Stage 1: k1 = M^-1 G(t, y) = M^-1 (C/yr) f.
                 for ((k, c), f) in self.k1.iter_mut().zip(&self.cap).zip(&self.f) {
