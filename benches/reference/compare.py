@@ -18,6 +18,7 @@ from __future__ import annotations
 import argparse
 import multiprocessing
 import os
+import re
 import subprocess
 import sys
 import tempfile
@@ -50,7 +51,18 @@ def best_of(fn, repeats=3):
 
 
 def icefold(binary, args):
-    subprocess.run([binary, *args], check=True, stdout=subprocess.DEVNULL)
+    """Run icefold; returns its summary line (stderr)."""
+    r = subprocess.run([binary, *args], check=True, stdout=subprocess.DEVNULL,
+                       stderr=subprocess.PIPE, text=True)
+    return r.stderr
+
+
+def stepping_seconds(summary):
+    """The stepping time an `icefold run` summary reports ("... X ms stepping of Y ms in all")."""
+    m = re.search(r"([0-9.]+) ms stepping of", summary)
+    if not m:
+        raise RuntimeError(f"no stepping time in the run summary: {summary!r}")
+    return float(m.group(1)) / 1e3
 
 
 def transient(binary, tmp):
@@ -60,7 +72,7 @@ def transient(binary, tmp):
     out = os.path.join(tmp, "run.nc")
 
     def run_icefold(tol):
-        icefold(binary, ["run", str(CLASSIC), "-o", out, "--overwrite",
+        return icefold(binary, ["run", str(CLASSIC), "-o", out, "--overwrite",
                          "--set", "initial.temperature_c=15", "--set", "initial.temperature_p2_k=0",
                          "--set", "time.years=1000", "--set", f"time.tolerance={tol}"])
 
@@ -82,11 +94,15 @@ def transient(binary, tmp):
                 break
         else:
             raise RuntimeError(f"{name} never reached {TARGET_K} K")
-    t_ice, _ = best_of(lambda: run_icefold(rows["icefold"][0]))
+    summaries = []
+    t_ice, _ = best_of(lambda: summaries.append(run_icefold(rows["icefold"][0])))
+    stepping = min(stepping_seconds(x) for x in summaries)
     tol_py = rows["numpy/scipy BDF"][0]
     t_py, _ = best_of(lambda: nm.transient(model, t0, 1000.0, rtol=tol_py, atol=tol_py))
     detail = (f"icefold tolerance {rows['icefold'][0]:g} K (max error {rows['icefold'][1]:.1e} K), "
-              f"BDF rtol=atol={tol_py:g} (max error {rows['numpy/scipy BDF'][1]:.1e} K)")
+              f"BDF rtol=atol={tol_py:g} (max error {rows['numpy/scipy BDF'][1]:.1e} K); "
+              f"icefold's stepping alone (from its run summary) {1e3 * stepping:.2f} ms, "
+              f"{t_py / stepping:.0f}x the numpy/scipy computation")
     return t_py, t_ice, detail
 
 
