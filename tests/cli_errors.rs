@@ -384,6 +384,29 @@ fn bad_inputs_exit_2_with_a_clear_message_and_no_output() {
             &["ensemble.members", "from 1 to"],
         ),
         case(
+            "deflate level above 9",
+            "[output]\ndeflate_level = 10\n",
+            &[],
+            &["output.deflate_level", "= 10", "from 0", "to 9"],
+        ),
+        case(
+            "--set negative deflate level",
+            "",
+            &["--set", "output.deflate_level=-1"],
+            &[
+                "--set output.deflate_level=-1",
+                "output.deflate_level",
+                "from 0",
+                "to 9",
+            ],
+        ),
+        case(
+            "fractional deflate level",
+            "[output]\ndeflate_level = 1.5\n",
+            &[],
+            &["output.deflate_level", "expected a whole number"],
+        ),
+        case(
             "forcing file is a directory",
             "[forcing]\nfile = \".\"\n",
             &[],

@@ -17,6 +17,7 @@ pub const INTEGER_KEYS: &[&str] = &[
     "regimes.max_points",
     "equilibrium.max_iterations",
     "time.max_steps",
+    "output.deflate_level",
 ];
 
 /// The whole file.
@@ -58,6 +59,9 @@ pub struct RawConfig {
     /// `[equilibrium]`.
     #[serde(default)]
     pub equilibrium: RawEquilibrium,
+    /// `[output]`.
+    #[serde(default)]
+    pub output: RawOutput,
     /// `[sweep]`.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub sweep: Option<RawSweep>,
@@ -317,6 +321,14 @@ pub struct RawEquilibrium {
     pub max_iterations: Option<i64>,
     /// Also write the doubled-CO2 equilibrium sensitivity into run files.
     pub sensitivity: Option<bool>,
+}
+
+/// `[output]`: how files are written (never what they hold).
+#[derive(Debug, Clone, Default, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RawOutput {
+    /// zlib deflate level of record and large variables, 0 (none) to 9.
+    pub deflate_level: Option<i64>,
 }
 
 /// `[sweep]`.

@@ -177,6 +177,13 @@ pub struct EquilibriumSpec {
     pub sensitivity: bool,
 }
 
+/// `[output]`, validated.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct OutputSpec {
+    /// zlib deflate level of record and large variables: 0 (stored without filters) to 9.
+    pub deflate_level: u8,
+}
+
 /// `[sweep]`, validated.
 #[derive(Debug, Clone, PartialEq)]
 pub struct SweepSpec {
@@ -226,6 +233,8 @@ pub struct Spec {
     pub time: TimeSpec,
     /// Equilibrium solver.
     pub equilibrium: EquilibriumSpec,
+    /// How files are written.
+    pub output: OutputSpec,
     /// Sweep, if configured.
     pub sweep: Option<SweepSpec>,
     /// Continuation, if configured.

@@ -659,6 +659,26 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
         sensitivity: *e.sensitivity.get_or_insert(false),
     };
 
+    // [output]
+    let o = &mut raw.output;
+    let level = o
+        .deflate_level
+        .unwrap_or(i64::from(crate::output::DEFAULT_DEFLATE_LEVEL));
+    let max_level = crate::output::MAX_DEFLATE_LEVEL;
+    if !(0..=i64::from(max_level)).contains(&level) {
+        return Err(c.range_err(
+            "output.deflate_level",
+            level.to_string(),
+            format!(
+                "allowed: a whole number from 0 (no compression, fastest) to {max_level} (smallest files)"
+            ),
+        ));
+    }
+    o.deflate_level = Some(level);
+    let output = OutputSpec {
+        deflate_level: level as u8,
+    };
+
     // [sweep]
     let sweep = match raw.sweep.as_mut() {
         None => None,
@@ -764,6 +784,7 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
         initial,
         time,
         equilibrium,
+        output,
         sweep,
         branches,
         ensemble,

@@ -357,6 +357,7 @@ fn run_ensemble_ck(
     let mut data = EnsembleData {
         config_toml: cfg.resolved_text(),
         title: cfg.spec.title.clone(),
+        deflate_level: cfg.spec.output.deflate_level,
         members_total: total,
         first_member: range.start,
         seed: spec.seed,

@@ -32,6 +32,7 @@ pub fn provenance(cfg: &Loaded, command_line: &str) -> Provenance {
         config_toml: cfg.resolved_text(),
         command_line: command_line.to_string(),
         title: cfg.spec.title.clone(),
+        deflate_level: cfg.spec.output.deflate_level,
     }
 }
 

@@ -2,9 +2,11 @@
 //! `point`), the located folds (dimension `fold`) and one row per branch (dimension
 //! `branches`), with the fixed names of DESIGN section 4.
 
-use super::common::{apply_completion, attrs, write_latitude, write_provenance, Completion, Provenance};
+use super::common::{
+    apply_completion, attrs, create_file, write_latitude, write_provenance, Completion, Provenance,
+};
+use super::Attr;
 use super::OutputError;
-use super::{Attr, NcWriter};
 use crate::equilibrium::continuation::{Branch, LegEnd};
 use crate::equilibrium::control::control_units;
 use crate::model::Model;
@@ -56,7 +58,7 @@ pub fn write_branches_with(
     completion: &Completion,
 ) -> Result<(), OutputError> {
     let units = control_units(info.control_key);
-    let mut w = NcWriter::create(path)?;
+    let mut w = create_file(path, prov)?;
     write_provenance(&mut w, prov, "branches")?;
     write_latitude(&mut w, &model.grid)?;
     let pts: Vec<(usize, &crate::equilibrium::continuation::BranchPoint)> = branches

@@ -13,6 +13,13 @@ pub struct Provenance {
     pub command_line: String,
     /// The scenario title.
     pub title: String,
+    /// zlib deflate level of the file's record and large variables (`output.deflate_level`).
+    pub deflate_level: u8,
+}
+
+/// Starts the file `path` with the deflate level of `prov`.
+pub fn create_file(path: &std::path::Path, prov: &Provenance) -> Result<NcWriter, OutputError> {
+    NcWriter::create_with_deflate(path, prov.deflate_level)
 }
 
 /// icefold's version.
@@ -43,8 +50,8 @@ pub fn utc_now() -> String {
     )
 }
 
-/// Global attributes: CF conventions, provenance, the kind of file, and `complete = 0`
-/// (set to 1 by `mark_complete` when the job finished).
+/// Global attributes: CF conventions, provenance, the kind of file, the deflate level it was
+/// written with, and `complete = 0` (set to 1 by `mark_complete` when the job finished).
 pub fn write_provenance(w: &mut NcWriter, prov: &Provenance, kind: &str) -> Result<(), OutputError> {
     let now = utc_now();
     w.set_attr_str("Conventions", "CF-1.8")?;
@@ -61,6 +68,7 @@ pub fn write_provenance(w: &mut NcWriter, prov: &Provenance, kind: &str) -> Resu
     w.set_attr_str("command_line", &prov.command_line)?;
     w.set_attr_str("config_toml", &prov.config_toml)?;
     w.set_attr_str("time_units_note", "model time in years of 365.25 days")?;
+    w.set_attr_i64("deflate_level", i64::from(prov.deflate_level))?;
     w.set_attr_i64("complete", 0)?;
     Ok(())
 }

@@ -8,8 +8,8 @@
 //! concatenates them and writes exactly what a single run writes (only `creation_time`,
 //! `history` and `command_line` differ).
 
-use super::common::{apply_completion, attrs, write_provenance, Completion, Provenance};
-use super::{Attr, NcReader, NcWriter, OutputError};
+use super::common::{apply_completion, attrs, create_file, write_provenance, Completion, Provenance};
+use super::{Attr, NcReader, OutputError};
 use std::path::Path;
 
 /// Per-member results of the doubled-CO2 equilibria (NaN where not computed).
@@ -33,6 +33,8 @@ pub struct EnsembleData {
     pub config_toml: String,
     /// Scenario title.
     pub title: String,
+    /// zlib deflate level the file is written with (`output.deflate_level`).
+    pub deflate_level: u8,
     /// Members of the whole ensemble.
     pub members_total: usize,
     /// Index of this file's first member.
@@ -109,12 +111,13 @@ pub fn write_with(
     shard: Option<(usize, usize)>,
     completion: &Completion,
 ) -> Result<(), OutputError> {
-    let mut w = NcWriter::create(path)?;
     let prov = Provenance {
         config_toml: data.config_toml.clone(),
         command_line: command_line.to_string(),
         title: data.title.clone(),
+        deflate_level: data.deflate_level,
     };
+    let mut w = create_file(path, &prov)?;
     write_provenance(&mut w, &prov, "ensemble")?;
     w.set_attr_i64("members_total", data.members_total as i64)?;
     w.set_attr_i64("member_first", data.first_member as i64)?;
@@ -356,6 +359,14 @@ pub fn read(path: &Path) -> Result<(EnsembleData, Option<String>), OutputError> 
         None
     };
     let first_member = need_i64("member_first")? as usize;
+    // Files written before the attribute existed used the default level.
+    let deflate_level = match r.attr_i64("deflate_level")? {
+        None => super::DEFAULT_DEFLATE_LEVEL,
+        Some(l) => u8::try_from(l)
+            .ok()
+            .filter(|l| *l <= super::MAX_DEFLATE_LEVEL)
+            .ok_or_else(|| bad(path, &format!("deflate_level = {l} is not one of 0 to 9")))?,
+    };
     let mut failures = Vec::new();
     if let Some(list) = r.attr_str("failed_members")? {
         let first = r.attr_str("first_failure")?.unwrap_or_default();
@@ -370,6 +381,7 @@ pub fn read(path: &Path) -> Result<(EnsembleData, Option<String>), OutputError> 
     let data = EnsembleData {
         config_toml: need_str("config_toml")?,
         title: r.attr_str("title")?.unwrap_or_default(),
+        deflate_level,
         members_total: need_i64("members_total")? as usize,
         first_member,
         seed: need_i64("seed")? as u64,

@@ -1,9 +1,9 @@
 //! The file of `icefold equilibrium`: one steady state with its energy budget, residual and
 //! stability spectrum (dimension `mode`), written whole.
 
-use super::common::{attrs, mark_complete, write_latitude, write_provenance, Provenance};
+use super::common::{attrs, create_file, mark_complete, write_latitude, write_provenance, Provenance};
+use super::Attr;
 use super::OutputError;
-use super::{Attr, NcWriter};
 use crate::equilibrium::stability::Spectrum;
 use crate::model::{Model, Workspace};
 use std::path::Path;
@@ -47,7 +47,7 @@ pub fn write_equilibrium(
     let sp = rec.spectrum;
     let leading = sp.real.first().copied().unwrap_or(f64::NAN);
 
-    let mut w = NcWriter::create(path)?;
+    let mut w = create_file(path, prov)?;
     write_provenance(&mut w, prov, "equilibrium")?;
     write_latitude(&mut w, g)?;
     w.add_variable_f64(

@@ -46,7 +46,7 @@ pub mod sweep_file;
 mod writer;
 
 pub use reader::NcReader;
-pub use writer::{Attr, NcGroup, NcWriter};
+pub use writer::{Attr, NcGroup, NcWriter, DEFAULT_DEFLATE_LEVEL, MAX_DEFLATE_LEVEL};
 
 use std::path::PathBuf;
 
@@ -68,6 +68,14 @@ pub enum OutputError {
         dir: PathBuf,
         /// "does not exist" or "is a file, not a directory".
         problem: &'static str,
+    },
+    /// A deflate level outside 0 to [`MAX_DEFLATE_LEVEL`] was asked for.
+    #[error("cannot write {path}: deflate level {level} is not one of 0 to 9")]
+    DeflateLevel {
+        /// The requested output file.
+        path: PathBuf,
+        /// The level asked for.
+        level: u8,
     },
     /// HDF5 could not create the temporary file beside the target.
     #[error("cannot create output file {path} (temporary file {temp}): {source}")]

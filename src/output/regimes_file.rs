@@ -5,9 +5,9 @@
 //! `p1` is `regimes.control` (continued along each row), `p2` is `regimes.row_control`; map
 //! variables have dimensions `(p2, p1)`, so each row is one continuation.
 
-use super::common::{apply_completion, attrs, write_provenance, Completion, Provenance};
+use super::common::{apply_completion, attrs, create_file, write_provenance, Completion, Provenance};
+use super::Attr;
 use super::OutputError;
-use super::{Attr, NcWriter};
 use crate::config::spec::RegimesSpec;
 use crate::equilibrium::control::control_units;
 use crate::equilibrium::regimes::{Kind, RegimeMap, SMALL_CAP_MIN_LATITUDE};
@@ -36,7 +36,7 @@ pub fn write_regimes_with(
     completion: &Completion,
 ) -> Result<(), OutputError> {
     let (u1, u2) = (control_units(&spec.control), control_units(&spec.row_control));
-    let mut w = NcWriter::create(path)?;
+    let mut w = create_file(path, prov)?;
     write_provenance(&mut w, prov, "regimes")?;
     let p2: Vec<f64> = map.rows.iter().map(|r| r.row_value).collect();
     w.add_coordinate(

@@ -1,7 +1,7 @@
 //! The file of `icefold run`: fixed names of DESIGN section 4 plus the energy budget and the
 //! drivers actually applied, streamed record by record (memory flat in run length).
 
-use super::common::{attrs, mark_complete, write_latitude, write_provenance, Provenance};
+use super::common::{attrs, create_file, mark_complete, write_latitude, write_provenance, Provenance};
 use super::OutputError;
 use super::{Attr, NcWriter};
 use crate::ensemble::stats::Ols;
@@ -147,7 +147,7 @@ const SERIES: [(&str, &str, &str); 8] = [
 impl<'m> RunWriter<'m> {
     /// Create the file (at a temporary name until `finish`) and define its variables.
     pub fn create(path: &Path, model: &'m Model, prov: &Provenance) -> Result<RunWriter<'m>, OutputError> {
-        let mut w = NcWriter::create(path)?;
+        let mut w = create_file(path, prov)?;
         write_provenance(&mut w, prov, "run")?;
         w.add_unlimited_coordinate(
             "time",

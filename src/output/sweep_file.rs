@@ -2,9 +2,11 @@
 //! tipping points (dimension `tipping`) and the hysteresis intervals (dimension `interval`),
 //! with the fixed names of DESIGN section 4.
 
-use super::common::{apply_completion, attrs, write_latitude, write_provenance, Completion, Provenance};
+use super::common::{
+    apply_completion, attrs, create_file, write_latitude, write_provenance, Completion, Provenance,
+};
+use super::Attr;
 use super::OutputError;
-use super::{Attr, NcWriter};
 use crate::config::spec::SweepSpec;
 use crate::equilibrium::control::control_units;
 use crate::equilibrium::sweep::{Reached, SweepResult};
@@ -36,7 +38,7 @@ pub fn write_sweep_with(
 ) -> Result<(), OutputError> {
     let units = control_units(&spec.control);
     let control_long = format!("control value ({})", spec.control);
-    let mut w = NcWriter::create(path)?;
+    let mut w = create_file(path, prov)?;
     write_provenance(&mut w, prov, "sweep")?;
     write_latitude(&mut w, &model.grid)?;
     let steps = &res.steps;

@@ -8,8 +8,11 @@
 //! - library-version bounds start at 1.8, so attributes larger than 64 KiB are stored densely;
 //! - each dimension is a dimension scale: a coordinate variable, or a placeholder `f32` dataset
 //!   whose `NAME` is netCDF-C's "not a netCDF variable" text followed by the length;
-//! - variables along the unlimited dimension are chunked (whole rows) with shuffle and deflate
-//!   level 4, and appended records are buffered up to one chunk before they are written.
+//! - variables along the unlimited dimension are chunked (whole rows) with shuffle and deflate at
+//!   the writer's level (default [`DEFAULT_DEFLATE_LEVEL`]; level 0: chunked without filters),
+//!   and appended records are buffered up to one chunk before they are written;
+//! - fixed-size variables of at least [`COMPRESS_MIN_VALUES`] values are chunked with the same
+//!   filters, or contiguous at level 0; smaller ones are always contiguous.
 
 use std::collections::HashMap;
 use std::ffi::CString;
@@ -17,6 +20,7 @@ use std::path::{Path, PathBuf};
 use std::str::FromStr;
 use std::sync::atomic::{AtomicU64, Ordering};
 
+use hdf5::filters::Filter;
 use hdf5::plist::file_create::{AttrCreationOrder, LinkCreationOrder};
 use hdf5::types::VarLenUnicode;
 use hdf5::{Dataset, Extent, Extents, File, H5Type, Hyperslab, Location, SliceOrIndex};
@@ -24,9 +28,11 @@ use ndarray::{ArrayView, IxDyn};
 
 use super::{ds, OutputError, NOT_A_VARIABLE};
 
-/// Deflate level for compressed variables: 1 keeps most of the size gain of the usual 4 at
+/// Deflate level of [`NcWriter::create`]: 1 keeps most of the size gain of the usual 4 at
 /// 20 % fewer instructions per streamed record (measured with callgrind on a run file).
-const DEFLATE_LEVEL: u8 = 1;
+pub const DEFAULT_DEFLATE_LEVEL: u8 = 1;
+/// Highest zlib deflate level (smallest files, slowest).
+pub const MAX_DEFLATE_LEVEL: u8 = 9;
 /// Fixed-size variables with at least this many values are chunked and compressed.
 const COMPRESS_MIN_VALUES: usize = 4096;
 /// Upper bound on the values in one chunk of a fixed-size variable (1 MiB of `f64`).
@@ -198,6 +204,8 @@ struct Inner {
     file: File,
     /// The target path, for messages.
     path: PathBuf,
+    /// Filters of chunked variables (shuffle + deflate, or none at level 0).
+    filters: Vec<Filter>,
 }
 
 /// Deletes the temporary file when dropped, unless disarmed after the final rename.
@@ -374,12 +382,31 @@ macro_rules! content_methods {
 }
 
 impl NcWriter {
-    /// Starts writing `target`. The file appears at `target` only after [`finish`](Self::finish).
+    /// Starts writing `target` with deflate level [`DEFAULT_DEFLATE_LEVEL`]. The file appears
+    /// at `target` only after [`finish`](Self::finish).
     ///
     /// # Errors
     /// [`OutputError::NoDirectory`] if the target's directory does not exist,
     /// [`OutputError::Create`] if HDF5 cannot create the temporary file (e.g. not writable).
     pub fn create(target: &Path) -> Result<NcWriter, OutputError> {
+        Self::create_with_deflate(target, DEFAULT_DEFLATE_LEVEL)
+    }
+
+    /// Starts writing `target` with zlib deflate `level` (0 to [`MAX_DEFLATE_LEVEL`]) for its
+    /// record variables and large fixed-size variables, each after the shuffle filter. Level 0
+    /// stores them without filters: record variables stay chunked (appendable along the
+    /// unlimited dimension), fixed-size ones are contiguous.
+    ///
+    /// # Errors
+    /// [`OutputError::DeflateLevel`] for a level above [`MAX_DEFLATE_LEVEL`], otherwise as
+    /// [`create`](Self::create).
+    pub fn create_with_deflate(target: &Path, level: u8) -> Result<NcWriter, OutputError> {
+        if level > MAX_DEFLATE_LEVEL {
+            return Err(OutputError::DeflateLevel {
+                path: target.to_path_buf(),
+                level,
+            });
+        }
         let dir = match target.parent() {
             Some(d) if !d.as_os_str().is_empty() => d,
             _ => Path::new("."),
@@ -432,6 +459,11 @@ impl NcWriter {
                 dims: HashMap::new(),
                 file,
                 path: target.to_path_buf(),
+                filters: if level == 0 {
+                    Vec::new()
+                } else {
+                    vec![Filter::shuffle(), Filter::deflate(level)]
+                },
             },
             temp,
         })
@@ -466,6 +498,7 @@ impl NcWriter {
             dims,
             file,
             path,
+            ..
         } = inner;
         drop(vars);
         drop(dims);
@@ -726,11 +759,8 @@ impl Inner {
                 .new_dataset::<f64>()
                 .shape(values.len())
                 .attr_creation_order(AttrCreationOrder::Indexed);
-            if values.len() >= COMPRESS_MIN_VALUES {
-                b = b
-                    .chunk(fixed_chunk(&[values.len()]))
-                    .shuffle()
-                    .deflate(DEFLATE_LEVEL);
+            if values.len() >= COMPRESS_MIN_VALUES && !self.filters.is_empty() {
+                b = b.chunk(fixed_chunk(&[values.len()])).set_filters(&self.filters);
             }
             let d = b.create(name)?;
             if !values.is_empty() {
@@ -799,8 +829,7 @@ impl Inner {
                 g.new_dataset::<f64>()
                     .shape(Extents::from(vec![Extent::resizable(0)]))
                     .chunk(vec![chunk_rows])
-                    .shuffle()
-                    .deflate(DEFLATE_LEVEL)
+                    .set_filters(&self.filters)
                     .attr_creation_order(AttrCreationOrder::Indexed)
                     .create(name)
             })
@@ -889,13 +918,12 @@ impl Inner {
                     chunk[0] = chunk_rows;
                     b.shape(Extents::from(ext))
                         .chunk(chunk)
-                        .shuffle()
-                        .deflate(DEFLATE_LEVEL)
+                        .set_filters(&self.filters)
                 } else {
                     let size: usize = shape.iter().product();
                     let b = b.shape(shape.clone());
-                    if size >= COMPRESS_MIN_VALUES {
-                        b.chunk(fixed_chunk(&shape)).shuffle().deflate(DEFLATE_LEVEL)
+                    if size >= COMPRESS_MIN_VALUES && !self.filters.is_empty() {
+                        b.chunk(fixed_chunk(&shape)).set_filters(&self.filters)
                     } else {
                         b
                     }
@@ -1241,9 +1269,89 @@ mod tests {
         let filters = ds.filters();
         assert!(filters.contains(&hdf5::filters::Filter::Shuffle), "{filters:?}");
         assert!(
-            filters.contains(&hdf5::filters::Filter::Deflate(DEFLATE_LEVEL)),
+            filters.contains(&hdf5::filters::Filter::Deflate(DEFAULT_DEFLATE_LEVEL)),
             "{filters:?}"
         );
+    }
+
+    /// One file with a record variable, an unlimited coordinate and a large fixed-size
+    /// variable at deflate `level`; returns the values written to `field`.
+    fn write_levelled(path: &Path, level: u8) -> Vec<f64> {
+        let cols = 90;
+        let mut w = NcWriter::create_with_deflate(path, level).unwrap();
+        w.add_coordinate("lat", &(0..cols).map(|j| j as f64).collect::<Vec<_>>(), &[])
+            .unwrap();
+        w.add_unlimited_coordinate("time", &[]).unwrap();
+        w.add_variable_f64("field", &["time", "lat"], &[]).unwrap();
+        w.add_dimension("member", 100).unwrap();
+        w.add_variable_f64("table", &["member", "lat"], &[]).unwrap();
+        let table: Vec<f64> = (0..100 * cols).map(|k| (k % 7) as f64 * 0.25).collect();
+        w.write_f64("table", &table).unwrap();
+        let mut all = Vec::new();
+        for i in 0..200 {
+            w.append_coordinate("time", i as f64).unwrap();
+            let row: Vec<f64> = (0..cols).map(|j| 250.0 + (i + j) as f64 * 0.125).collect();
+            w.append_row_f64("field", &row).unwrap();
+            all.extend_from_slice(&row);
+        }
+        w.finish().unwrap();
+        all
+    }
+
+    #[test]
+    fn deflate_level_sets_the_filters_of_record_and_large_variables() {
+        use hdf5::plist::dataset_create::Layout;
+        let dir = TestDir::new("levels");
+        for level in [0, 1, 6, 9] {
+            let path = dir.file(&format!("level{level}.nc"));
+            let written = write_levelled(&path, level);
+            let r = NcReader::open(&path).unwrap();
+            // Values are stored, not computed: equality is the right check.
+            assert_eq!(r.read_f64("field").unwrap(), written, "level {level}");
+            assert_eq!(r.var_shape("field").unwrap(), [200, 90]);
+            drop(r);
+            let f = File::open(&path).unwrap();
+            let (field, time, table) = (
+                f.dataset("field").unwrap(),
+                f.dataset("time").unwrap(),
+                f.dataset("table").unwrap(),
+            );
+            // Record variables stay chunked (resizable along the unlimited dimension) at
+            // every level.
+            assert_eq!(field.chunk(), Some(vec![RECORD_CHUNK_ROWS, 90]), "level {level}");
+            assert!(time.is_chunked(), "level {level}");
+            if level == 0 {
+                assert!(field.filters().is_empty(), "{:?}", field.filters());
+                assert!(time.filters().is_empty(), "{:?}", time.filters());
+                assert_eq!(table.layout(), Layout::Contiguous);
+                assert!(table.filters().is_empty());
+            } else {
+                let want = vec![Filter::Shuffle, Filter::Deflate(level)];
+                assert_eq!(field.filters(), want, "level {level}");
+                assert_eq!(time.filters(), want, "level {level}");
+                assert_eq!(table.layout(), Layout::Chunked);
+                assert_eq!(table.filters(), want, "level {level}");
+            }
+        }
+        // The values repeat with a short period, so deflate must shrink the file, and a
+        // higher level must not make it larger than level 1 by more than zlib's block slack.
+        let size = |l: u8| {
+            std::fs::metadata(dir.file(&format!("level{l}.nc")))
+                .unwrap()
+                .len()
+        };
+        assert!(size(1) < size(0), "{} vs {}", size(1), size(0));
+        assert!(size(9) <= size(1) + 512, "{} vs {}", size(9), size(1));
+    }
+
+    #[test]
+    fn deflate_level_above_nine_is_refused_before_a_file_exists() {
+        let dir = TestDir::new("badlevel");
+        let path = dir.file("x.nc");
+        let e = NcWriter::create_with_deflate(&path, 10).err().unwrap();
+        assert!(matches!(e, OutputError::DeflateLevel { level: 10, .. }), "{e}");
+        assert!(e.to_string().contains("0 to 9"), "{e}");
+        assert!(dir.entries().is_empty(), "{:?}", dir.entries());
     }
 
     #[test]
