@@ -170,6 +170,39 @@ macro_rules! with_forms {
     };
 }
 
+/// The interior bands `i = 1..n-1` as slices of one length `n - 2` (index `j = i - 1`), so that
+/// loops over them carry no bounds checks and vectorise: temperatures of the band below, the band
+/// and the band above; conductances of the lower and upper faces; inverse widths, insolation and
+/// ice-free albedo of the band.
+struct Interior<'a> {
+    tl: &'a [f64],
+    tc: &'a [f64],
+    th: &'a [f64],
+    k_lo: &'a [f64],
+    k_hi: &'a [f64],
+    idx: &'a [f64],
+    sn: &'a [f64],
+    afs: &'a [f64],
+}
+
+impl<'a> Interior<'a> {
+    /// For `n > 2` bands: `t`, `inv_dx`, `sun`, `af` hold `n` values, `face_k` `n + 1`.
+    #[inline(always)]
+    fn new(t: &'a [f64], face_k: &'a [f64], inv_dx: &'a [f64], sun: &'a [f64], af: &'a [f64]) -> Self {
+        let m = t.len() - 2;
+        Interior {
+            tl: &t[..m],
+            tc: &t[1..m + 1],
+            th: &t[2..m + 2],
+            k_lo: &face_k[1..m + 1],
+            k_hi: &face_k[2..m + 2],
+            idx: &inv_dx[1..m + 1],
+            sn: &sun[1..m + 1],
+            afs: &af[1..m + 1],
+        }
+    }
+}
+
 /// Run `$body` with `$olr` bound to the OLR (`T -> (OLR, dOLR/dT)`), the linear form inlined.
 macro_rules! with_olr {
     ($self:ident, |$olr:ident| $body:block) => {
@@ -282,9 +315,16 @@ impl Model {
                     // Interior band i = j + 1, over slices of one length (no bounds checks, so
                     // the loop vectorises).
                     let m = n - 2;
-                    let (tl, tc, th) = (&t[..m], &t[1..m + 1], &t[2..]);
-                    let (k_lo, k_hi) = (&face_k[1..m + 1], &face_k[2..m + 2]);
-                    let (idx, sn, afs) = (&inv_dx[1..m + 1], &sun[1..m + 1], &af[1..m + 1]);
+                    let Interior {
+                        tl,
+                        tc,
+                        th,
+                        k_lo,
+                        k_hi,
+                        idx,
+                        sn,
+                        afs,
+                    } = Interior::new(t, face_k, inv_dx, sun, af);
                     let o_in = &mut out[1..m + 1];
                     for j in 0..m {
                         let ti = tc[j];
@@ -426,9 +466,16 @@ impl Model {
                     if n > 2 {
                         // Interior band i = j + 1 over slices of one length (vectorised).
                         let m = n - 2;
-                        let (tl, tc, th) = (&t[..m], &t[1..m + 1], &t[2..]);
-                        let (k_lo, k_hi) = (&face_k[1..m + 1], &face_k[2..m + 2]);
-                        let (idx, sn, afs) = (&inv_dx[1..m + 1], &sun[1..m + 1], &af[1..m + 1]);
+                        let Interior {
+                            tl,
+                            tc,
+                            th,
+                            k_lo,
+                            k_hi,
+                            idx,
+                            sn,
+                            afs,
+                        } = Interior::new(t, face_k, inv_dx, sun, af);
                         let o_in = &mut out[1..m + 1];
                         let (jd, jl, ju) = (&mut jd[1..m + 1], &mut jl[1..m + 1], &mut ju[1..m + 1]);
                         for j in 0..m {

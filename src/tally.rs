@@ -84,28 +84,35 @@ impl Tally {
 
     /// The kernels and their rows, with stable names (for the benchmarks' JSON).
     pub fn named(&self) -> [(&'static str, u64); KINDS] {
-        use Kernel::*;
-        let name = |k: Kernel| match k {
-            Heating => "heating",
-            HeatingJacobian => "heating_jacobian",
-            Jacobian => "jacobian",
-            FactorRow => "factor_row",
-            SolveRow => "solve_row",
-            Ros2Row => "ros2_row",
-            SturmRow => "sturm_row",
-            RatioRow => "ratio_row",
-        };
-        let all = [
-            Heating,
-            HeatingJacobian,
-            Jacobian,
-            FactorRow,
-            SolveRow,
-            Ros2Row,
-            SturmRow,
-            RatioRow,
-        ];
-        all.map(|k| (name(k), self.rows(k)))
+        Kernel::ALL.map(|k| (k.name(), self.rows(k)))
+    }
+}
+
+impl Kernel {
+    /// Every kernel, in counter order.
+    pub const ALL: [Kernel; KINDS] = [
+        Kernel::Heating,
+        Kernel::HeatingJacobian,
+        Kernel::Jacobian,
+        Kernel::FactorRow,
+        Kernel::SolveRow,
+        Kernel::Ros2Row,
+        Kernel::SturmRow,
+        Kernel::RatioRow,
+    ];
+
+    /// Stable name (benches/summary.py reads these).
+    pub fn name(self) -> &'static str {
+        match self {
+            Kernel::Heating => "heating",
+            Kernel::HeatingJacobian => "heating_jacobian",
+            Kernel::Jacobian => "jacobian",
+            Kernel::FactorRow => "factor_row",
+            Kernel::SolveRow => "solve_row",
+            Kernel::Ros2Row => "ros2_row",
+            Kernel::SturmRow => "sturm_row",
+            Kernel::RatioRow => "ratio_row",
+        }
     }
 }
 
