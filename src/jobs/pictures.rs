@@ -90,12 +90,23 @@ fn run_timeseries(r: &NcReader, title: &str) -> Result<Figure, Error> {
         Series::new(t.clone(), read(r, "global_mean_temperature")?, Stroke::Solid, 0)
             .labelled("global-mean temperature"),
     );
-    let mut edge = Panel::new("Time (year)", "Ice edge (°N)");
+    // A globe's two edges share one axis of distance from the equator (the southern edge,
+    // stored in degrees north, is drawn as degrees south).
+    let globe = has(r, "ice_edge_latitude_south")?;
+    let axis = if globe {
+        "Ice edge (° from the equator)"
+    } else {
+        "Ice edge (°N)"
+    };
+    let mut edge = Panel::new("Time (year)", axis);
     edge.series.push(
-        Series::new(t.clone(), read(r, "ice_edge_latitude_north")?, Stroke::Solid, 1)
-            .labelled("northern ice edge"),
+        Series::new(t.clone(), read(r, "ice_edge_latitude_north")?, Stroke::Solid, 1).labelled(if globe {
+            "northern ice edge (°N)"
+        } else {
+            "northern ice edge"
+        }),
     );
-    if has(r, "ice_edge_latitude_south")? {
+    if globe {
         let south: Vec<f64> = read(r, "ice_edge_latitude_south")?.iter().map(|v| -v).collect();
         edge.series
             .push(Series::new(t.clone(), south, Stroke::Dashed, 2).labelled("southern ice edge (°S)"));
