@@ -382,9 +382,19 @@ impl Model {
 
     /// Jacobian of the net heating, `dG_i/dT_j` in W m-2 K-1, into `jac` (overwritten).
     pub fn heating_jacobian(&self, t_years: f64, temps: &[f64], ws: &mut Workspace, jac: &mut Tridiag) {
+        let d = self.drivers_at(t_years);
+        if matches!(self.transport, Transport::Diffusive { .. }) && d.transport_scale == 1.0 {
+            // The fused pass of `heating_with_jacobian` (vectorised, the step albedo decided
+            // with two comparisons away from the edge) gives the same Jacobian bits: its entries
+            // are the same sums in another order of two terms, and IEEE addition commutes.
+            let mut scratch = std::mem::take(&mut ws.conv);
+            scratch.resize(temps.len(), 0.0);
+            self.heating_with_jacobian(t_years, temps, ws, &mut scratch, jac);
+            ws.conv = scratch;
+            return;
+        }
         crate::tally::add(crate::tally::Kernel::Jacobian, temps.len());
         self.refresh_sun(t_years, ws);
-        let d = self.drivers_at(t_years);
         jac.diag.iter_mut().for_each(|v| *v = 0.0);
         jac.lower.iter_mut().for_each(|v| *v = 0.0);
         jac.upper.iter_mut().for_each(|v| *v = 0.0);
