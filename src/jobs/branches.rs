@@ -129,11 +129,7 @@ pub fn branches_job(
         ),
         ("seeds_total".to_string(), Attr::I64(run.seeds_total as i64)),
     ];
-    let ending = match (&run.error, run.stopped) {
-        (Some(e), _) => Ending::Failed(e.to_string()),
-        (None, true) => Ending::Stopped(stopped_by.unwrap_or(libc::SIGINT)),
-        (None, false) => Ending::Finished,
-    };
+    let ending = Ending::of(run.error.as_ref(), run.stopped, stopped_by);
     write_branches_with(
         path,
         &model,

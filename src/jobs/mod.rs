@@ -26,6 +26,20 @@ pub(crate) enum Ending {
 }
 
 impl Ending {
+    /// How a job ended from its error (if any), whether it was stopped, and by which signal
+    /// (SIGINT when unknown); an error outranks a stop.
+    pub(crate) fn of(
+        error: Option<&impl std::fmt::Display>,
+        stopped: bool,
+        stopped_by: Option<i32>,
+    ) -> Ending {
+        match (error, stopped) {
+            (Some(e), _) => Ending::Failed(e.to_string()),
+            (None, true) => Ending::Stopped(stopped_by.unwrap_or(libc::SIGINT)),
+            (None, false) => Ending::Finished,
+        }
+    }
+
     /// The file's completion: finished, or partial with `reached` (how far the job got) and
     /// `failure` or `interrupted_by`.
     pub(crate) fn completion(&self, mut reached: Vec<(String, Attr)>) -> Completion {

@@ -145,11 +145,7 @@ pub fn sweep_job(
         ("steps_done".to_string(), Attr::I64(done)),
         ("control_reached".to_string(), Attr::F64(last)),
     ];
-    let ending = match (&run.error, run.stopped) {
-        (Some(e), _) => Ending::Failed(e.to_string()),
-        (None, true) => Ending::Stopped(stopped_by.unwrap_or(libc::SIGINT)),
-        (None, false) => Ending::Finished,
-    };
+    let ending = Ending::of(run.error.as_ref(), run.stopped, stopped_by);
     write_sweep_with(
         path,
         &model,
