@@ -114,32 +114,12 @@ fn linear_cold(va: f64, vb: f64, len: f64, tf: f64) -> f64 {
 }
 
 /// Call `f(k)` for every pair of neighbouring bands `k`, `k + 1` on opposite sides of `tf`
-/// (a freezing crossing), in increasing `k`. Blocks of eight pairs are tested branch-free
-/// (vectorised) and only a block holding a crossing is searched.
+/// (a freezing crossing), in increasing `k`.
 #[inline(always)]
-pub fn for_each_crossing(t: &[f64], tf: f64, mut f: impl FnMut(usize)) {
+pub fn for_each_crossing(t: &[f64], tf: f64, f: impl FnMut(usize)) {
     let pairs = t.len().saturating_sub(1);
-    let mut k = 0;
-    while k + 8 <= pairs {
-        let b: &[f64; 9] = t[k..k + 9].try_into().expect("nine values");
-        let mut any = false;
-        for j in 0..8 {
-            any |= (b[j] < tf) != (b[j + 1] < tf);
-        }
-        if any {
-            for j in 0..8 {
-                if (b[j] < tf) != (b[j + 1] < tf) {
-                    f(k + j);
-                }
-            }
-        }
-        k += 8;
-    }
-    for k in k..pairs {
-        if (t[k] < tf) != (t[k + 1] < tf) {
-            f(k);
-        }
-    }
+    let (a, b) = (&t[..pairs], &t[t.len() - pairs..]);
+    crate::linalg::for_each_flagged(pairs, |k| (a[k] < tf) != (b[k] < tf), f);
 }
 
 impl Albedo {

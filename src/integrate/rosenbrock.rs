@@ -349,31 +349,12 @@ impl<'m> Ros2<'m> {
         let (a, b) = (&self.jac, &self.lu_jac);
         let (ad, al, au) = (&a.diag[..n], &a.lower[..n], &a.upper[..n]);
         let (bd, bl, bu) = (&b.diag[..n], &b.lower[..n], &b.upper[..n]);
-        // One pass in blocks of eight rows, each tested branch-free (vectorised); only a block
-        // holding a change is searched row by row.
         let differs = |i: usize| (ad[i] != bd[i]) | (al[i] != bl[i]) | (au[i] != bu[i]);
         let (mut lo, mut hi) = (n, 0);
-        let mut k = 0;
-        while k < n {
-            let end = (k + 8).min(n);
-            let mut any = false;
-            if end - k == 8 {
-                for i in k..k + 8 {
-                    any |= differs(i);
-                }
-            } else {
-                any = true; // the short last block is searched directly
-            }
-            if any {
-                for i in k..end {
-                    if differs(i) {
-                        lo = lo.min(i);
-                        hi = i + 1;
-                    }
-                }
-            }
-            k = end;
-        }
+        crate::linalg::for_each_flagged(n, differs, |i| {
+            lo = lo.min(i);
+            hi = i + 1;
+        });
         if lo >= hi {
             return (n, n);
         }
