@@ -1,17 +1,11 @@
 //! Bad input through the binary (issue 2): each case exits 2 with one clear message naming the
 //! key, file or line and what is allowed, and leaves no output file behind.
 
-use std::path::{Path, PathBuf};
+mod common_cli;
+
+use common_cli::{files_in, tempdir, BIN};
+
 use std::process::Command;
-
-const BIN: &str = env!("CARGO_BIN_EXE_icefold");
-
-fn tempdir(tag: &str) -> PathBuf {
-    let d = std::env::temp_dir().join(format!("icefold-cli-errors-{tag}-{}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&d);
-    std::fs::create_dir_all(&d).unwrap();
-    d
-}
 
 const BASE: &str = "[grid]\nbands = 6\n[time]\nyears = 2\n";
 
@@ -31,15 +25,6 @@ fn case(name: &'static str, config: &str, args: &[&str], expect: &[&'static str]
         args: args.iter().map(|s| s.to_string()).collect(),
         expect: expect.to_vec(),
     }
-}
-
-fn files_in(dir: &Path) -> Vec<String> {
-    let mut v: Vec<String> = std::fs::read_dir(dir)
-        .unwrap()
-        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
-        .collect();
-    v.sort();
-    v
 }
 
 #[test]

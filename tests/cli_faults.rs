@@ -2,26 +2,12 @@
 //! and numerical blow-ups. Each gives one clear message and the documented exit status,
 //! leaves no temporary file behind and keeps a previous file at the target byte for byte.
 
+mod common_cli;
+
+use common_cli::{files_in, tempdir, BIN};
+
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output};
-
-const BIN: &str = env!("CARGO_BIN_EXE_icefold");
-
-fn tempdir(tag: &str) -> PathBuf {
-    let d = std::env::temp_dir().join(format!("icefold-cli-faults-{tag}-{}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&d);
-    std::fs::create_dir_all(&d).unwrap();
-    d
-}
-
-fn files_in(dir: &Path) -> Vec<String> {
-    let mut v: Vec<String> = std::fs::read_dir(dir)
-        .unwrap()
-        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
-        .collect();
-    v.sort();
-    v
-}
 
 fn icefold(dir: &Path, args: &[&str]) -> (Option<i32>, String) {
     let out: Output = Command::new(BIN).current_dir(dir).args(args).output().unwrap();

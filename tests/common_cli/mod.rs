@@ -1,5 +1,5 @@
-//! Helpers shared by the interruption, resume and determinism tests: spawning the binary,
-//! waiting for a file, sending signals, and comparing every variable of two files.
+//! Helpers shared by the binary-level tests: fresh directories, spawning the binary, waiting
+//! for a file, sending signals, and comparing every variable of two files.
 
 #![allow(dead_code)]
 
@@ -16,6 +16,16 @@ pub fn tempdir(tag: &str) -> PathBuf {
     let _ = std::fs::remove_dir_all(&d);
     std::fs::create_dir_all(&d).unwrap();
     d
+}
+
+/// The names of the files in `dir`, sorted.
+pub fn files_in(dir: &Path) -> Vec<String> {
+    let mut v: Vec<String> = std::fs::read_dir(dir)
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .collect();
+    v.sort();
+    v
 }
 
 /// A config of the repository.
