@@ -12,6 +12,11 @@ use std::path::Path;
 /// Largest number of bands accepted (memory and time stay modest below it).
 pub const MAX_BANDS: i64 = 20_000;
 
+/// Shortest run length, output interval, step limit or settling time accepted, years (about
+/// 32 s: far below any time scale of the model, far above the integrators' smallest step of
+/// 1e-12 years).
+pub const MIN_YEARS: f64 = 1e-6;
+
 /// A bound on a number.
 #[derive(Clone, Copy)]
 enum Range {
@@ -19,6 +24,8 @@ enum Range {
     Closed(f64, f64),
     /// `lo < v`.
     Above(f64),
+    /// `lo <= v`.
+    AtLeast(f64),
     /// `lo < v <= hi`.
     AboveUpTo(f64, f64),
     /// Any finite value.
@@ -31,6 +38,7 @@ impl Range {
             && match self {
                 Range::Closed(lo, hi) => v >= lo && v <= hi,
                 Range::Above(lo) => v > lo,
+                Range::AtLeast(lo) => v >= lo,
                 Range::AboveUpTo(lo, hi) => v > lo && v <= hi,
                 Range::Any => true,
             }
@@ -39,6 +47,7 @@ impl Range {
         match self {
             Range::Closed(lo, hi) => format!("allowed: a number from {lo} to {hi}"),
             Range::Above(lo) => format!("allowed: a finite number above {lo}"),
+            Range::AtLeast(lo) => format!("allowed: a finite number of at least {lo}"),
             Range::AboveUpTo(lo, hi) => format!("allowed: a number above {lo} and at most {hi}"),
             Range::Any => "allowed: a finite number".into(),
         }
@@ -445,7 +454,7 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
 
     // [time]
     let tm = &mut raw.time;
-    let years = c.num("time.years", &mut tm.years, 100.0, Range::AboveUpTo(0.0, 1e9))?;
+    let years = c.num("time.years", &mut tm.years, 100.0, Range::Closed(MIN_YEARS, 1e9))?;
     // Annual means sample 24 times a year unless told otherwise.
     let default_every = if tm.output.as_deref() == Some("annual_mean") {
         1.0 / 24.0
@@ -456,7 +465,7 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
         "time.output_every_years",
         &mut tm.output_every_years,
         default_every,
-        Range::AboveUpTo(0.0, 1e9),
+        Range::Closed(MIN_YEARS, 1e9),
     )?;
     if years / output_every > 1e8 {
         return Err(c.range_err(
@@ -495,7 +504,7 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
         "time.max_step_years",
         &mut tm.max_step_years,
         years.min(1000.0),
-        Range::Above(0.0),
+        Range::AtLeast(MIN_YEARS),
     )?;
     let stiffness_check = *tm.stiffness_check.get_or_insert(true);
     let max_steps = tm.max_steps.unwrap_or(50_000_000);
@@ -713,7 +722,7 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
                     "sweep.settle_max_years",
                     &mut s.settle_max_years,
                     20_000.0,
-                    Range::Above(0.0),
+                    Range::AtLeast(MIN_YEARS),
                 )?,
                 refine_relative: c.num(
                     "sweep.refine_relative",

@@ -101,7 +101,8 @@ impl<'m> Ros2<'m> {
                 } else {
                     max_step
                 };
-                h0.clamp(1e-9, max_step)
+                // Not `clamp`: a step limit below 1e-9 years must not panic (issue 20).
+                h0.max(1e-9).min(max_step)
             }
         };
         Ros2 {
