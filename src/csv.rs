@@ -27,7 +27,10 @@ impl CsvError {
     }
 }
 
-/// Read a data file as UTF-8 text, refusing files larger than `max_bytes` before reading them.
+/// The UTF-8 encoding of the byte-order mark U+FEFF.
+const UTF8_BOM: &[u8] = b"\xef\xbb\xbf";
+
+/// Read a data file as UTF-8 text (a leading byte-order mark is dropped), refusing files larger than `max_bytes` before reading them.
 /// `what` names the file's role in messages (e.g. "forcing file (forcing.file)").
 pub fn read_text(path: &Path, max_bytes: u64, what: &str) -> Result<String, String> {
     let meta = std::fs::metadata(path).map_err(|e| format!("cannot read {what}: {e}"))?;
@@ -52,6 +55,10 @@ pub fn read_text(path: &Path, max_bytes: u64, what: &str) -> Result<String, Stri
             "{what} is longer than the limit of {} ({max_bytes} bytes)",
             human_bytes(max_bytes)
         ));
+    }
+    // A leading UTF-8 byte-order mark (spreadsheets write one) is not part of the first name.
+    if bytes.starts_with(UTF8_BOM) {
+        bytes.drain(..UTF8_BOM.len());
     }
     String::from_utf8(bytes).map_err(|e| {
         let at = e.utf8_error().valid_up_to();

@@ -15,6 +15,9 @@ pub enum Error {
     /// Bad command-line use or input file (exit 2).
     #[error("{0}")]
     Usage(String),
+    /// An input file that is missing, not a file, not HDF5, or not an icefold file (exit 2).
+    #[error("{0}")]
+    BadFile(OutputError),
     /// Output could not be created where asked (exit 2).
     #[error("output error: {0}")]
     OutputPath(OutputError),
@@ -40,7 +43,14 @@ pub enum Error {
 impl From<OutputError> for Error {
     fn from(e: OutputError) -> Self {
         match e {
-            OutputError::NoDirectory { .. } | OutputError::Create { .. } => Error::OutputPath(e),
+            OutputError::NoDirectory { .. } | OutputError::Create { .. } | OutputError::Exists { .. } => {
+                Error::OutputPath(e)
+            }
+            OutputError::NotFound { .. }
+            | OutputError::NotAFile { .. }
+            | OutputError::Open { .. }
+            | OutputError::Foreign { .. }
+            | OutputError::Damaged { .. } => Error::BadFile(e),
             other => Error::Output(other),
         }
     }
@@ -62,7 +72,7 @@ impl Error {
     /// The process exit status for this error.
     pub fn exit_code(&self) -> i32 {
         match self {
-            Error::Config(_) | Error::Usage(_) | Error::OutputPath(_) => 2,
+            Error::Config(_) | Error::Usage(_) | Error::OutputPath(_) | Error::BadFile(_) => 2,
             Error::Solver(_) => 3,
             Error::Interrupted { signal, .. } => 128 + signal,
             Error::Output(_) | Error::Other(_) => 1,

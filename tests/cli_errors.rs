@@ -527,3 +527,247 @@ fn blow_up_exits_3_naming_time_and_latitude() {
     assert!(r.attr_str("failure").unwrap().unwrap().contains("latitude"));
     let _ = std::fs::remove_dir_all(&dir);
 }
+
+/// Run icefold in `dir`: exit code and stderr.
+fn run_in(dir: &std::path::Path, args: &[&str]) -> (Option<i32>, String) {
+    let out = Command::new(BIN).current_dir(dir).args(args).output().unwrap();
+    (
+        out.status.code(),
+        String::from_utf8_lossy(&out.stderr).into_owned(),
+    )
+}
+
+/// Issue 20: a missing file, a directory or a device given to inspect, plot or merge is bad
+/// input (exit 2) with a message saying what the path is; so is an HDF5 file that icefold did
+/// not write (issue 12), and a text file.
+#[test]
+fn input_paths_that_are_no_icefold_file_exit_2_saying_what_they_are() {
+    let dir = tempdir("inpaths");
+    std::fs::write(dir.join("text.nc"), "not hdf5\n").unwrap();
+    // A foreign HDF5 file: valid netCDF-4, no icefold attributes.
+    {
+        let f = hdf5::File::create(dir.join("foreign.nc")).unwrap();
+        f.new_dataset::<f64>().shape(3).create("x").unwrap();
+    }
+    for (path, what) in [
+        ("missing.nc", "no such file"),
+        (".", "it is a directory"),
+        ("/dev/zero", "not a regular file"),
+        ("text.nc", "not an HDF5 file"),
+        // merge says "not an icefold ensemble file".
+        ("foreign.nc", "not an icefold"),
+    ] {
+        for args in [
+            vec!["inspect", path],
+            vec!["plot", path],
+            vec!["merge", path, "-o", "m.nc"],
+        ] {
+            let (code, err) = run_in(&dir, &args);
+            assert_eq!(code, Some(2), "{args:?}: {err}");
+            assert!(err.contains(path) && err.contains(what), "{args:?}: {err}");
+            assert_eq!(err.trim().lines().count(), 1, "{args:?}: {err}");
+        }
+    }
+    assert_eq!(files_in(&dir), ["foreign.nc", "text.nc"].map(String::from));
+    let _ = std::fs::remove_dir_all(&dir);
+}
+
+/// Issue 20: an output path that cannot be a file is refused before any work (exit 2).
+#[test]
+fn output_paths_naming_a_directory_or_device_are_refused_before_work() {
+    let dir = tempdir("outpaths");
+    std::fs::write(dir.join("c.toml"), BASE).unwrap();
+    std::fs::create_dir(dir.join("sub")).unwrap();
+    for (out, what) in [
+        ("out.nc/", "names a directory"),
+        ("sub/", "names a directory"),
+        ("sub", "is a directory"),
+        ("..", "names a directory"),
+        ("/dev/null", "not a regular file"),
+    ] {
+        for args in [
+            vec!["run", "c.toml", "-o", out],
+            vec!["equilibrium", "c.toml", "-o", out, "--overwrite"],
+            vec!["merge", "c.toml", "-o", out],
+        ] {
+            let (code, err) = run_in(&dir, &args);
+            assert_eq!(code, Some(2), "{args:?}: {err}");
+            assert!(err.contains(out) && err.contains(what), "{args:?}: {err}");
+            // Refused before any work: no "wrote", no files.
+            assert_eq!(err.trim().lines().count(), 1, "{args:?}: {err}");
+        }
+    }
+    assert_eq!(files_in(&dir), ["c.toml", "sub"].map(String::from));
+    assert!(files_in(&dir.join("sub")).is_empty());
+    let _ = std::fs::remove_dir_all(&dir);
+}
+
+/// Issue 20: a forcing CSV written with a UTF-8 byte-order mark (as spreadsheets save it) is
+/// read as without it.
+#[test]
+fn forcing_csv_with_a_byte_order_mark_is_read_like_one_without() {
+    let dir = tempdir("bom");
+    let csv = "year,forcing_wm2\n0,0\n1,-2\n2,-4\n";
+    std::fs::write(dir.join("plain.csv"), csv).unwrap();
+    std::fs::write(dir.join("bom.csv"), format!("\u{feff}{csv}")).unwrap();
+    for name in ["plain", "bom"] {
+        std::fs::write(
+            dir.join(format!("{name}.toml")),
+            format!("{BASE}[forcing]\nfile = \"{name}.csv\"\n"),
+        )
+        .unwrap();
+        let (code, err) = run_in(
+            &dir,
+            &["run", &format!("{name}.toml"), "-o", &format!("{name}.nc")],
+        );
+        assert_eq!(code, Some(0), "{name}: {err}");
+    }
+    let read = |n: &str| {
+        icefold::output::NcReader::open(&dir.join(n))
+            .unwrap()
+            .read_f64("additive_forcing")
+            .unwrap()
+    };
+    assert_eq!(read("bom.nc"), read("plain.nc"));
+    assert_eq!(read("bom.nc").last(), Some(&-4.0));
+    let _ = std::fs::remove_dir_all(&dir);
+}
+
+/// Copy of a real run file with `edit` applied through HDF5 directly (a damaged file).
+fn damaged_copy(dir: &std::path::Path, name: &str, edit: impl FnOnce(&hdf5::File)) {
+    std::fs::copy(dir.join("good.nc"), dir.join(name)).unwrap();
+    let f = hdf5::File::open_rw(dir.join(name)).unwrap();
+    edit(&f);
+}
+
+/// Issue 20: plot of a damaged icefold file names the file and what is wrong (exit 2), not
+/// plotting internals; inspect says DAMAGED with the same reason.
+#[test]
+fn plot_of_a_damaged_file_names_the_file_and_what_is_wrong() {
+    let dir = tempdir("damaged");
+    std::fs::write(dir.join("c.toml"), BASE).unwrap();
+    let (code, err) = run_in(&dir, &["run", "c.toml", "-o", "good.nc"]);
+    assert_eq!(code, Some(0), "{err}");
+    // NaN in the latitude coordinate.
+    damaged_copy(&dir, "nanlat.nc", |f| {
+        f.dataset("lat").unwrap().write_raw(&[f64::NAN; 6]).unwrap();
+    });
+    // Zero records: every record variable cut to length 0.
+    damaged_copy(&dir, "empty.nc", |f| {
+        for name in f.member_names().unwrap() {
+            if let Ok(ds) = f.dataset(&name) {
+                let shape = ds.shape();
+                let unlimited = ds.space().unwrap().maxdims().first().is_some_and(Option::is_none);
+                if unlimited {
+                    let mut s = shape.clone();
+                    s[0] = 0;
+                    ds.resize(s).unwrap();
+                }
+            }
+        }
+    });
+    // A field whose latitude axis does not match `lat`: the field replaced by one of 5 bands.
+    damaged_copy(&dir, "badlat.nc", |f| {
+        let n = f.dataset("time").unwrap().shape()[0];
+        f.unlink("surface_temperature").unwrap();
+        f.new_dataset::<f64>()
+            .shape((n, 5))
+            .create("surface_temperature")
+            .unwrap();
+    });
+    for (file, what) in [
+        ("nanlat.nc", "coordinate `lat` holds NaN"),
+        ("empty.nc", "no time records"),
+        (
+            "badlat.nc",
+            "`surface_temperature` has 5 values along axis 1, but coordinate `lat` has 6",
+        ),
+    ] {
+        let (code, err) = run_in(&dir, &["plot", file]);
+        assert_eq!(code, Some(2), "{file}: {err}");
+        assert!(
+            err.contains(file) && err.contains("is damaged") && err.contains(what),
+            "{file}: {err}"
+        );
+        assert_eq!(err.trim().lines().count(), 1, "{err}");
+        let out = Command::new(BIN)
+            .current_dir(&dir)
+            .args(["inspect", file])
+            .output()
+            .unwrap();
+        let text = String::from_utf8_lossy(&out.stdout);
+        assert!(text.contains("DAMAGED") && text.contains(what), "{file}: {text}");
+    }
+    // The good file still plots, with no DAMAGED line.
+    let (code, err) = run_in(&dir, &["plot", "good.nc"]);
+    assert_eq!(code, Some(0), "{err}");
+    let out = Command::new(BIN)
+        .current_dir(&dir)
+        .args(["inspect", "good.nc"])
+        .output()
+        .unwrap();
+    assert!(!String::from_utf8_lossy(&out.stdout).contains("DAMAGED"));
+    let _ = std::fs::remove_dir_all(&dir);
+}
+
+/// Issue 12: inspect prints times rounded to 12 significant digits ("0 to 200 years", not
+/// "0 to 199.99999999999991 years"); a summed output time of 200 years is such a case.
+#[test]
+fn inspect_prints_times_rounded() {
+    let dir = tempdir("inspect-times");
+    std::fs::write(
+        dir.join("c.toml"),
+        "[grid]\nbands = 6\n[time]\nyears = 200\noutput_every_years = 0.1\n",
+    )
+    .unwrap();
+    let (code, err) = run_in(&dir, &["run", "c.toml", "-o", "t.nc"]);
+    assert_eq!(code, Some(0), "{err}");
+    let out = Command::new(BIN)
+        .current_dir(&dir)
+        .args(["inspect", "t.nc"])
+        .output()
+        .unwrap();
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert!(
+        text.contains("time:       0 to 200 years, 2001 records"),
+        "{text}"
+    );
+    let _ = std::fs::remove_dir_all(&dir);
+}
+
+/// Issue 12: a Kelvin value for a degrees-C key and an ice albedo below the ice-free albedo
+/// are accepted with one warning line each, naming the key, from check and from run.
+#[test]
+fn likely_unit_and_albedo_mistakes_are_warned_not_refused() {
+    let dir = tempdir("warnings");
+    std::fs::write(dir.join("c.toml"), BASE).unwrap();
+    for cmd in [vec!["check", "c.toml"], vec!["run", "c.toml", "-o", "w.nc"]] {
+        let mut args = cmd.clone();
+        args.extend([
+            "--set",
+            "albedo.freeze_temperature_c=263",
+            "--set",
+            "albedo.ice=0.25",
+            "--set",
+            "initial.temperature_c=288",
+        ]);
+        let (code, err) = run_in(&dir, &args);
+        assert_eq!(code, Some(0), "{args:?}: {err}");
+        let warnings: Vec<&str> = err.lines().filter(|l| l.contains("warning")).collect();
+        assert_eq!(warnings.len(), 3, "{err}");
+        assert!(
+            warnings[0].contains("`albedo.freeze_temperature_c` = 263") && warnings[0].contains("-10.15"),
+            "{err}"
+        );
+        assert!(warnings[1].contains("`initial.temperature_c` = 288"), "{err}");
+        assert!(
+            warnings[2].contains("`albedo.ice` = 0.25") && warnings[2].contains("`albedo.ice_free` = 0.3"),
+            "{err}"
+        );
+    }
+    // The shipped defaults give no warning.
+    let (code, err) = run_in(&dir, &["check", "c.toml"]);
+    assert_eq!(code, Some(0));
+    assert!(!err.contains("warning"), "{err}");
+    let _ = std::fs::remove_dir_all(&dir);
+}

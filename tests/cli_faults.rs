@@ -204,3 +204,65 @@ fn blow_ups_exit_3_naming_time_latitude_and_value() {
     assert!(left.is_empty(), "temporary files left: {left:?}");
     let _ = std::fs::remove_dir_all(&dir);
 }
+
+/// Two writers of one target without --overwrite (issue 20): started together, exactly one
+/// writes the target; the other exits 2 naming it (its finished result kept under the name it
+/// reports, or refused at the start if the first had already finished), and the target holds
+/// one complete result. Each run takes far longer (hundreds of ms) than starting both, so the
+/// final renames race in nearly every round; at least one round must take that path.
+#[test]
+fn concurrent_writers_of_one_target_never_replace_each_other() {
+    let dir = tempdir("concurrent");
+    std::fs::write(
+        dir.join("c.toml"),
+        "[grid]\nbands = 45\n[time]\nyears = 1500\noutput_every_years = 0.5\n",
+    )
+    .unwrap();
+    let args = ["run", "c.toml", "-o", "same.nc"];
+    let mut raced = 0;
+    for round in 0..4 {
+        let a = common_cli::spawn(&dir, &args);
+        let b = common_cli::spawn(&dir, &args);
+        let outs = [a.wait_with_output().unwrap(), b.wait_with_output().unwrap()];
+        let codes: Vec<_> = outs.iter().map(|o| o.status.code()).collect();
+        let winners = codes.iter().filter(|c| **c == Some(0)).count();
+        let loser = outs
+            .iter()
+            .find(|o| o.status.code() != Some(0))
+            .unwrap_or_else(|| panic!("round {round}: both exited 0 (one silently replaced the other)"));
+        let err = String::from_utf8_lossy(&loser.stderr).into_owned();
+        assert_eq!(winners, 1, "round {round}: exits {codes:?}: {err}");
+        assert_eq!(loser.status.code(), Some(2), "round {round}: {err}");
+        assert!(err.contains("same.nc") && err.contains("--overwrite"), "{err}");
+        assert_eq!(err.trim().lines().count(), 1, "{err}");
+        let r = icefold::output::NcReader::open(&dir.join("same.nc")).unwrap();
+        assert_eq!(r.attr_i64("complete").unwrap(), Some(1));
+        assert_eq!(r.dim_len("time").unwrap(), 3001);
+        let mut want = vec!["c.toml".to_string(), "same.nc".to_string()];
+        if err.contains("appeared while this job ran") {
+            raced += 1;
+            // The loser's finished file is kept under the name it reports.
+            let kept = files_in(&dir)
+                .into_iter()
+                .find(|f| f.starts_with("same.kept-") && f.ends_with(".nc"))
+                .unwrap_or_else(|| panic!("no kept file: {:?}", files_in(&dir)));
+            assert!(err.contains(&kept), "{err}");
+            let k = icefold::output::NcReader::open(&dir.join(&kept)).unwrap();
+            assert_eq!(k.attr_i64("complete").unwrap(), Some(1));
+            assert_eq!(
+                k.read_f64("surface_temperature").unwrap(),
+                r.read_f64("surface_temperature").unwrap()
+            );
+            want.insert(1, kept.clone());
+            want.sort();
+            assert_eq!(files_in(&dir), want);
+            std::fs::remove_file(dir.join(kept)).unwrap();
+        } else {
+            assert!(err.contains("exists"), "{err}");
+            assert_eq!(files_in(&dir), want);
+        }
+        std::fs::remove_file(dir.join("same.nc")).unwrap();
+    }
+    assert!(raced > 0, "the two writers never overlapped in 4 rounds");
+    let _ = std::fs::remove_dir_all(&dir);
+}

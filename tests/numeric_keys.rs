@@ -87,7 +87,11 @@ fn assert_orderly(dir: &std::path::Path, args: &[String], key: &str) -> i32 {
         "icefold {}: exit {code:?}\n{stderr}",
         args.join(" ")
     );
-    assert!(!stderr.contains("panicked"), "icefold {}: {stderr}", args.join(" "));
+    assert!(
+        !stderr.contains("panicked"),
+        "icefold {}: {stderr}",
+        args.join(" ")
+    );
     if code == Some(2) {
         let leaf = key.rsplit('.').next().unwrap();
         assert!(
@@ -100,7 +104,11 @@ fn assert_orderly(dir: &std::path::Path, args: &[String], key: &str) -> i32 {
 }
 
 /// Spread `jobs` over two threads (the machine's usual core count for tests).
-fn in_parallel(jobs: Vec<Vec<String>>, dir: &std::path::Path, key_of: impl Fn(&[String]) -> String + Sync) -> usize {
+fn in_parallel(
+    jobs: Vec<Vec<String>>,
+    dir: &std::path::Path,
+    key_of: impl Fn(&[String]) -> String + Sync,
+) -> usize {
     let chunks: Vec<&[Vec<String>]> = jobs.chunks(jobs.len().div_ceil(2).max(1)).collect();
     std::thread::scope(|s| {
         let handles: Vec<_> = chunks

@@ -7,6 +7,7 @@ use std::path::Path;
 /// Print what the file is, how it was made, its dimensions and key results.
 pub fn main(path: &Path) -> Result<(), Error> {
     let r = NcReader::open(path)?;
+    crate::output::damage::icefold_kind(&r)?;
     print!("{}", summary(&r)?);
     Ok(())
 }
@@ -14,7 +15,7 @@ pub fn main(path: &Path) -> Result<(), Error> {
 /// How far an incomplete file's job got, from the progress attributes each command writes.
 fn how_far(r: &NcReader) -> Result<String, Error> {
     if let Some(t) = r.attr_f64("model_time_reached_years")? {
-        return Ok(format!("stopped at model time {t} years"));
+        return Ok(format!("stopped at model time {} years", years(t)));
     }
     if let Some(n) = r.attr_i64("steps_done")? {
         let at = r.attr_f64("control_reached")?;
@@ -40,6 +41,15 @@ fn how_far(r: &NcReader) -> Result<String, Error> {
     Ok("stopped early; how far is not recorded".into())
 }
 
+/// A time in years for people: rounded to 12 significant digits, so that 199.99999999999991
+/// (the sum of many steps) reads 200 while a step of 1e-6 years still shows.
+fn years(t: f64) -> String {
+    format!("{:.11e}", t)
+        .parse::<f64>()
+        .map(|v| v.to_string())
+        .unwrap_or_else(|_| t.to_string())
+}
+
 /// The summary text.
 pub fn summary(r: &NcReader) -> Result<String, Error> {
     use std::fmt::Write;
@@ -49,6 +59,9 @@ pub fn summary(r: &NcReader) -> Result<String, Error> {
         .unwrap_or_else(|| "(not an icefold file)".into());
     let _ = writeln!(s, "file:       {}", r.path().display());
     let _ = writeln!(s, "kind:       {kind}");
+    if let Err(e) = crate::output::damage::check(r, &kind) {
+        let _ = writeln!(s, "DAMAGED:    {e}");
+    }
     if let Some(t) = r.attr_str("title")? {
         let _ = writeln!(s, "title:      {t}");
     }
@@ -128,7 +141,13 @@ pub fn summary(r: &NcReader) -> Result<String, Error> {
     if kind != "ensemble" && vars.iter().any(|v| v == "time") {
         let t = r.read_f64("time")?;
         if let (Some(a), Some(b)) = (t.first(), t.last()) {
-            let _ = writeln!(s, "time:       {a} to {b} years, {} records", t.len());
+            let _ = writeln!(
+                s,
+                "time:       {} to {} years, {} records",
+                years(*a),
+                years(*b),
+                t.len()
+            );
         }
         for (name, unit) in [
             ("global_mean_temperature", "K"),

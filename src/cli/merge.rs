@@ -5,6 +5,10 @@ use std::path::PathBuf;
 
 /// Merge the shards.
 pub fn main(inputs: &[PathBuf], output: &PathBuf, overwrite: bool) -> Result<(), Error> {
+    super::check_output_name(output)?;
+    if overwrite {
+        crate::output::permit_replacing(output);
+    }
     if output.exists() && !overwrite {
         return Err(Error::Usage(format!(
             "output file {} exists; pass --overwrite to replace it (it is kept as it is)",

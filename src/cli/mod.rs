@@ -302,9 +302,13 @@ fn dispatch(cli: Cli) -> Result<(), Error> {
     }
 }
 
-/// Load the config named by the arguments.
+/// Load the config named by the arguments. Likely mistakes in it are printed on stderr, one line each.
 pub fn load(args: &ConfigArgs) -> Result<Loaded, Error> {
-    Ok(config::load(&args.config, &args.sets)?)
+    let cfg = config::load(&args.config, &args.sets)?;
+    for w in &cfg.warnings {
+        eprintln!("icefold: warning: {w}");
+    }
+    Ok(cfg)
 }
 
 /// Decide the output path and refuse to replace an existing file without `--overwrite`.
@@ -333,17 +337,49 @@ pub fn output_path_resuming(
             .and_then(|r| r.attr_i64("complete").ok().flatten())
             == Some(0)
     };
-    if path.exists() && !args.overwrite && !(resuming && incomplete()) {
+    check_output_name(&path)?;
+    let replace = args.overwrite || (resuming && incomplete());
+    if path.exists() && !replace {
         return Err(Error::Usage(format!(
             "output file {} exists; pass --overwrite to replace it (it is kept as it is)",
             path.display()
         )));
     }
-    if path.is_dir() {
-        return Err(Error::Usage(format!(
-            "output path {} is a directory; give a file name with -o",
-            path.display()
-        )));
+    if replace {
+        // Otherwise the final rename refuses a file that appears while the job runs.
+        crate::output::permit_replacing(&path);
     }
     Ok(path)
+}
+
+/// Refuse, before any work, an output path that cannot name a file: one ending in `/` (or
+/// `/.`, `..`), a directory, or anything else that is not a regular file (a device, a pipe).
+pub fn check_output_name(path: &Path) -> Result<(), Error> {
+    let text = path.as_os_str().to_string_lossy();
+    if text.ends_with('/') || path.file_name().is_none() || text.ends_with("/.") || text == "." {
+        return Err(Error::Usage(format!(
+            "output path {} names a directory (it ends in `/`, `.` or `..`); give a file name with -o, e.g. {}",
+            path.display(),
+            {
+                let trimmed = Path::new(text.trim_end_matches('/'));
+                if trimmed.is_dir() || trimmed.file_name().is_none() {
+                    trimmed.join("out.nc")
+                } else {
+                    trimmed.to_path_buf()
+                }
+            }
+            .display()
+        )));
+    }
+    match std::fs::metadata(path) {
+        Ok(m) if m.is_dir() => Err(Error::Usage(format!(
+            "output path {} is a directory; give a file name with -o",
+            path.display()
+        ))),
+        Ok(m) if !m.is_file() => Err(Error::Usage(format!(
+            "output path {} is not a regular file (a device, pipe or socket); give a file name with -o",
+            path.display()
+        ))),
+        _ => Ok(()),
+    }
 }

@@ -103,6 +103,9 @@ pub struct Loaded {
     pub resolved: toml::Value,
     /// Typed spec.
     pub spec: Spec,
+    /// Likely mistakes in valid input, one line each naming the key (see
+    /// `validate::warnings`); the command line prints them.
+    pub warnings: Vec<String>,
 }
 
 impl Loaded {
@@ -237,6 +240,7 @@ fn from_tree(mut tree: toml::Value, source: &str, base_dir: &Path) -> Result<Loa
         }
     })?;
     let (resolved_raw, spec) = validate::validate(raw, source, base_dir)?;
+    let warnings = validate::warnings(&resolved_raw, source);
     let resolved = toml::Value::try_from(&resolved_raw).map_err(|e| ConfigError::Key {
         path: source.to_string(),
         key: "(resolved)".into(),
@@ -247,6 +251,7 @@ fn from_tree(mut tree: toml::Value, source: &str, base_dir: &Path) -> Result<Loa
         base_dir: base_dir.to_path_buf(),
         resolved,
         spec,
+        warnings,
     })
 }
 

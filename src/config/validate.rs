@@ -108,6 +108,38 @@ impl Checker<'_> {
     }
 }
 
+/// Degrees C above which a value typed for a `_c` key is most likely meant in Kelvin (no
+/// freezing point or starting climate of the model is near 100 degrees C; 173 K to 373 K is
+/// where Kelvin values of either would lie).
+const KELVIN_LIKELY_ABOVE_C: f64 = 100.0;
+
+/// Likely mistakes that are still valid input, one line each naming the key (printed by every
+/// command that reads the config, `check` included): a Kelvin value typed for a degrees-C
+/// key, and an ice albedo below the ice-free albedo. Takes the resolved config (every default
+/// filled in).
+pub fn warnings(raw: &RawConfig, source: &str) -> Vec<String> {
+    let mut out = Vec::new();
+    for (key, v) in [
+        ("albedo.freeze_temperature_c", raw.albedo.freeze_temperature_c),
+        ("initial.temperature_c", raw.initial.temperature_c),
+    ] {
+        if let Some(v) = v.filter(|v| *v > KELVIN_LIKELY_ABOVE_C) {
+            out.push(format!(
+                "{source}: key `{key}` = {v} is in degrees C; did you mean {v} K = {:.2} degrees C?",
+                v - ZERO_CELSIUS
+            ));
+        }
+    }
+    if let (Some(ice), Some(free)) = (raw.albedo.ice, raw.albedo.ice_free) {
+        if ice < free {
+            out.push(format!(
+                "{source}: key `albedo.ice` = {ice} is below `albedo.ice_free` = {free}: ice darker than open ground and ocean gives no ice-albedo feedback as usually meant; are the two swapped?"
+            ));
+        }
+    }
+    out
+}
+
 /// Validate a raw config; returns the resolved raw config (defaults filled) and the spec.
 pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(RawConfig, Spec), ConfigError> {
     let c = Checker { source };

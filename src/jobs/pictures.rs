@@ -32,7 +32,8 @@ pub fn pictures(file: &Path, out_dir: &Path) -> Result<Vec<PathBuf>, Error> {
         .file_stem()
         .map(|s| s.to_string_lossy().into_owned())
         .unwrap_or_else(|| "icefold".into());
-    let kind = r.attr_str("icefold_kind")?.unwrap_or_default();
+    let kind = crate::output::damage::icefold_kind(&r)?;
+    crate::output::damage::check(&r, &kind)?;
     let full_title = r.attr_str("title")?.unwrap_or_default();
     // Figure titles: the part before a colon, cut at a word boundary near 65 characters.
     let head = match full_title.split_once(':') {
@@ -68,7 +69,12 @@ pub fn pictures(file: &Path, out_dir: &Path) -> Result<Vec<PathBuf>, Error> {
             Picture::Chart(f) => plot::figure_svg(f),
             Picture::Map(m) => plot::heatmap_svg(m),
         }
-        .map_err(plot_err)?;
+        .map_err(|e| {
+            Error::Other(format!(
+                "{}: cannot draw the {suffix} picture: {e}",
+                file.display()
+            ))
+        })?;
         let (a, b) =
             plot::save_svg_and_png(&out_dir.join(format!("{stem}-{suffix}")), &svg).map_err(plot_err)?;
         written.push(a);

@@ -37,6 +37,7 @@
 
 pub mod branches_file;
 pub mod common;
+pub mod damage;
 pub mod ensemble_file;
 pub mod equilibrium_file;
 mod reader;
@@ -46,7 +47,7 @@ pub mod sweep_file;
 mod writer;
 
 pub use reader::NcReader;
-pub use writer::{Attr, NcGroup, NcWriter, DEFAULT_DEFLATE_LEVEL, MAX_DEFLATE_LEVEL};
+pub use writer::{permit_replacing, Attr, NcGroup, NcWriter, DEFAULT_DEFLATE_LEVEL, MAX_DEFLATE_LEVEL};
 
 use std::path::PathBuf;
 
@@ -97,11 +98,42 @@ pub enum OutputError {
         /// The I/O error.
         source: std::io::Error,
     },
+    /// The target appeared while the job ran (another writer finished first) and no
+    /// replacing was permitted: it is kept as it is.
+    #[error("output file {} appeared while this job ran (another icefold writing the same file?) and is kept as it is; {}; pass --overwrite to replace it", .path.display(), match .kept { Some(k) => format!("this job's result is in {}", k.display()), None => "this job's result could not be kept and was deleted".to_string() })]
+    Exists {
+        /// The requested output file.
+        path: PathBuf,
+        /// Where this job's finished file was moved instead, if that worked.
+        kept: Option<PathBuf>,
+    },
     /// The file does not exist (reading).
     #[error("cannot open {path}: no such file")]
     NotFound {
         /// The file asked for.
         path: PathBuf,
+    },
+    /// An HDF5 file without the `icefold_kind` attribute: not written by icefold.
+    #[error("{path} is not an icefold file (it has no `icefold_kind` attribute); icefold reads only the files it writes")]
+    Foreign {
+        /// The file.
+        path: PathBuf,
+    },
+    /// An icefold file whose content cannot be what icefold wrote.
+    #[error("{path} is damaged: {problem}")]
+    Damaged {
+        /// The file.
+        path: PathBuf,
+        /// What is wrong, naming the variable.
+        problem: String,
+    },
+    /// The path exists but is no regular file (reading).
+    #[error("cannot open {path}: {what}; give an icefold output file")]
+    NotAFile {
+        /// The path asked for.
+        path: PathBuf,
+        /// What it is instead.
+        what: &'static str,
     },
     /// The file exists but HDF5 cannot open it (not HDF5, truncated, or locked by a writer).
     #[error("cannot open {path} as HDF5 (not an HDF5 file, damaged, or still open for writing): {source}")]

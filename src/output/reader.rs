@@ -28,13 +28,30 @@ impl NcReader {
     /// Opens `path` read-only at its root group.
     ///
     /// # Errors
-    /// [`OutputError::NotFound`] if there is no such file; [`OutputError::Open`] if HDF5 cannot
+    /// [`OutputError::NotFound`] if there is no such file; [`OutputError::NotAFile`] for a
+    /// directory or device; [`OutputError::Open`] if HDF5 cannot
     /// open it (not HDF5, damaged, or locked by a writer that still has it open).
     pub fn open(path: &Path) -> Result<NcReader, OutputError> {
-        if !path.is_file() {
-            return Err(OutputError::NotFound {
-                path: path.to_path_buf(),
-            });
+        match std::fs::metadata(path) {
+            Err(e) if e.kind() == std::io::ErrorKind::NotFound => {
+                return Err(OutputError::NotFound {
+                    path: path.to_path_buf(),
+                })
+            }
+            Ok(m) if m.is_dir() => {
+                return Err(OutputError::NotAFile {
+                    path: path.to_path_buf(),
+                    what: "it is a directory",
+                })
+            }
+            Ok(m) if !m.is_file() => {
+                return Err(OutputError::NotAFile {
+                    path: path.to_path_buf(),
+                    what: "it is a device, pipe or socket, not a regular file",
+                })
+            }
+            // Other failures (no permission) are reported by HDF5's open below.
+            _ => {}
         }
         let file = File::open(path).map_err(|source| OutputError::Open {
             path: path.to_path_buf(),

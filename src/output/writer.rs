@@ -212,6 +212,102 @@ struct Inner {
 struct TempFile {
     path: PathBuf,
     armed: bool,
+    /// Whether the final rename may replace an existing target ([`permit_replacing`]).
+    replace: bool,
+}
+
+/// Targets this process may replace (absolute paths), see [`permit_replacing`].
+static REPLACEABLE: std::sync::Mutex<Vec<PathBuf>> = std::sync::Mutex::new(Vec::new());
+
+/// `path` made absolute (against the working directory) for comparing targets.
+fn absolute(path: &Path) -> PathBuf {
+    std::path::absolute(path).unwrap_or_else(|_| path.to_path_buf())
+}
+
+/// Lets writers created afterwards for `target` replace an existing file there. The command
+/// line calls it for `--overwrite` and for the incomplete output of a resumed job; without it
+/// [`NcWriter::finish`] never replaces a file, even one that appeared while the job ran.
+pub fn permit_replacing(target: &Path) {
+    let abs = absolute(target);
+    let mut list = REPLACEABLE.lock().unwrap_or_else(|e| e.into_inner());
+    if !list.contains(&abs) {
+        list.push(abs);
+    }
+}
+
+/// Whether [`permit_replacing`] was called for `target`.
+fn may_replace(target: &Path) -> bool {
+    let abs = absolute(target);
+    REPLACEABLE
+        .lock()
+        .unwrap_or_else(|e| e.into_inner())
+        .contains(&abs)
+}
+
+/// Renames `from` to `to` unless `to` exists (error kind `AlreadyExists`), atomically where
+/// the system allows: Linux `renameat2(RENAME_NOREPLACE)`; where the file system does not
+/// support that flag, a hard link (which refuses an existing name) and then removal of `from`;
+/// where hard links are not supported either (e.g. FAT), a check that `to` is absent just
+/// before a plain rename, which leaves a window of microseconds for another writer.
+fn rename_no_replace(from: &Path, to: &Path) -> std::io::Result<()> {
+    #[cfg(target_os = "linux")]
+    {
+        use std::os::unix::ffi::OsStrExt;
+        let c = |p: &Path| std::ffi::CString::new(p.as_os_str().as_bytes()).map_err(std::io::Error::other);
+        let (f, t) = (c(from)?, c(to)?);
+        // SAFETY: two NUL-terminated paths that live across the call; no memory is shared.
+        let r = unsafe {
+            libc::syscall(
+                libc::SYS_renameat2,
+                libc::AT_FDCWD,
+                f.as_ptr(),
+                libc::AT_FDCWD,
+                t.as_ptr(),
+                libc::RENAME_NOREPLACE,
+            )
+        };
+        if r == 0 {
+            return Ok(());
+        }
+        let e = std::io::Error::last_os_error();
+        // EINVAL/ENOTSUP: the file system lacks the flag; ENOSYS: the kernel is older than 3.15.
+        if !matches!(
+            e.raw_os_error(),
+            Some(libc::EINVAL | libc::ENOSYS | libc::EOPNOTSUPP)
+        ) {
+            return Err(e);
+        }
+    }
+    match std::fs::hard_link(from, to) {
+        Ok(()) => {
+            // The result is in place; a temporary name left behind is only untidy.
+            let _ = std::fs::remove_file(from);
+            Ok(())
+        }
+        Err(e) if e.kind() == std::io::ErrorKind::AlreadyExists => Err(e),
+        Err(_) => {
+            if std::fs::symlink_metadata(to).is_ok() {
+                return Err(std::io::ErrorKind::AlreadyExists.into());
+            }
+            std::fs::rename(from, to)
+        }
+    }
+}
+
+/// Moves the finished temporary file `temp` of `target` to a free visible name beside it,
+/// `<stem>.kept-<pid>[-n].<ext>`; `None` (and the file is deleted with the writer) if that fails.
+fn keep_aside(temp: &Path, target: &Path) -> Option<PathBuf> {
+    let stem = target.file_stem()?.to_string_lossy().into_owned();
+    let ext = target
+        .extension()
+        .map(|e| format!(".{}", e.to_string_lossy()))
+        .unwrap_or_default();
+    let pid = std::process::id();
+    (0..100).find_map(|n| {
+        let suffix = if n == 0 { String::new() } else { format!("-{n}") };
+        let name = target.with_file_name(format!("{stem}.kept-{pid}{suffix}{ext}"));
+        rename_no_replace(temp, &name).ok().map(|()| name)
+    })
 }
 
 impl Drop for TempFile {
@@ -439,6 +535,7 @@ impl NcWriter {
         let temp = TempFile {
             path: temp_path,
             armed: true,
+            replace: may_replace(target),
         };
         let file = File::with_options()
             .with_fapl(|p| p.libver_v18())
@@ -488,8 +585,11 @@ impl NcWriter {
         self.inner.flush_all()
     }
 
-    /// Writes buffered records, closes the file and renames it onto the target (atomically
-    /// replacing an existing file). On error the temporary file is deleted.
+    /// Writes buffered records, closes the file and renames it onto the target. An existing
+    /// target is replaced (atomically) only if [`permit_replacing`] was called for it before
+    /// [`create`](Self::create); otherwise the rename refuses it even when it appeared while
+    /// this writer ran (another process writing the same file), and the result is kept under
+    /// the name [`OutputError::Exists`] reports. On other errors the temporary file is deleted.
     pub fn finish(self) -> Result<(), OutputError> {
         let NcWriter { mut inner, mut temp } = self;
         inner.flush_all()?;
@@ -507,13 +607,30 @@ impl NcWriter {
             object: "closing the file".to_owned(),
             source,
         })?;
-        std::fs::rename(&temp.path, &path).map_err(|source| OutputError::Rename {
-            path: path.clone(),
-            temp: temp.path.clone(),
-            source,
-        })?;
-        temp.armed = false;
-        Ok(())
+        let renamed = if temp.replace {
+            std::fs::rename(&temp.path, &path)
+        } else {
+            rename_no_replace(&temp.path, &path)
+        };
+        match renamed {
+            Ok(()) => {
+                temp.armed = false;
+                Ok(())
+            }
+            Err(e) if e.kind() == std::io::ErrorKind::AlreadyExists => {
+                // Another writer finished first: its file stays, ours is kept beside it.
+                let kept = keep_aside(&temp.path, &path);
+                if kept.is_some() {
+                    temp.armed = false;
+                }
+                Err(OutputError::Exists { path, kept })
+            }
+            Err(source) => Err(OutputError::Rename {
+                path: path.clone(),
+                temp: temp.path.clone(),
+                source,
+            }),
+        }
     }
 
     /// Closes and deletes the temporary file; nothing is written at the target. Dropping the
@@ -1369,6 +1486,65 @@ mod tests {
         w.finish().unwrap();
         assert!(target.exists());
         assert_eq!(dir.entries(), ["out.nc"]);
+    }
+
+    #[test]
+    fn finish_never_replaces_a_target_that_appeared_while_writing() {
+        let dir = TestDir::new("noreplace");
+        let target = dir.file("out.nc");
+        let mut w = NcWriter::create(&target).unwrap();
+        w.add_coordinate("lat", &[1.0, 2.0], &[]).unwrap();
+        // Another writer finishes first.
+        std::fs::write(&target, b"the other result").unwrap();
+        let e = w.finish().unwrap_err();
+        let OutputError::Exists {
+            path,
+            kept: Some(kept),
+        } = &e
+        else {
+            panic!("{e}")
+        };
+        assert_eq!(path, &target);
+        assert_eq!(std::fs::read(&target).unwrap(), b"the other result");
+        let name = kept.file_name().unwrap().to_string_lossy().into_owned();
+        assert_eq!(name, format!("out.kept-{}.nc", std::process::id()));
+        assert!(e.to_string().contains(&kept.display().to_string()), "{e}");
+        // The kept file is the complete result.
+        assert_eq!(NcReader::open(kept).unwrap().read_f64("lat").unwrap(), [1.0, 2.0]);
+        assert_eq!(
+            dir.entries(),
+            [
+                "out.kept-".to_string() + &std::process::id().to_string() + ".nc",
+                "out.nc".into()
+            ]
+        );
+    }
+
+    #[test]
+    fn finish_replaces_a_target_only_when_permitted() {
+        let dir = TestDir::new("permitted");
+        let target = dir.file("out.nc");
+        std::fs::write(&target, b"old").unwrap();
+        permit_replacing(&target);
+        let mut w = NcWriter::create(&target).unwrap();
+        w.add_coordinate("lat", &[3.0], &[]).unwrap();
+        w.finish().unwrap();
+        assert_eq!(NcReader::open(&target).unwrap().read_f64("lat").unwrap(), [3.0]);
+        assert_eq!(dir.entries(), ["out.nc"]);
+    }
+
+    #[test]
+    fn rename_no_replace_falls_back_to_a_hard_link_and_refuses_existing_names() {
+        let dir = TestDir::new("norename");
+        let (a, b) = (dir.file("a"), dir.file("b"));
+        std::fs::write(&a, b"a").unwrap();
+        std::fs::write(&b, b"b").unwrap();
+        let e = rename_no_replace(&a, &b).unwrap_err();
+        assert_eq!(e.kind(), std::io::ErrorKind::AlreadyExists);
+        assert_eq!(std::fs::read(&b).unwrap(), b"b");
+        std::fs::remove_file(&b).unwrap();
+        rename_no_replace(&a, &b).unwrap();
+        assert_eq!(dir.entries(), ["b"]);
     }
 
     #[test]
