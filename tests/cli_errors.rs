@@ -711,13 +711,14 @@ fn plot_of_a_damaged_file_names_the_file_and_what_is_wrong() {
 }
 
 /// Issue 12: inspect prints times rounded to 12 significant digits ("0 to 200 years", not
-/// "0 to 199.99999999999991 years"); a summed output time of 200 years is such a case.
+/// "0 to 199.9999999999997 years"): an output interval of 1/24 year written to 16 digits
+/// ends 3e-13 years short of 200.
 #[test]
 fn inspect_prints_times_rounded() {
     let dir = tempdir("inspect-times");
     std::fs::write(
         dir.join("c.toml"),
-        "[grid]\nbands = 6\n[time]\nyears = 200\noutput_every_years = 0.1\n",
+        "[grid]\nbands = 6\n[time]\nyears = 200\noutput_every_years = 0.0416666666666666\n",
     )
     .unwrap();
     let (code, err) = run_in(&dir, &["run", "c.toml", "-o", "t.nc"]);
@@ -729,7 +730,7 @@ fn inspect_prints_times_rounded() {
         .unwrap();
     let text = String::from_utf8_lossy(&out.stdout);
     assert!(
-        text.contains("time:       0 to 200 years, 2001 records"),
+        text.contains("time:       0 to 200 years, 4801 records"),
         "{text}"
     );
     let _ = std::fs::remove_dir_all(&dir);
