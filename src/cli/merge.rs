@@ -6,8 +6,8 @@ use std::path::PathBuf;
 /// Merge the shards.
 pub fn main(inputs: &[PathBuf], output: &PathBuf, overwrite: bool) -> Result<(), Error> {
     super::check_output_name(output)?;
-    if overwrite {
-        crate::output::permit_replacing(output);
+    if !overwrite {
+        crate::output::forbid_replacing(output);
     }
     if output.exists() && !overwrite {
         return Err(Error::Usage(format!(

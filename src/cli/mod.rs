@@ -345,9 +345,9 @@ pub fn output_path_resuming(
             path.display()
         )));
     }
-    if replace {
-        // Otherwise the final rename refuses a file that appears while the job runs.
-        crate::output::permit_replacing(&path);
+    if !replace {
+        // The final rename also refuses a file that appears while the job runs.
+        crate::output::forbid_replacing(&path);
     }
     Ok(path)
 }

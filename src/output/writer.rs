@@ -212,33 +212,34 @@ struct Inner {
 struct TempFile {
     path: PathBuf,
     armed: bool,
-    /// Whether the final rename may replace an existing target ([`permit_replacing`]).
+    /// Whether the final rename may replace an existing target ([`forbid_replacing`]).
     replace: bool,
 }
 
-/// Targets this process may replace (absolute paths), see [`permit_replacing`].
-static REPLACEABLE: std::sync::Mutex<Vec<PathBuf>> = std::sync::Mutex::new(Vec::new());
+/// Targets this process must not replace (absolute paths), see [`forbid_replacing`].
+static NO_REPLACE: std::sync::Mutex<Vec<PathBuf>> = std::sync::Mutex::new(Vec::new());
 
 /// `path` made absolute (against the working directory) for comparing targets.
 fn absolute(path: &Path) -> PathBuf {
     std::path::absolute(path).unwrap_or_else(|_| path.to_path_buf())
 }
 
-/// Lets writers created afterwards for `target` replace an existing file there. The command
-/// line calls it for `--overwrite` and for the incomplete output of a resumed job; without it
-/// [`NcWriter::finish`] never replaces a file, even one that appeared while the job ran.
-pub fn permit_replacing(target: &Path) {
+/// Makes writers created afterwards for `target` refuse, at [`NcWriter::finish`], to replace a
+/// file there, even one that appeared while the job ran (another process writing the same
+/// file). The command line calls it for every output written without `--overwrite` (other
+/// than a resumed job's incomplete output); library callers replace by default.
+pub fn forbid_replacing(target: &Path) {
     let abs = absolute(target);
-    let mut list = REPLACEABLE.lock().unwrap_or_else(|e| e.into_inner());
+    let mut list = NO_REPLACE.lock().unwrap_or_else(|e| e.into_inner());
     if !list.contains(&abs) {
         list.push(abs);
     }
 }
 
-/// Whether [`permit_replacing`] was called for `target`.
+/// Whether [`forbid_replacing`] was called for `target`.
 fn may_replace(target: &Path) -> bool {
     let abs = absolute(target);
-    REPLACEABLE
+    !NO_REPLACE
         .lock()
         .unwrap_or_else(|e| e.into_inner())
         .contains(&abs)
@@ -278,6 +279,12 @@ fn rename_no_replace(from: &Path, to: &Path) -> std::io::Result<()> {
             return Err(e);
         }
     }
+    rename_by_link(from, to)
+}
+
+/// The fallback of [`rename_no_replace`]: a hard link (refused for an existing name), then
+/// removal of `from`; without hard links, a check for `to` just before a plain rename.
+fn rename_by_link(from: &Path, to: &Path) -> std::io::Result<()> {
     match std::fs::hard_link(from, to) {
         Ok(()) => {
             // The result is in place; a temporary name left behind is only untidy.
@@ -585,11 +592,12 @@ impl NcWriter {
         self.inner.flush_all()
     }
 
-    /// Writes buffered records, closes the file and renames it onto the target. An existing
-    /// target is replaced (atomically) only if [`permit_replacing`] was called for it before
-    /// [`create`](Self::create); otherwise the rename refuses it even when it appeared while
-    /// this writer ran (another process writing the same file), and the result is kept under
-    /// the name [`OutputError::Exists`] reports. On other errors the temporary file is deleted.
+    /// Writes buffered records, closes the file and renames it onto the target, atomically
+    /// replacing an existing file unless [`forbid_replacing`] was called for the target before
+    /// [`create`](Self::create): then the rename refuses an existing file even when it
+    /// appeared while this writer ran (another process writing the same file), and the result
+    /// is kept under the name [`OutputError::Exists`] reports. On other errors the temporary
+    /// file is deleted.
     pub fn finish(self) -> Result<(), OutputError> {
         let NcWriter { mut inner, mut temp } = self;
         inner.flush_all()?;
@@ -1489,9 +1497,10 @@ mod tests {
     }
 
     #[test]
-    fn finish_never_replaces_a_target_that_appeared_while_writing() {
+    fn finish_never_replaces_a_forbidden_target_that_appeared_while_writing() {
         let dir = TestDir::new("noreplace");
         let target = dir.file("out.nc");
+        forbid_replacing(&target);
         let mut w = NcWriter::create(&target).unwrap();
         w.add_coordinate("lat", &[1.0, 2.0], &[]).unwrap();
         // Another writer finishes first.
@@ -1506,26 +1515,19 @@ mod tests {
         };
         assert_eq!(path, &target);
         assert_eq!(std::fs::read(&target).unwrap(), b"the other result");
-        let name = kept.file_name().unwrap().to_string_lossy().into_owned();
-        assert_eq!(name, format!("out.kept-{}.nc", std::process::id()));
+        let kept_name = format!("out.kept-{}.nc", std::process::id());
+        assert_eq!(kept.file_name().unwrap().to_string_lossy(), kept_name);
         assert!(e.to_string().contains(&kept.display().to_string()), "{e}");
         // The kept file is the complete result.
         assert_eq!(NcReader::open(kept).unwrap().read_f64("lat").unwrap(), [1.0, 2.0]);
-        assert_eq!(
-            dir.entries(),
-            [
-                "out.kept-".to_string() + &std::process::id().to_string() + ".nc",
-                "out.nc".into()
-            ]
-        );
+        assert_eq!(dir.entries(), [kept_name, "out.nc".into()]);
     }
 
     #[test]
-    fn finish_replaces_a_target_only_when_permitted() {
-        let dir = TestDir::new("permitted");
+    fn finish_replaces_a_target_unless_forbidden() {
+        let dir = TestDir::new("replaces");
         let target = dir.file("out.nc");
         std::fs::write(&target, b"old").unwrap();
-        permit_replacing(&target);
         let mut w = NcWriter::create(&target).unwrap();
         w.add_coordinate("lat", &[3.0], &[]).unwrap();
         w.finish().unwrap();
@@ -1534,17 +1536,27 @@ mod tests {
     }
 
     #[test]
-    fn rename_no_replace_falls_back_to_a_hard_link_and_refuses_existing_names() {
+    fn renames_without_replacing_refuse_an_existing_name() {
         let dir = TestDir::new("norename");
-        let (a, b) = (dir.file("a"), dir.file("b"));
-        std::fs::write(&a, b"a").unwrap();
-        std::fs::write(&b, b"b").unwrap();
-        let e = rename_no_replace(&a, &b).unwrap_err();
-        assert_eq!(e.kind(), std::io::ErrorKind::AlreadyExists);
-        assert_eq!(std::fs::read(&b).unwrap(), b"b");
-        std::fs::remove_file(&b).unwrap();
-        rename_no_replace(&a, &b).unwrap();
-        assert_eq!(dir.entries(), ["b"]);
+        for (name, rename) in [
+            (
+                "renameat2",
+                rename_no_replace as fn(&Path, &Path) -> std::io::Result<()>,
+            ),
+            ("hard link", rename_by_link),
+        ] {
+            let (a, b) = (dir.file("a"), dir.file("b"));
+            std::fs::write(&a, b"a").unwrap();
+            std::fs::write(&b, b"b").unwrap();
+            let e = rename(&a, &b).unwrap_err();
+            assert_eq!(e.kind(), std::io::ErrorKind::AlreadyExists, "{name}");
+            assert_eq!(std::fs::read(&b).unwrap(), b"b", "{name}");
+            std::fs::remove_file(&b).unwrap();
+            rename(&a, &b).unwrap();
+            assert_eq!(dir.entries(), ["b"], "{name}");
+            assert_eq!(std::fs::read(&b).unwrap(), b"a", "{name}");
+            std::fs::remove_file(&b).unwrap();
+        }
     }
 
     #[test]
