@@ -81,6 +81,16 @@ pub trait DriverSource: Send + Sync + std::fmt::Debug {
     }
     /// Values of `parameter_keys` at `t_years`, in the same order, into `out`.
     fn parameter_values(&self, _t_years: f64, _out: &mut [f64]) {}
+    /// The first time (years) strictly after `t_years` where the drivers jump or change slope
+    /// (a breakpoint every time stepper must land on), if any.
+    fn next_breakpoint(&self, _t_years: f64) -> Option<f64> {
+        None
+    }
+    /// The longest step (years) that resolves the drivers over `[a, b]` (years, `a <= b`; `a == b`
+    /// for the drivers at one time): the forcing's own time scale there.
+    fn time_scale(&self, _a: f64, _b: f64) -> f64 {
+        f64::INFINITY
+    }
 }
 
 /// The model.
@@ -238,6 +248,21 @@ impl Model {
             Some(f) => f.at(t_years),
             None => self.drivers,
         }
+    }
+
+    /// The first forcing breakpoint strictly after `t_years` (see [`DriverSource::next_breakpoint`]).
+    #[inline]
+    pub fn next_breakpoint(&self, t_years: f64) -> Option<f64> {
+        self.forcing.as_ref().and_then(|f| f.next_breakpoint(t_years))
+    }
+
+    /// The forcing's time scale over `[a, b]`, years (see [`DriverSource::time_scale`]);
+    /// infinite without a forcing history.
+    #[inline]
+    pub fn forcing_time_scale(&self, a: f64, b: f64) -> f64 {
+        self.forcing
+            .as_ref()
+            .map_or(f64::INFINITY, |f| f.time_scale(a, b))
     }
 
     /// Insolation (W m-2, before `solar_scale`) at a model time, cached in `ws`.

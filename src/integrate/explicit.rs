@@ -102,20 +102,28 @@ impl<'m> Explicit<'m> {
         }
     }
 
-    /// Integrate to `t_end` in calls of at most [`steps_per_call`] steps each.
+    /// Integrate to `t_end` in calls of at most [`steps_per_call`] steps each, split at every
+    /// forcing breakpoint (each call ends on one, so no step crosses a jump or kink of the
+    /// forcing), each call's longest step also limited by the forcing's time scale over it.
     fn chunk(&mut self, t_end: f64) -> Result<(), SolverError> {
         let n = self.model.len();
         let per_call = steps_per_call(n);
         while self.t < t_end {
-            let left = self.max_steps.saturating_sub(self.stats.steps);
-            if left == 0 {
-                return Err(SolverError::TooManySteps {
-                    t: self.t,
-                    limit: self.max_steps,
-                });
-            }
-            if self.call(t_end, left.min(per_call))? {
-                self.t = t_end;
+            let seg_end = match self.model.next_breakpoint(self.t) {
+                Some(b) if b < t_end => b,
+                _ => t_end,
+            };
+            while self.t < seg_end {
+                let left = self.max_steps.saturating_sub(self.stats.steps);
+                if left == 0 {
+                    return Err(SolverError::TooManySteps {
+                        t: self.t,
+                        limit: self.max_steps,
+                    });
+                }
+                if self.call(seg_end, left.min(per_call))? {
+                    self.t = seg_end;
+                }
             }
         }
         check_state(self.model, self.t, self.y.as_slice())
@@ -138,7 +146,10 @@ impl<'m> Explicit<'m> {
         };
         let n_stiff = if self.stiffness_check { 1000 } else { u32::MAX };
         let span = t_end - self.t;
-        let h_max = self.max_step.min(span);
+        let h_max = self
+            .max_step
+            .min(span)
+            .min(self.model.forcing_time_scale(self.t, t_end));
         // rtol 0 and atol = tolerance: an absolute error control in K, as for the implicit scheme.
         macro_rules! go {
             ($solver:ident) => {{
