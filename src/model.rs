@@ -625,26 +625,31 @@ impl Model {
 
     /// The parts of the net heating at a state.
     pub fn budget(&self, t_years: f64, temps: &[f64], ws: &mut Workspace) -> Budget {
+        let n = temps.len();
+        let mut b = Budget {
+            absorbed: vec![0.0; n],
+            olr: vec![0.0; n],
+            transport: vec![0.0; n],
+            extra: 0.0,
+        };
+        self.budget_into(t_years, temps, ws, &mut b);
+        b
+    }
+
+    /// [`Model::budget`] into `b` (its vectors sized to the bands), allocating nothing.
+    pub fn budget_into(&self, t_years: f64, temps: &[f64], ws: &mut Workspace, b: &mut Budget) {
         self.refresh_sun(t_years, ws);
         let d = self.drivers_at(t_years);
         let n = temps.len();
-        let mut transport = vec![0.0; n];
-        self.transport.convergence(&self.grid, temps, &mut transport);
-        transport.iter_mut().for_each(|v| *v *= d.transport_scale);
+        self.transport.convergence(&self.grid, temps, &mut b.transport);
+        b.transport.iter_mut().for_each(|v| *v *= d.transport_scale);
         let sun = self.sun(ws);
-        let mut absorbed = vec![0.0; n];
-        let mut olr = vec![0.0; n];
         for i in 0..n {
-            absorbed[i] = d.solar_scale * sun[i] * (1.0 - self.albedo.band(temps, i).0);
+            b.absorbed[i] = d.solar_scale * sun[i] * (1.0 - self.albedo.band(temps, i).0);
             let (o, dolr) = self.longwave.eval(temps[i]);
-            olr[i] = d.olr(o, dolr, temps[i]).0 - d.greenhouse_wm2;
+            b.olr[i] = d.olr(o, dolr, temps[i]).0 - d.greenhouse_wm2;
         }
-        Budget {
-            absorbed,
-            olr,
-            transport,
-            extra: d.extra_wm2,
-        }
+        b.extra = d.extra_wm2;
     }
 
     /// Global-mean temperature, K.

@@ -375,6 +375,16 @@ impl<'m> Ros2<'m> {
         (lo, hi)
     }
 
+    /// Start of the last accepted step (years; the current time before the first step).
+    pub fn previous_time(&self) -> f64 {
+        self.t_prev
+    }
+
+    /// The dense output: the state (K) at `t` within the last accepted step into `out`.
+    pub fn dense(&self, t: f64, out: &mut [f64]) {
+        self.interpolate(t, out)
+    }
+
     /// Cubic Hermite interpolation of the state at `t` within the last step into `out`.
     fn interpolate(&self, t: f64, out: &mut [f64]) {
         let h = self.t - self.t_prev;
