@@ -245,6 +245,54 @@ impl ForcingSeries {
         }
     }
 
+    /// Years of the rows where the series changes form: with linear interpolation a row where
+    /// the slope of any column changes (the series holds its end values outside its range),
+    /// with step interpolation a row where any column jumps.
+    pub fn breakpoints(&self) -> Vec<f64> {
+        let y = &self.years;
+        let n = y.len();
+        let slope = |v: &[f64], i: usize| -> f64 {
+            // Slope of segment i (rows i, i + 1); 0 outside the rows (held values).
+            if i + 1 >= n {
+                0.0
+            } else {
+                (v[i + 1] - v[i]) / (y[i + 1] - y[i])
+            }
+        };
+        (0..n)
+            .filter(|&i| {
+                self.columns.iter().any(|(_, v)| match self.interpolation {
+                    Interpolation::Step => i > 0 && v[i] != v[i - 1],
+                    Interpolation::Linear => {
+                        let left = if i == 0 { 0.0 } else { slope(v, i - 1) };
+                        let right = slope(v, i);
+                        // Rows on one straight line (to round-off of the slopes) are no break.
+                        (left - right).abs() > 1e-12 * (left.abs() + right.abs())
+                    }
+                })
+            })
+            .map(|i| y[i])
+            .collect()
+    }
+
+    /// The shortest row spacing (years) of the rows around `[a, b]`: the segments containing
+    /// `a` and `b`, every segment between them and the segment before `a`'s; infinite outside
+    /// the rows (held end values).
+    pub fn row_spacing(&self, a: f64, b: f64) -> f64 {
+        let y = &self.years;
+        let n = y.len();
+        if n < 2 || b < y[0] || a >= y[n - 1] {
+            return f64::INFINITY;
+        }
+        // First segment: the one before the segment containing `a`.
+        let ia = y.partition_point(|&x| x <= a).saturating_sub(2);
+        // Last segment: the one containing `b` (or ending at it).
+        let ib = y.partition_point(|&x| x < b).min(n - 1).max(ia + 1);
+        y[ia..=ib]
+            .windows(2)
+            .fold(f64::INFINITY, |m, w| m.min(w[1] - w[0]))
+    }
+
     /// Index of a column by name (`co2_ppm` and `greenhouse.co2_ppm` match each other).
     pub fn column(&self, name: &str) -> Option<usize> {
         self.columns
@@ -339,9 +387,19 @@ impl Piece {
         }
     }
 
-    /// Times where the piece changes form (for range checks).
+    /// Times where the piece changes form: its start and end.
     fn breakpoints(&self) -> [f64; 2] {
         [self.start, self.end]
+    }
+
+    /// The longest step (years) that resolves the piece while it is active: its duration
+    /// (finite pieces), and a twentieth of a sinusoid's period; infinite otherwise.
+    fn time_scale(&self) -> f64 {
+        let duration = self.end - self.start;
+        match self.shape {
+            PieceShape::Sinusoid { period, .. } => duration.min(period / 20.0),
+            _ => duration,
+        }
     }
 }
 
@@ -408,6 +466,8 @@ pub struct ForcingSpec {
     pub series: Option<ForcingSeries>,
     channels: Vec<Channel>,
     bases: Bases,
+    /// Every breakpoint of the series and the pieces, increasing, finite.
+    breaks: Vec<f64>,
 }
 
 impl ForcingSpec {
@@ -473,10 +533,20 @@ impl ForcingSpec {
                     .collect(),
             });
         }
+        let mut breaks: Vec<f64> = series.as_ref().map(|s| s.breakpoints()).unwrap_or_default();
+        breaks.extend(
+            pieces
+                .iter()
+                .flat_map(|p| p.breakpoints())
+                .filter(|t| t.is_finite()),
+        );
+        breaks.sort_by(f64::total_cmp);
+        breaks.dedup();
         Ok(ForcingSpec {
             series,
             channels,
             bases,
+            breaks,
         })
     }
 
@@ -509,6 +579,37 @@ impl ForcingSpec {
             }
         }
         Ok(())
+    }
+
+    /// Every time (years, increasing) where the forcing jumps or changes slope: rows of the
+    /// series where a slope changes or a step jumps, and each piece's start and end.
+    pub fn breakpoints(&self) -> &[f64] {
+        &self.breaks
+    }
+
+    /// The first breakpoint strictly after `t` (years), if any.
+    pub fn next_breakpoint(&self, t: f64) -> Option<f64> {
+        self.breaks.get(self.breaks.partition_point(|&b| b <= t)).copied()
+    }
+
+    /// The forcing's own time scale over `[a, b]` (years, `a <= b`): the shortest row spacing of
+    /// the series around it, and the [`Piece::time_scale`] of every piece active in it; a
+    /// time stepper that keeps its steps below this (and lands on every breakpoint) never
+    /// steps across a feature of the forcing.
+    pub fn time_scale(&self, a: f64, b: f64) -> f64 {
+        let mut m = self
+            .series
+            .as_ref()
+            .map_or(f64::INFINITY, |s| s.row_spacing(a, b));
+        for c in &self.channels {
+            for p in &c.pieces {
+                // Active somewhere in [a, b) (at `a` itself when a == b).
+                if (p.start < b || p.start <= a) && p.end > a {
+                    m = m.min(p.time_scale());
+                }
+            }
+        }
+        m
     }
 
     /// Names of the channels, in order of first appearance (CSV columns, then pieces).
@@ -598,6 +699,14 @@ impl DriverSource for TimeDrivers {
             .filter(|c| !matches!(c.role, Role::SolarMultiplier | Role::ExtraAdded))
             .map(|c| c.name.to_string())
             .collect()
+    }
+
+    fn next_breakpoint(&self, t: f64) -> Option<f64> {
+        self.spec.next_breakpoint(t)
+    }
+
+    fn time_scale(&self, a: f64, b: f64) -> f64 {
+        self.spec.time_scale(a, b)
     }
 
     fn parameter_values(&self, t: f64, out: &mut [f64]) {
@@ -753,5 +862,50 @@ mod tests {
         assert!(spec.check_values(20.0).is_ok());
         let e = spec.check_values(40.0).unwrap_err();
         assert!(e.contains("greenhouse.co2_ppm") && e.contains("above 0"), "{e}");
+    }
+
+    #[test]
+    fn breakpoints_are_the_kinks_and_jumps_and_the_time_scale_the_features() {
+        // By hand: rows 0, 10, 20, 30 on one line except the kink at 20; a step series jumps
+        // at 10 only.
+        let lin = ForcingSeries::parse(
+            "year,forcing_wm2\n0,0\n10,1\n20,2\n30,0\n",
+            Interpolation::Linear,
+            false,
+        )
+        .unwrap();
+        assert_eq!(lin.breakpoints(), [0.0, 20.0, 30.0]);
+        let st =
+            ForcingSeries::parse("year,forcing_wm2\n0,0\n10,1\n20,1\n", Interpolation::Step, false).unwrap();
+        assert_eq!(st.breakpoints(), [10.0]);
+        let pulse = Piece {
+            target: "forcing_wm2".into(),
+            shape: PieceShape::Step { size: -3.0 },
+            start: 12.0,
+            end: 12.5,
+        };
+        let cycle = Piece {
+            target: "solar_scale".into(),
+            shape: PieceShape::Sinusoid {
+                amplitude: 0.001,
+                period: 11.0,
+                phase: 0.0,
+            },
+            start: 0.0,
+            end: f64::INFINITY,
+        };
+        let spec = ForcingSpec::new(Some(st), vec![pulse, cycle], bases()).unwrap();
+        assert_eq!(spec.breakpoints(), [0.0, 10.0, 12.0, 12.5]);
+        assert_eq!(spec.next_breakpoint(10.0), Some(12.0));
+        assert_eq!(spec.next_breakpoint(12.5), None);
+        // Row spacing 10, the sinusoid's period / 20 = 0.55, the pulse's 0.5 while it lasts.
+        assert_eq!(spec.time_scale(5.0, 5.0), 0.55);
+        assert_eq!(spec.time_scale(12.2, 12.2), 0.5);
+        assert_eq!(spec.time_scale(11.0, 12.0), 0.55);
+        assert_eq!(spec.time_scale(11.0, 12.1), 0.5);
+        assert_eq!(
+            spec.series.as_ref().unwrap().row_spacing(25.0, 30.0),
+            f64::INFINITY
+        );
     }
 }

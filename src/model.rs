@@ -81,6 +81,16 @@ pub trait DriverSource: Send + Sync + std::fmt::Debug {
     }
     /// Values of `parameter_keys` at `t_years`, in the same order, into `out`.
     fn parameter_values(&self, _t_years: f64, _out: &mut [f64]) {}
+    /// The first time (years) strictly after `t_years` where the drivers jump or change slope
+    /// (a breakpoint every time stepper must land on), if any.
+    fn next_breakpoint(&self, _t_years: f64) -> Option<f64> {
+        None
+    }
+    /// The longest step (years) that resolves the drivers over `[a, b]` (years, `a <= b`; `a == b`
+    /// for the drivers at one time): the forcing's own time scale there.
+    fn time_scale(&self, _a: f64, _b: f64) -> f64 {
+        f64::INFINITY
+    }
 }
 
 /// The model.
@@ -238,6 +248,21 @@ impl Model {
             Some(f) => f.at(t_years),
             None => self.drivers,
         }
+    }
+
+    /// The first forcing breakpoint strictly after `t_years` (see [`DriverSource::next_breakpoint`]).
+    #[inline]
+    pub fn next_breakpoint(&self, t_years: f64) -> Option<f64> {
+        self.forcing.as_ref().and_then(|f| f.next_breakpoint(t_years))
+    }
+
+    /// The forcing's time scale over `[a, b]`, years (see [`DriverSource::time_scale`]);
+    /// infinite without a forcing history.
+    #[inline]
+    pub fn forcing_time_scale(&self, a: f64, b: f64) -> f64 {
+        self.forcing
+            .as_ref()
+            .map_or(f64::INFINITY, |f| f.time_scale(a, b))
     }
 
     /// Insolation (W m-2, before `solar_scale`) at a model time, cached in `ws`.
@@ -600,26 +625,31 @@ impl Model {
 
     /// The parts of the net heating at a state.
     pub fn budget(&self, t_years: f64, temps: &[f64], ws: &mut Workspace) -> Budget {
+        let n = temps.len();
+        let mut b = Budget {
+            absorbed: vec![0.0; n],
+            olr: vec![0.0; n],
+            transport: vec![0.0; n],
+            extra: 0.0,
+        };
+        self.budget_into(t_years, temps, ws, &mut b);
+        b
+    }
+
+    /// [`Model::budget`] into `b` (its vectors sized to the bands), allocating nothing.
+    pub fn budget_into(&self, t_years: f64, temps: &[f64], ws: &mut Workspace, b: &mut Budget) {
         self.refresh_sun(t_years, ws);
         let d = self.drivers_at(t_years);
         let n = temps.len();
-        let mut transport = vec![0.0; n];
-        self.transport.convergence(&self.grid, temps, &mut transport);
-        transport.iter_mut().for_each(|v| *v *= d.transport_scale);
+        self.transport.convergence(&self.grid, temps, &mut b.transport);
+        b.transport.iter_mut().for_each(|v| *v *= d.transport_scale);
         let sun = self.sun(ws);
-        let mut absorbed = vec![0.0; n];
-        let mut olr = vec![0.0; n];
         for i in 0..n {
-            absorbed[i] = d.solar_scale * sun[i] * (1.0 - self.albedo.band(temps, i).0);
+            b.absorbed[i] = d.solar_scale * sun[i] * (1.0 - self.albedo.band(temps, i).0);
             let (o, dolr) = self.longwave.eval(temps[i]);
-            olr[i] = d.olr(o, dolr, temps[i]).0 - d.greenhouse_wm2;
+            b.olr[i] = d.olr(o, dolr, temps[i]).0 - d.greenhouse_wm2;
         }
-        Budget {
-            absorbed,
-            olr,
-            transport,
-            extra: d.extra_wm2,
-        }
+        b.extra = d.extra_wm2;
     }
 
     /// Global-mean temperature, K.

@@ -102,6 +102,33 @@ fn run_with_annual_means_and_every_step_output_resumes_identically() {
         ["--checkpoint-every", "1"],
         2,
     );
+    // Time means integrated over the trajectory: a checkpoint at a record starts the next
+    // year's integral afresh; the step in progress is recomputed from the saved stepper.
+    resume_matches(
+        "annual-means",
+        "run",
+        "seasonal-globe.toml",
+        &["--set", "time.years=6", "--set", "time.output=\"annual_mean\""],
+        ["--checkpoint-every", "2"],
+        2,
+    );
+    resume_matches(
+        "annual-means-dopri",
+        "run",
+        "classic-step-albedo.toml",
+        &[
+            "--set",
+            "time.years=30",
+            "--set",
+            "grid.bands=12",
+            "--set",
+            "time.method=\"dopri5\"",
+            "--set",
+            "time.output=\"annual_mean\"",
+        ],
+        ["--checkpoint-every", "5"],
+        2,
+    );
     resume_matches(
         "every-step",
         "run",

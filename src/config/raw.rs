@@ -225,8 +225,8 @@ pub struct RawTime {
     /// Step limit of the whole run.
     pub max_steps: Option<i64>,
     /// What the records hold: "instant" (the state at each output time), "every_step" (every
-    /// accepted step of the implicit scheme) or "annual_mean" (means over each model year of
-    /// samples at the output cadence).
+    /// accepted step of the implicit scheme) or "annual_mean" (time means over each model year
+    /// of the whole trajectory, integrated step by step).
     pub output: Option<String>,
 }
 

@@ -126,12 +126,9 @@ pub enum OutputMode {
     Instant,
     /// The state after every accepted step (implicit scheme).
     EveryStep,
-    /// Means over each whole model year of samples taken this many times a year (trapezoid
-    /// rule over the year, end samples shared by neighbouring years).
-    AnnualMean {
-        /// Samples per year (`1 / time.output_every_years`).
-        samples_per_year: usize,
-    },
+    /// Time means over each whole model year: the integral of the dense trajectory (every
+    /// step's interpolant, by Gauss-Legendre quadrature) divided by the year.
+    AnnualMean,
 }
 
 /// `[time]`, validated.

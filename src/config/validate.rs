@@ -570,7 +570,7 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
                 return Err(c.range_err(
                     "time.output_every_years",
                     output_every.to_string(),
-                    "with time.output = \"annual_mean\" the sampling interval must divide a year: 1/n years for a whole number n (e.g. 0.0833333333333333 for monthly samples)".into(),
+                    "with time.output = \"annual_mean\" a sampling interval, if given, must divide a year: 1/n years for a whole number n (it has no effect: the means integrate the whole trajectory)".into(),
                 ));
             }
             if years < 1.0 {
@@ -580,15 +580,14 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
                     "with time.output = \"annual_mean\" allowed: at least 1 (only whole model years are written)".into(),
                 ));
             }
-            OutputMode::AnnualMean {
-                samples_per_year: per_year as usize,
-            }
+            OutputMode::AnnualMean
         }
         _ => OutputMode::Instant,
     };
-    // Annual means sample at exactly 1/n years.
+    // Annual means integrate the trajectory and write one record a year (a sampling interval
+    // given for them, 1/n years, is accepted from older configs and has no effect).
     let output_every = match output {
-        OutputMode::AnnualMean { samples_per_year } => 1.0 / samples_per_year as f64,
+        OutputMode::AnnualMean => 1.0,
         _ => output_every,
     };
     let series = match forcing_file {

@@ -3,17 +3,64 @@
 //! After every record a [`Boundary`] hook may save the [`Stepper`]'s state or stop the run;
 //! [`run_from`] continues from a restored stepper at the same sample times.
 
-use super::explicit::{Explicit, Scheme};
+use super::explicit::{Explicit, Scheme, StepsError};
 use super::rosenbrock::{Ros2, Ros2Snapshot, StepPolicy};
 use super::{Integrator, SolverError, Stats};
 use crate::checkpoint::{Restart, RestartError};
 use crate::config::spec::{Method, TimeSpec};
 use crate::model::Model;
 
+/// An observer's error (e.g. of the file writer).
+pub type ObserverError = Box<dyn std::error::Error + Send + Sync>;
+
 /// Receives the state at each output time.
 pub trait Observer {
     /// Record the state `temps` (K) at model time `t` (years).
-    fn record(&mut self, t: f64, temps: &[f64]) -> Result<(), Box<dyn std::error::Error + Send + Sync>>;
+    fn record(&mut self, t: f64, temps: &[f64]) -> Result<(), ObserverError>;
+
+    /// Time means (`time.output = "annual_mean"`): add `weight` (years) times every record
+    /// field at the state `temps` (K) at time `t` (years) to the running time integral. The
+    /// driver calls this at the quadrature nodes of every step's dense output.
+    fn accumulate(&mut self, _t: f64, _weight: f64, _temps: &[f64]) -> Result<(), ObserverError> {
+        Err("this output takes no time means".into())
+    }
+
+    /// Write the time mean over `[a, b]` (years: the integral accumulated since the last
+    /// mean, divided by `b - a`) as one record and start the next; `end` is the state at `b`.
+    fn record_mean(&mut self, _a: f64, _b: f64, _end: &[f64]) -> Result<(), ObserverError> {
+        Err("this output takes no time means".into())
+    }
+}
+
+/// Gauss-Legendre nodes on `[-1, 1]` and weights of the 3-point rule (exact for polynomials of
+/// degree 5). Reference: Abramowitz and Stegun (1964), table 25.4.
+const GAUSS3: [(f64, f64); 3] = [
+    (-0.774_596_669_241_483_4, 5.0 / 9.0),
+    (0.0, 8.0 / 9.0),
+    (0.774_596_669_241_483_4, 5.0 / 9.0),
+];
+
+/// Add the integral over `[lo, hi]` (years) of every record field along the dense output
+/// `dense(t, out)` of one step to `observer`'s time mean, by the 3-point Gauss-Legendre rule
+/// (order 6: the cubic Hermite interpolant of the state is integrated exactly by it in every
+/// field linear in the state; fields nonlinear in it to `O(h^7)` per step where smooth).
+fn quadrature(
+    lo: f64,
+    hi: f64,
+    scratch: &mut [f64],
+    mut dense: impl FnMut(f64, &mut [f64]),
+    observer: &mut dyn Observer,
+) -> Result<(), ObserverError> {
+    if !(hi > lo) {
+        return Ok(());
+    }
+    let (mid, half) = (0.5 * (lo + hi), 0.5 * (hi - lo));
+    for (x, w) in GAUSS3 {
+        let t = mid + half * x;
+        dense(t, scratch);
+        observer.accumulate(t, w * half, scratch)?;
+    }
+    Ok(())
 }
 
 /// Why a run stopped early.
@@ -171,6 +218,58 @@ impl<'m> Stepper<'m> {
         }
     }
 
+    /// Advance from `a` to `b` (years; the stepper is at `a` or inside a step that began at
+    /// or before `a`), adding the integral over `[a, b]` of every record field along the dense
+    /// trajectory to `observer`; the state at `b` (K) goes to `end`.
+    pub fn integrate_over(
+        &mut self,
+        a: f64,
+        b: f64,
+        scratch: &mut [f64],
+        end: &mut [f64],
+        observer: &mut dyn Observer,
+    ) -> Result<(), RunError> {
+        let out = |e: ObserverError| RunError::Output(e);
+        match self {
+            Stepper::Implicit(r) => {
+                let near = 1e-12 * (1.0 + b.abs());
+                loop {
+                    // The part of the last step inside [a, b].
+                    let (lo, hi) = (r.previous_time().max(a), r.time().min(b));
+                    quadrature(lo, hi, scratch, |t, o| r.dense(t, o), observer).map_err(out)?;
+                    if r.time() >= b - near {
+                        break;
+                    }
+                    r.step()?;
+                }
+                r.advance_to(b, end)?;
+            }
+            Stepper::Explicit(e) => {
+                e.advance_to_with_steps(b, end, &mut |t0, y0, f0, t1, y1, f1| {
+                    let h = t1 - t0;
+                    quadrature(
+                        t0.max(a),
+                        t1.min(b),
+                        scratch,
+                        |t, o| {
+                            let s = (t - t0) / h;
+                            let [h00, h10, h01, h11] = crate::interpolation::hermite_basis(s);
+                            for i in 0..o.len() {
+                                o[i] = h00 * y0[i] + h10 * h * f0[i] + h01 * y1[i] + h11 * h * f1[i];
+                            }
+                        },
+                        observer,
+                    )
+                })
+                .map_err(|e| match e {
+                    StepsError::Solver(e) => RunError::Solver(e),
+                    StepsError::Observer(e) => RunError::Output(e),
+                })?;
+            }
+        }
+        Ok(())
+    }
+
     /// Counters so far.
     pub fn stats(&self) -> Stats {
         match self {
@@ -297,8 +396,14 @@ pub fn run_from(
     progress: &mut dyn FnMut(f64),
     hooks: &mut dyn Boundary,
 ) -> Result<RunSummary, RunError> {
-    if time.output == crate::config::spec::OutputMode::EveryStep {
-        return run_every_step(time, stepper, done, last, observer, progress, hooks);
+    match time.output {
+        crate::config::spec::OutputMode::EveryStep => {
+            return run_every_step(time, stepper, done, last, observer, progress, hooks)
+        }
+        crate::config::spec::OutputMode::AnnualMean => {
+            return run_means(time, stepper, done, last, observer, progress, hooks)
+        }
+        crate::config::spec::OutputMode::Instant => {}
     }
     let mut state = last.to_vec();
     let mut outputs = done;
@@ -323,6 +428,53 @@ pub fn run_from(
         t_last = output_times(time.years, time.output_every)
             .nth((done as usize).saturating_sub(1))
             .unwrap_or(0.0);
+    }
+    Ok(RunSummary {
+        t_end: t_last,
+        final_state: state,
+        outputs,
+        stats: stepper.stats(),
+        stepping_seconds: stepping.as_secs_f64(),
+    })
+}
+
+/// Number of whole model years of a run (the records of `time.output = "annual_mean"`).
+pub fn whole_years(years: f64) -> u64 {
+    (years * (1.0 + 1e-12)).floor() as u64
+}
+
+/// `time.output = "annual_mean"`: one record per whole model year `[k, k + 1]`, the time mean
+/// of the dense trajectory (every step's interpolant integrated by [`quadrature`]); a last
+/// partial year is neither integrated nor written. Records resume at the year after the
+/// `done` ones: the integral of a year starts afresh at each record, so a checkpoint at a
+/// record needs no accumulator (the part of the step in progress is recomputed from the
+/// stepper's saved dense output).
+fn run_means(
+    time: &TimeSpec,
+    mut stepper: Stepper<'_>,
+    done: u64,
+    last: &[f64],
+    observer: &mut dyn Observer,
+    progress: &mut dyn FnMut(f64),
+    hooks: &mut dyn Boundary,
+) -> Result<RunSummary, RunError> {
+    let mut state = last.to_vec();
+    let mut scratch = vec![0.0; last.len()];
+    let mut outputs = done;
+    let mut t_last = done as f64;
+    let mut stepping = std::time::Duration::ZERO;
+    for k in done..whole_years(time.years) {
+        let (a, b) = (k as f64, (k + 1) as f64);
+        let start = std::time::Instant::now();
+        stepper.integrate_over(a, b, &mut scratch, &mut state, observer)?;
+        stepping += start.elapsed();
+        observer.record_mean(a, b, &state).map_err(RunError::Output)?;
+        outputs += 1;
+        t_last = b;
+        progress(b);
+        if hooks.at(b, outputs, &stepper)? == Flow::Stop {
+            break;
+        }
     }
     Ok(RunSummary {
         t_end: t_last,

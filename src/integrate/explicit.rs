@@ -75,6 +75,19 @@ pub struct Explicit<'m> {
     stiffness_check: bool,
     max_steps: u64,
     stats: Stats,
+    /// Keep every accepted step's time and state (for time means), in `kept_t`, `kept_y`.
+    keep_steps: bool,
+    kept_t: Vec<f64>,
+    kept_y: Vec<f64>,
+}
+
+/// Why [`Explicit::advance_to_with_steps`] stopped.
+#[derive(Debug)]
+pub enum StepsError {
+    /// The scheme failed.
+    Solver(SolverError),
+    /// The per-step callback failed.
+    Observer(super::driver::ObserverError),
 }
 
 impl<'m> Explicit<'m> {
@@ -99,23 +112,86 @@ impl<'m> Explicit<'m> {
             stiffness_check,
             max_steps,
             stats: Stats::default(),
+            keep_steps: false,
+            kept_t: Vec::new(),
+            kept_y: Vec::new(),
         }
     }
 
-    /// Integrate to `t_end` in calls of at most [`steps_per_call`] steps each.
+    /// [`Integrator::advance_to`], calling `per_step(t0, y0, f0, t1, y1, f1)` for every accepted
+    /// step from `t0` to `t1` (years) with the states (K) and their rates (K per year) at both
+    /// ends (the data of the step's cubic Hermite interpolant). The rates cost one evaluation
+    /// per step, counted in the statistics.
+    #[allow(clippy::type_complexity)]
+    pub fn advance_to_with_steps(
+        &mut self,
+        t_target: f64,
+        out: &mut [f64],
+        per_step: &mut dyn FnMut(
+            f64,
+            &[f64],
+            &[f64],
+            f64,
+            &[f64],
+            &[f64],
+        ) -> Result<(), super::driver::ObserverError>,
+    ) -> Result<(), StepsError> {
+        let n = self.model.len();
+        self.kept_t.clear();
+        self.kept_y.clear();
+        self.kept_t.push(self.t);
+        self.kept_y.extend_from_slice(self.y.as_slice());
+        self.keep_steps = true;
+        let result = if t_target > self.t {
+            self.chunk(t_target)
+        } else {
+            Ok(())
+        };
+        self.keep_steps = false;
+        result.map_err(StepsError::Solver)?;
+        let mut ws = Workspace::new(n);
+        let (mut f0, mut f1) = (vec![0.0; n], vec![0.0; n]);
+        let (ts, ys) = (std::mem::take(&mut self.kept_t), std::mem::take(&mut self.kept_y));
+        for (i, w) in ts.windows(2).enumerate() {
+            let (y0, y1) = (&ys[i * n..(i + 1) * n], &ys[(i + 1) * n..(i + 2) * n]);
+            if i == 0 {
+                self.model.tendency(w[0], y0, &mut ws, &mut f0);
+                self.stats.rhs_evals += 1;
+            }
+            self.model.tendency(w[1], y1, &mut ws, &mut f1);
+            self.stats.rhs_evals += 1;
+            if w[1] > w[0] {
+                per_step(w[0], y0, &f0, w[1], y1, &f1).map_err(StepsError::Observer)?;
+            }
+            std::mem::swap(&mut f0, &mut f1);
+        }
+        (self.kept_t, self.kept_y) = (ts, ys);
+        out.copy_from_slice(self.y.as_slice());
+        Ok(())
+    }
+
+    /// Integrate to `t_end` in calls of at most [`steps_per_call`] steps each, split at every
+    /// forcing breakpoint (each call ends on one, so no step crosses a jump or kink of the
+    /// forcing), each call's longest step also limited by the forcing's time scale over it.
     fn chunk(&mut self, t_end: f64) -> Result<(), SolverError> {
         let n = self.model.len();
         let per_call = steps_per_call(n);
         while self.t < t_end {
-            let left = self.max_steps.saturating_sub(self.stats.steps);
-            if left == 0 {
-                return Err(SolverError::TooManySteps {
-                    t: self.t,
-                    limit: self.max_steps,
-                });
-            }
-            if self.call(t_end, left.min(per_call))? {
-                self.t = t_end;
+            let seg_end = match self.model.next_breakpoint(self.t) {
+                Some(b) if b < t_end => b,
+                _ => t_end,
+            };
+            while self.t < seg_end {
+                let left = self.max_steps.saturating_sub(self.stats.steps);
+                if left == 0 {
+                    return Err(SolverError::TooManySteps {
+                        t: self.t,
+                        limit: self.max_steps,
+                    });
+                }
+                if self.call(seg_end, left.min(per_call))? {
+                    self.t = seg_end;
+                }
             }
         }
         check_state(self.model, self.t, self.y.as_slice())
@@ -138,10 +214,13 @@ impl<'m> Explicit<'m> {
         };
         let n_stiff = if self.stiffness_check { 1000 } else { u32::MAX };
         let span = t_end - self.t;
-        let h_max = self.max_step.min(span);
+        let h_max = self
+            .max_step
+            .min(span)
+            .min(self.model.forcing_time_scale(self.t, t_end));
         // rtol 0 and atol = tolerance: an absolute error control in K, as for the implicit scheme.
         macro_rules! go {
-            ($solver:ident) => {{
+            ($solver:ident, $keep:ident, $kept:ident) => {{
                 let mut s = $solver::from_param(
                     rhs,
                     self.t,
@@ -164,12 +243,20 @@ impl<'m> Explicit<'m> {
                 // Sparse output holds the start and then every accepted step.
                 let accepted = s.y_out().len().saturating_sub(1) as u64;
                 let y = s.y_out().last().cloned();
+                if $keep {
+                    for (x, y) in s.x_out().iter().zip(s.y_out()).skip(1) {
+                        $kept.0.push(*x);
+                        $kept.1.extend_from_slice(y.as_slice());
+                    }
+                }
                 (res, y, accepted)
             }};
         }
+        let keep = self.keep_steps;
+        let kept = (&mut self.kept_t, &mut self.kept_y);
         let (res, y, accepted) = match self.scheme {
-            Scheme::Dopri5 => go!(Dopri5),
-            Scheme::Dop853 => go!(Dop853),
+            Scheme::Dopri5 => go!(Dopri5, keep, kept),
+            Scheme::Dop853 => go!(Dop853, keep, kept),
         };
         let last = last.into_inner();
         self.stats.rhs_evals += last.evals;

@@ -182,22 +182,31 @@ impl<'m> Ros2<'m> {
             model.heating_jacobian(self.t, &self.y, &mut self.ws, &mut self.jac);
             self.jac_fresh = true;
         }
+        // Every step lands on the next forcing breakpoint (or the end) and stays within the
+        // forcing's own time scale, so no jump or kink of the forcing is stepped over.
+        let bound = match model.next_breakpoint(self.t) {
+            Some(b) if b < self.t_end => b,
+            _ => self.t_end,
+        };
+        let scale = model.forcing_time_scale(self.t, self.t);
         loop {
-            let remaining = self.t_end - self.t;
-            let (h, last) = match self.policy {
+            let remaining = bound - self.t;
+            // `last`: the step ends exactly on `bound`; `grid`: a fixed step reaches its grid.
+            let (h, last, grid) = match self.policy {
                 StepPolicy::Fixed(hf) => {
                     let next = self.t0 + (self.n_fixed + 1) as f64 * hf;
-                    if next >= self.t_end - 1e-9 * hf {
-                        (remaining, true)
+                    if next >= bound - 1e-9 * hf {
+                        (remaining, true, next <= bound + 1e-9 * hf)
                     } else {
-                        (next - self.t, false)
+                        (next - self.t, false, true)
                     }
                 }
                 StepPolicy::Adaptive { .. } => {
-                    if self.h >= remaining * (1.0 - 1e-12) {
-                        (remaining, true)
+                    let h = self.h.min(scale);
+                    if h >= remaining * (1.0 - 1e-12) {
+                        (remaining, true, false)
                     } else {
-                        (self.h, false)
+                        (h, false, false)
                     }
                 }
             };
@@ -285,7 +294,7 @@ impl<'m> Ros2<'m> {
                 for (((y, yp), k1), k2) in self.y.iter_mut().zip(&self.y_prev).zip(&self.k1).zip(&self.k2) {
                     *y = yp + h * (1.5 * k1 + 0.5 * k2);
                 }
-                self.t = if last { self.t_end } else { self.t + h };
+                self.t = if last { bound } else { self.t + h };
                 super::check_state_inline(model, self.t, &self.y)?;
                 // FSAL: the new state's heating starts the next step, and its Jacobian with it.
                 model.heating_with_jacobian_inline(self.t, &self.y, &mut self.ws, &mut self.f, &mut self.jac);
@@ -296,7 +305,7 @@ impl<'m> Ros2<'m> {
                 }
                 self.stats.steps += 1;
                 match self.policy {
-                    StepPolicy::Fixed(_) => self.n_fixed += 1,
+                    StepPolicy::Fixed(_) => self.n_fixed += u64::from(grid),
                     StepPolicy::Adaptive { max_step, .. } => {
                         let fac = if err > 0.0 {
                             (0.9 / err.sqrt()).clamp(0.2, 5.0)
@@ -364,6 +373,16 @@ impl<'m> Ros2<'m> {
             return (0, n);
         }
         (lo, hi)
+    }
+
+    /// Start of the last accepted step (years; the current time before the first step).
+    pub fn previous_time(&self) -> f64 {
+        self.t_prev
+    }
+
+    /// The dense output: the state (K) at `t` within the last accepted step into `out`.
+    pub fn dense(&self, t: f64, out: &mut [f64]) {
+        self.interpolate(t, out)
     }
 
     /// Cubic Hermite interpolation of the state at `t` within the last step into `out`.

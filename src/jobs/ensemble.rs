@@ -14,11 +14,10 @@ use crate::config::{ConfigError, Loaded};
 use crate::ensemble::{sample, shard_range};
 use crate::equilibrium::NewtonOptions;
 use crate::error::Error;
-use crate::integrate::driver::{self, Observer, RunError};
+use crate::integrate::driver::{self, Observer, ObserverError, RunError};
 use crate::interrupt::StopFlag;
 use crate::model::{Model, Workspace};
 use crate::output::ensemble_file::{self, EnsembleData, SensitivityColumns};
-use crate::output::run_file::YearMean;
 use crate::output::Attr;
 use rayon::prelude::*;
 use std::path::Path;
@@ -54,8 +53,8 @@ struct Collector<'m> {
     rec: Vec<f64>,
     width: usize,
     fields: bool,
-    annual: Option<YearMean>,
-    mean: Vec<f64>,
+    /// Time integral of each record value since the last annual mean (annual means only).
+    mean_sum: Vec<f64>,
     out: Vec<f64>,
     ols: crate::ensemble::stats::Ols,
 }
@@ -67,8 +66,9 @@ impl Collector<'_> {
     }
 }
 
-impl Observer for Collector<'_> {
-    fn record(&mut self, t: f64, temps: &[f64]) -> Result<(), Box<dyn std::error::Error + Send + Sync>> {
+impl Collector<'_> {
+    /// The record values at the state `temps` (K) at time `t` (years) into `self.rec`.
+    fn fill(&mut self, t: f64, temps: &[f64]) {
         let m = self.model;
         // The global mean of the net heating is the top-of-atmosphere imbalance (absorbed -
         // outgoing + transport convergence + additive forcing), without allocating a budget.
@@ -85,24 +85,36 @@ impl Observer for Collector<'_> {
         if self.fields {
             self.rec.extend_from_slice(temps);
         }
-        match self.annual.as_mut() {
-            None => {
-                let rec = std::mem::take(&mut self.rec);
-                self.push(&rec);
-                self.rec = rec;
-            }
-            Some(acc) => {
-                if acc.sum.len() != self.rec.len() {
-                    acc.sum = vec![0.0; self.rec.len()];
-                }
-                let mut mean = std::mem::take(&mut self.mean);
-                if acc.add(t, &self.rec, &mut mean).is_some() {
-                    self.push(&mean);
-                }
-                self.mean = mean;
-            }
-        }
+    }
+}
+
+impl Observer for Collector<'_> {
+    fn record(&mut self, t: f64, temps: &[f64]) -> Result<(), ObserverError> {
+        self.fill(t, temps);
+        let rec = std::mem::take(&mut self.rec);
+        self.push(&rec);
+        self.rec = rec;
         debug_assert!(self.out.len() % self.width == 0);
+        Ok(())
+    }
+
+    fn accumulate(&mut self, t: f64, weight: f64, temps: &[f64]) -> Result<(), ObserverError> {
+        self.fill(t, temps);
+        self.mean_sum.resize(self.rec.len(), 0.0);
+        for (s, v) in self.mean_sum.iter_mut().zip(&self.rec) {
+            *s += weight * v;
+        }
+        Ok(())
+    }
+
+    fn record_mean(&mut self, a: f64, b: f64, _end: &[f64]) -> Result<(), ObserverError> {
+        self.mean_sum.resize(self.width, 0.0);
+        let mut rec = std::mem::take(&mut self.rec);
+        rec.clear();
+        rec.extend(self.mean_sum.iter().map(|s| s / (b - a)));
+        self.mean_sum.iter_mut().for_each(|s| *s = 0.0);
+        self.push(&rec);
+        self.rec = rec;
         Ok(())
     }
 }
@@ -112,7 +124,7 @@ fn time_axis(cfg: &Loaded) -> Result<Vec<f64>, Error> {
     let t = &cfg.spec.time;
     match t.output {
         OutputMode::Instant => Ok(driver::output_times(t.years, t.output_every).collect()),
-        OutputMode::AnnualMean { .. } => Ok((0..(t.years * (1.0 + 1e-12)).floor() as u64)
+        OutputMode::AnnualMean => Ok((0..driver::whole_years(t.years))
             .map(|y| y as f64 + 0.5)
             .collect()),
         OutputMode::EveryStep => Err(Error::Config(ConfigError::Range {
@@ -130,10 +142,6 @@ fn run_member(cfg: &Loaded, spec: &EnsembleSpec, times: usize) -> MemberResult {
     let y0 = model.initial_state(&cfg.spec.initial);
     let globe = model.grid.domain == crate::grid::Domain::Globe;
     let width = 3 + usize::from(globe) + if spec.fields { model.len() } else { 0 };
-    let annual = match cfg.spec.time.output {
-        OutputMode::AnnualMean { samples_per_year } => Some(YearMean::new(samples_per_year)),
-        _ => None,
-    };
     let mut c = Collector {
         model: &model,
         ws: Workspace::new(model.len()),
@@ -141,8 +149,7 @@ fn run_member(cfg: &Loaded, spec: &EnsembleSpec, times: usize) -> MemberResult {
         rec: Vec::with_capacity(width),
         width,
         fields: spec.fields,
-        annual,
-        mean: Vec::new(),
+        mean_sum: Vec::with_capacity(width),
         out: Vec::with_capacity(width * times),
         ols: Default::default(),
     };
@@ -365,7 +372,7 @@ fn run_ensemble_ck(
         distributions: spec.parameters.iter().map(|(_, d)| d.describe()).collect(),
         samples: mine.iter().flatten().copied().collect(),
         time: times,
-        annual_means: matches!(cfg.spec.time.output, OutputMode::AnnualMean { .. }),
+        annual_means: matches!(cfg.spec.time.output, OutputMode::AnnualMean),
         lat: model0.grid.lat_centres_deg(),
         lat_bnds: {
             let f = model0.grid.lat_faces_deg();

@@ -5,6 +5,7 @@ use crate::checkpoint::{self, Restart, RestartError};
 use crate::cli::progress;
 use crate::config::Loaded;
 use crate::error::Error;
+use crate::integrate::driver::ObserverError;
 use crate::integrate::driver::{self, Boundary, Flow, RunError, RunSummary, Stepper};
 use crate::integrate::Observer;
 use crate::interrupt::StopFlag;
@@ -88,11 +89,13 @@ pub fn remove_restart(path: &Path) {
     let _ = std::fs::remove_file(checkpoint::restart_path(path));
 }
 
-/// Records seen so far (times and states), for checkpoints.
+/// Records seen so far (times and states; with annual means also each record's values), for
+/// checkpoints.
 #[derive(Default)]
 struct History {
     t: Vec<f64>,
     y: Vec<f64>,
+    means: Vec<f64>,
 }
 
 /// Forwards records to the file and keeps them for checkpoints.
@@ -102,13 +105,28 @@ struct Recording<'a, 'm> {
 }
 
 impl Observer for Recording<'_, '_> {
-    fn record(&mut self, t: f64, temps: &[f64]) -> Result<(), Box<dyn std::error::Error + Send + Sync>> {
+    fn record(&mut self, t: f64, temps: &[f64]) -> Result<(), ObserverError> {
         if let Some(h) = self.history {
             let mut h = h.borrow_mut();
             h.t.push(t);
             h.y.extend_from_slice(temps);
         }
         self.inner.record(t, temps)
+    }
+
+    fn accumulate(&mut self, t: f64, weight: f64, temps: &[f64]) -> Result<(), ObserverError> {
+        self.inner.accumulate(t, weight, temps)
+    }
+
+    fn record_mean(&mut self, a: f64, b: f64, end: &[f64]) -> Result<(), ObserverError> {
+        self.inner.record_mean(a, b, end)?;
+        if let Some(h) = self.history {
+            let mut h = h.borrow_mut();
+            h.t.push(b);
+            h.y.extend_from_slice(end);
+            h.means.extend_from_slice(self.inner.last_values());
+        }
+        Ok(())
     }
 }
 
@@ -130,6 +148,9 @@ impl RunHooks<'_> {
         r.put_u64("records", &[records]);
         r.put_f64("record.t", &h.t);
         r.put_f64("record.y", &h.y);
+        if !h.means.is_empty() {
+            r.put_f64("record.means", &h.means);
+        }
         stepper.save(&mut r);
         r.save(&self.restart).map_err(|e| RunError::Output(Box::new(e)))?;
         self.saved_at = Some(t);
@@ -189,8 +210,9 @@ pub fn run_job(
     let y0 = model.initial_state(&cfg.spec.initial);
     let mut writer = RunWriter::create(path, &model, &provenance(cfg, command_line))?;
     let time = &cfg.spec.time;
-    if let crate::config::spec::OutputMode::AnnualMean { samples_per_year } = time.output {
-        writer.annual_means(samples_per_year)?;
+    let means = time.output == crate::config::spec::OutputMode::AnnualMean;
+    if means {
+        writer.annual_means()?;
     }
     let history = RefCell::new(History::default());
     let keep = ck.every.is_some();
@@ -213,8 +235,28 @@ pub fn run_job(
             inner: &mut writer,
             history: keep.then_some(&history),
         };
-        for (t, y) in ts.iter().zip(ys.chunks_exact(n)) {
-            rec.record(*t, y).map_err(|e| Error::from(RunError::Output(e)))?;
+        if means {
+            // Mean records cannot be recomputed from states: their values were saved.
+            let values = r.f64s("record.means").map_err(restart_error)?;
+            let width = values.len() / ts.len();
+            if width * ts.len() != values.len() {
+                return Err(restart_error(
+                    r.bad("record.means does not match the record count"),
+                ));
+            }
+            for ((t, y), v) in ts.iter().zip(ys.chunks_exact(n)).zip(values.chunks_exact(width)) {
+                rec.inner.replay_mean(t - 1.0, *t, v, y)?;
+                if let Some(h) = rec.history {
+                    let mut h = h.borrow_mut();
+                    h.t.push(*t);
+                    h.y.extend_from_slice(y);
+                    h.means.extend_from_slice(v);
+                }
+            }
+        } else {
+            for (t, y) in ts.iter().zip(ys.chunks_exact(n)) {
+                rec.record(*t, y).map_err(|e| Error::from(RunError::Output(e)))?;
+            }
         }
         last = ys[ys.len() - n..].to_vec();
     }

@@ -6,8 +6,9 @@ use super::OutputError;
 use super::{Attr, NcWriter};
 use crate::ensemble::stats::Ols;
 use crate::grid::Domain;
+use crate::integrate::driver::ObserverError;
 use crate::integrate::Observer;
-use crate::model::{Model, Workspace};
+use crate::model::{Budget, Model, Workspace};
 use std::path::Path;
 
 /// Streams a run to a netCDF-4/HDF5 file.
@@ -23,63 +24,13 @@ pub struct RunWriter<'m> {
     params: Vec<String>,
     /// One record's values in write order (per-band fields, series, edges, parameters).
     rec: Vec<f64>,
-    /// Annual-mean accumulator (`time.output = "annual_mean"`).
-    annual: Option<YearMean>,
+    /// Time integral of every record value since the last mean record (`time.output =
+    /// "annual_mean"`: [`Observer::accumulate`]), empty otherwise.
+    mean_sum: Vec<f64>,
+    /// Scratch budget (sized to the bands).
+    budget: Budget,
     /// Regression of the written `toa_imbalance` on `global_mean_temperature`.
     regression: Ols,
-}
-
-/// Trapezoid-rule means over whole model years of samples taken `per_year` times a year; the
-/// sample at a year boundary counts half for each of the two years.
-pub(crate) struct YearMean {
-    per_year: usize,
-    year: i64,
-    /// Sum of weighted samples (sized by the caller to the record length).
-    pub(crate) sum: Vec<f64>,
-    /// Weight collected, in half samples.
-    halves: usize,
-}
-
-impl YearMean {
-    /// An accumulator for `per_year` samples a year, starting at time 0.
-    pub(crate) fn new(per_year: usize) -> YearMean {
-        YearMean {
-            per_year,
-            year: -1,
-            sum: Vec::new(),
-            halves: 0,
-        }
-    }
-
-    /// Add a sample at `t`; when this sample closes a whole year, writes that year's mean into
-    /// `out` and returns the year's index.
-    pub(crate) fn add(&mut self, t: f64, rec: &[f64], out: &mut Vec<f64>) -> Option<i64> {
-        let j = (t * self.per_year as f64).round() as i64;
-        let (y, pos) = (
-            j.div_euclid(self.per_year as i64),
-            j.rem_euclid(self.per_year as i64),
-        );
-        let mut done = None;
-        if pos == 0 {
-            if y == self.year + 1 && self.halves + 1 == 2 * self.per_year {
-                out.clear();
-                out.extend(
-                    self.sum
-                        .iter()
-                        .zip(rec)
-                        .map(|(s, r)| (s + 0.5 * r) / self.per_year as f64),
-                );
-                done = Some(self.year);
-            }
-            self.year = y;
-            self.sum.iter_mut().zip(rec).for_each(|(s, r)| *s = 0.5 * r);
-            self.halves = 1;
-        } else if y == self.year {
-            self.sum.iter_mut().zip(rec).for_each(|(s, r)| *s += r);
-            self.halves += 2;
-        }
-        done
-    }
 }
 
 const PER_BAND: [(&str, &str, &str, Option<&str>); 4] = [
@@ -210,15 +161,22 @@ impl<'m> RunWriter<'m> {
             records: 0,
             params,
             rec: Vec::new(),
-            annual: None,
+            mean_sum: Vec::new(),
+            budget: Budget {
+                absorbed: vec![0.0; model.len()],
+                olr: vec![0.0; model.len()],
+                transport: vec![0.0; model.len()],
+                extra: 0.0,
+            },
             regression: Ols::default(),
         })
     }
 
-    /// Write annual means of samples taken `samples_per_year` times a year instead of the
-    /// samples (call before the first record): records at mid-year with `time_bnds`, every
-    /// variable marked `cell_methods = "time: mean"`; a last partial year is not written.
-    pub fn annual_means(&mut self, samples_per_year: usize) -> Result<(), OutputError> {
+    /// Write annual means instead of instants (call before the first record): records at
+    /// mid-year with `time_bnds`, every variable marked `cell_methods = "time: mean"`, each the
+    /// time integral over the year of the value along the dense trajectory divided by the year
+    /// (fed by [`Observer::accumulate`] and written by [`Observer::record_mean`]).
+    pub fn annual_means(&mut self) -> Result<(), OutputError> {
         let w = self.writer();
         w.set_var_attr_str("time", "bounds", "time_bnds")?;
         w.add_variable_f64(
@@ -239,10 +197,34 @@ impl<'m> RunWriter<'m> {
         }
         self.writer().set_attr_str(
             "time_averaging",
-            &format!("annual means, trapezoid rule over {samples_per_year} samples a year"),
+            "annual means: the time integral over each model year of every value along the dense trajectory (3-point Gauss-Legendre quadrature of each time step's interpolant), divided by the year; ice edges are means of the instantaneous edge",
         )?;
-        self.annual = Some(YearMean::new(samples_per_year));
+        self.mean_sum = vec![0.0; self.record_len()];
         Ok(())
+    }
+
+    /// Values in one record.
+    fn record_len(&self) -> usize {
+        let globe = self.model.grid.domain == Domain::Globe;
+        PER_BAND.len() * self.model.len() + SERIES.len() + 1 + usize::from(globe) + self.params.len()
+    }
+
+    /// The mean record last written (the values in write order), for checkpoints.
+    pub fn last_values(&self) -> &[f64] {
+        &self.rec
+    }
+
+    /// Write again a mean record over `[a, b]` with the values `values` (from
+    /// [`RunWriter::last_values`], when resuming), `end` the state at `b`.
+    pub fn replay_mean(&mut self, a: f64, b: f64, values: &[f64], end: &[f64]) -> Result<(), OutputError> {
+        self.rec.clear();
+        self.rec.extend_from_slice(values);
+        let rec = std::mem::take(&mut self.rec);
+        let r = self.emit(0.5 * (a + b), Some((a, b)), &rec);
+        self.rec = rec;
+        self.row.copy_from_slice(end);
+        self.last_time = b;
+        r
     }
 
     /// The least-squares fit data of `toa_imbalance` on `global_mean_temperature` over the
@@ -283,13 +265,16 @@ impl<'m> RunWriter<'m> {
         w.finish()
     }
 
-    fn write_record(&mut self, t: f64, temps: &[f64]) -> Result<(), OutputError> {
+    /// Every record value at the state `temps` (K) at time `t` (years) into `self.rec`, in
+    /// write order (per-band fields, series, edges, parameters).
+    fn fill(&mut self, t: f64, temps: &[f64]) {
         let model = self.model;
-        let b = model.budget(t, temps, &mut self.ws);
+        model.budget_into(t, temps, &mut self.ws, &mut self.budget);
+        let b = &self.budget;
         let d = model.drivers_at(t);
         let g = &model.grid;
         let (north, south) = model.ice_edges(temps);
-        let mut rec = std::mem::take(&mut self.rec);
+        let rec = &mut self.rec;
         rec.clear();
         for part in [temps, &b.absorbed, &b.olr, &b.transport] {
             rec.extend_from_slice(part);
@@ -314,21 +299,14 @@ impl<'m> RunWriter<'m> {
             rec.resize(start + self.params.len(), 0.0);
             f.parameter_values(t, &mut rec[start..]);
         }
+    }
+
+    fn write_record(&mut self, t: f64, temps: &[f64]) -> Result<(), OutputError> {
+        self.fill(t, temps);
         self.row.copy_from_slice(temps);
         self.last_time = t;
-        let result = match self.annual.as_mut() {
-            None => self.emit(t, None, &rec),
-            Some(acc) => {
-                if acc.sum.len() != rec.len() {
-                    acc.sum = vec![0.0; rec.len()];
-                }
-                let mut mean = Vec::new();
-                match acc.add(t, &rec, &mut mean) {
-                    Some(year) => self.emit(year as f64 + 0.5, Some((year as f64, year as f64 + 1.0)), &mean),
-                    None => Ok(()),
-                }
-            }
-        };
+        let rec = std::mem::take(&mut self.rec);
+        let result = self.emit(t, None, &rec);
         self.rec = rec;
         result
     }
@@ -376,8 +354,35 @@ impl<'m> RunWriter<'m> {
 }
 
 impl Observer for RunWriter<'_> {
-    fn record(&mut self, t: f64, temps: &[f64]) -> Result<(), Box<dyn std::error::Error + Send + Sync>> {
+    fn record(&mut self, t: f64, temps: &[f64]) -> Result<(), ObserverError> {
         self.write_record(t, temps).map_err(|e| Box::new(e) as _)
+    }
+
+    fn accumulate(&mut self, t: f64, weight: f64, temps: &[f64]) -> Result<(), ObserverError> {
+        if self.mean_sum.is_empty() {
+            return Err("time means were not set up (RunWriter::annual_means)".into());
+        }
+        self.fill(t, temps);
+        for (s, v) in self.mean_sum.iter_mut().zip(&self.rec) {
+            *s += weight * v;
+        }
+        Ok(())
+    }
+
+    fn record_mean(&mut self, a: f64, b: f64, end: &[f64]) -> Result<(), ObserverError> {
+        if self.mean_sum.is_empty() {
+            return Err("time means were not set up (RunWriter::annual_means)".into());
+        }
+        let span = b - a;
+        self.rec.clear();
+        self.rec.extend(self.mean_sum.iter().map(|s| s / span));
+        self.mean_sum.iter_mut().for_each(|s| *s = 0.0);
+        let rec = std::mem::take(&mut self.rec);
+        let r = self.emit(0.5 * (a + b), Some((a, b)), &rec);
+        self.rec = rec;
+        self.row.copy_from_slice(end);
+        self.last_time = b;
+        r.map_err(|e| Box::new(e) as _)
     }
 }
 
