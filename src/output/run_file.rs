@@ -288,7 +288,7 @@ impl<'m> RunWriter<'m> {
         let b = model.budget(t, temps, &mut self.ws);
         let d = model.drivers_at(t);
         let g = &model.grid;
-        let (north, south) = model.ice_edges(temps);
+        let (north, south) = model.ice_edges_at(t, temps);
         let mut rec = std::mem::take(&mut self.rec);
         rec.clear();
         for part in [temps, &b.absorbed, &b.olr, &b.transport] {
