@@ -699,6 +699,66 @@ mod tests {
     }
 
     #[test]
+    fn relaxation_leading_eigenvalue_matches_a_dense_solve() {
+        // Reference: nalgebra's general (Schur) eigen-solver on the dense Jacobian. Relaxation
+        // transport with the step albedo's edge-balance rule (diagonal plus rank one, the edge
+        // bands nearly neutral) at states with the edge inside a band, and with the smooth
+        // albedo; the secular root must agree to round-off of the matrix norm (~5 / year).
+        for (kind, edge) in [("step", 0.3), ("step", 0.7), ("smooth", 0.5)] {
+            let text = format!(
+                "[grid]\nbands = 40\n[insolation]\nsolar_constant = 1370\ns2 = -0.482\n\
+                 [albedo]\nkind = \"{kind}\"\nwidth_k = 4.0\nice_free = 0.32\nice = 0.62\n\
+                 freeze_temperature_c = -10\n[longwave]\na = 202\nb = 1.9\n\
+                 [transport]\nkind = \"relaxation\"\nrelaxation_rate = 3.04\n\
+                 [heat_capacity]\nvalue = 4.0e8\n"
+            );
+            let cfg = crate::config::load_str(&text, "t", std::path::Path::new("."), &[]).unwrap();
+            let model = Model::from_spec(&cfg.spec.model);
+            let g = &model.grid;
+            // The edge band at T_f + 5 K (inside its ramp), warm and cold sides 15 K away.
+            let k = (edge * 40.0) as usize;
+            let t: Vec<f64> = (0..40)
+                .map(|i| match i.cmp(&k) {
+                    std::cmp::Ordering::Less => 290.0 - 20.0 * g.x_centres[i],
+                    std::cmp::Ordering::Equal => 268.15,
+                    std::cmp::Ordering::Greater => 248.0 - 10.0 * g.x_centres[i],
+                })
+                .collect();
+            let (lead, method) = leading_eigenvalue(&model, 0.0, &t);
+            assert_eq!(method, SpectrumMethod::SecularRankOne);
+            let mut ws = Workspace::new(40);
+            let mut jac = Tridiag::zeros(40);
+            model.heating_jacobian(0.0, &t, &mut ws, &mut jac);
+            // The Jacobian is diagonal plus `gamma 1 w^T` with one heat capacity: similar (by
+            // W^1/2) to the symmetric `D + gamma sqrt(w) sqrt(w)^T`, whose dense symmetric
+            // solve is robust (the general Schur iteration cycles on the many equal diagonal
+            // entries, nalgebra issues 611 and 764).
+            assert!(jac.lower.iter().chain(&jac.upper).all(|v| *v == 0.0));
+            let gamma = jac.rank_one.unwrap();
+            let c = YEAR_SECONDS / 4.0e8;
+            let w = &g.weights;
+            let m = DMatrix::from_fn(40, 40, |r, q| {
+                c * ((if r == q { jac.diag[r] } else { 0.0 }) + gamma * (w[r] * w[q]).sqrt())
+            });
+            let want = m
+                .symmetric_eigenvalues()
+                .iter()
+                .copied()
+                .fold(f64::NEG_INFINITY, f64::max);
+            assert!(
+                (lead - want).abs() < 1e-12 * 5.0 + 1e-12 * want.abs(),
+                "{kind} {edge}: {lead} vs {want}"
+            );
+            let sp = spectrum(&model, 0.0, &t);
+            assert!(
+                (sp.real[0] - want).abs() < 1e-11,
+                "{kind}: {} vs {want}",
+                sp.real[0]
+            );
+        }
+    }
+
+    #[test]
     fn edge_coupled_leading_matches_a_dense_solve() {
         // Reference: nalgebra's general (Schur) eigen-solver. A diffusion-like tridiagonal whose
         // last coupling has a negative product and whose last band is strongly unstable (as at
