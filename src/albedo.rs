@@ -2,9 +2,10 @@
 //!
 //! Three forms (DESIGN section 2), one enum variant each:
 //! - `Step`: ice where the surface is colder than `T_freeze`; the band holding the ice edge gets
-//!   the area-weighted mix of ice and ice-free albedo, with the edge found by interpolating T
-//!   linearly between band centres. Absorbed sunlight is then continuous in T and equilibria
-//!   converge at second order in band width.
+//!   the area-weighted mix of ice and ice-free albedo, with the edge placed by an [`EdgeRule`]:
+//!   by interpolating T linearly between band centres (diffusive transport), or by the edge
+//!   balance (relaxation transport, where T jumps at the edge). Absorbed sunlight is then
+//!   continuous in T and equilibria converge at second order in band width.
 //! - `Smooth`: `ice + (ice_free(x) - ice) (1 + tanh((T - T_freeze)/width)) / 2`.
 //! - `Ramp`: ice albedo below `T_freeze - width/2`, ice-free above `T_freeze + width/2`, linear between.
 //!
@@ -355,7 +356,9 @@ impl Albedo {
         (af + f * d, [d * df[0], d * df[1], d * df[2]])
     }
 
-    /// Albedo of band `i` and its derivatives by `T_{i-1}`, `T_i`, `T_{i+1}` (per K).
+    /// Albedo of band `i` and its derivatives by `T_{i-1}`, `T_i`, `T_{i+1}` (per K), the `step`
+    /// form by the interpolated edge rule (the model applies the edge-balance rule, which also
+    /// needs the insolation and OLR, through [`Albedo::balance_band`]).
     #[inline(always)]
     pub fn band(&self, temps: &[f64], i: usize) -> (f64, [f64; 3]) {
         let af = self.ice_free[i];
@@ -415,7 +418,7 @@ impl Albedo {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::grid::{Domain, Spacing};
+    use crate::grid::{p2, Domain, Spacing};
     use approx::assert_relative_eq;
 
     fn profile(grid: &Grid, warm: f64, drop: f64) -> Vec<f64> {
@@ -435,6 +438,45 @@ mod tests {
         let xs = g.x_centres[k] + (263.0 - t[k]) / (t[k + 1] - t[k]) * (g.x_centres[k + 1] - g.x_centres[k]);
         assert_relative_eq!(fr, 1.0 - xs, epsilon = 1e-13);
         assert_relative_eq!(alb.ice_measure_in(&g, &t, 0.0, 1.0), 1.0 - xs, epsilon = 1e-13);
+    }
+
+    #[test]
+    fn balance_fraction_is_continuous_and_puts_freezing_at_the_band_centre() {
+        // From the rule's definition (docs/discrete-model.md): f(R) is continuous and
+        // non-increasing, 0 above P(0), 1 below P(1), on every band of a globe (ice toward either
+        // pole); on equal-area bands R = 0 (T = T_freeze) gives f = fc = 1/2, the edge at the
+        // band centre.
+        for spacing in [Spacing::EqualArea, Spacing::EqualAngle] {
+            let g = Grid::new(Domain::Globe, spacing, 16);
+            let sun: Vec<f64> = g
+                .x_centres
+                .iter()
+                .map(|x| 340.0 * (1.0 - 0.48 * p2(*x)))
+                .collect();
+            let af: Vec<f64> = g.x_centres.iter().map(|x| 0.3 + 0.08 * p2(*x)).collect();
+            let alb =
+                Albedo::new(&g, AlbedoForm::Step, af, 0.62, 263.15).with_edge_rule(EdgeRule::EdgeBalance);
+            for i in 0..16 {
+                let c = alb
+                    .balance_curve(&sun, 0.98, i)
+                    .expect("ice brighter than the ground");
+                assert!(c.p0 > c.pc && c.pc > c.p1, "band {i}: {c:?}");
+                assert_eq!(c.upper, g.x_centres[i] > 0.0, "ice toward the pole, band {i}");
+                if spacing == Spacing::EqualArea {
+                    assert_relative_eq!(c.fraction(0.0).0, 0.5, epsilon = 1e-12);
+                    assert_relative_eq!(c.fc, 0.5, epsilon = 1e-12);
+                }
+                let mut prev = c.fraction(c.p0 + 1.0).0;
+                assert_eq!(prev, 0.0);
+                for k in 0..=4000 {
+                    let r = c.p0 + 1.0 - (c.p0 - c.p1 + 2.0) * k as f64 / 4000.0;
+                    let (f, _) = c.fraction(r);
+                    assert!(f >= prev && f - prev < 0.01, "band {i}: jump at R = {r}");
+                    prev = f;
+                }
+                assert_eq!(prev, 1.0);
+            }
+        }
     }
 
     #[test]
