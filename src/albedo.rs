@@ -2,9 +2,10 @@
 //!
 //! Three forms (DESIGN section 2), one enum variant each:
 //! - `Step`: ice where the surface is colder than `T_freeze`; the band holding the ice edge gets
-//!   the area-weighted mix of ice and ice-free albedo, with the edge found by interpolating T
-//!   linearly between band centres. Absorbed sunlight is then continuous in T and equilibria
-//!   converge at second order in band width.
+//!   the area-weighted mix of ice and ice-free albedo, with the edge placed by an [`EdgeRule`]:
+//!   by interpolating T linearly between band centres (diffusive transport), or by the edge
+//!   balance (relaxation transport, where T jumps at the edge). Absorbed sunlight is then
+//!   continuous in T and equilibria converge at second order in band width.
 //! - `Smooth`: `ice + (ice_free(x) - ice) (1 + tanh((T - T_freeze)/width)) / 2`.
 //! - `Ramp`: ice albedo below `T_freeze - width/2`, ice-free above `T_freeze + width/2`, linear between.
 //!
@@ -29,11 +30,76 @@ pub enum AlbedoForm {
     },
 }
 
+/// Where the `step` albedo puts the ice edge inside the band that holds it (the sub-band rule).
+///
+/// The choice follows the transport (`Model::from_spec`): the temperature profile is continuous
+/// under diffusion but jumps at the ice edge under relaxation, and a rule that interpolates T
+/// across the jump does not converge (docs/discrete-model.md, "step albedo").
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum EdgeRule {
+    /// The edge where T, linear between band centres, crosses `T_freeze`: for continuous
+    /// profiles (diffusive transport), equilibria converge at second order in band width.
+    ///
+    /// Reference: common practice (linear interpolation of the freezing line between grid
+    /// points); exact discrete equations in docs/discrete-model.md.
+    Interpolated,
+    /// Edge balance, for profiles that jump at the edge (relaxation transport): band `i` holds
+    /// its edge `x_e` where `R(T_i) = S_i c_i(f) - q(x_e)`, with `R(T) = OLR(T) - OLR(T_f) +
+    /// gamma (T - T_f)`, `c_i(f)` the band's coalbedo at ice fraction `f` and `q` the absorbed
+    /// sunlight with the mean of the two coalbedos, linear between band centres. Subtracting
+    /// the band's energy balance from that of the edge point shows that at an equilibrium this
+    /// is the closed form's edge condition (T = T_f at the edge with the mean coalbedo), so the
+    /// equilibria converge to it; `f` depends on `T_i` alone and continuously (a ramp whose
+    /// width is the jump of T at the edge). See [`Albedo::balance_band`].
+    ///
+    /// Reference: Budyko (1969, Tellus 21, 611-619) for the model and the mean-coalbedo edge
+    /// convention; the discrete rule is derived in docs/discrete-model.md.
+    EdgeBalance,
+}
+
+/// The edge-balance curve of one band: `P(f) = S_i c_i(f) - q(x_e(f))` (W m-2) is piecewise
+/// linear in the ice fraction `f` through `(0, p0)`, `(fc, pc)`, `(1, p1)`, strictly
+/// decreasing; the ice lies toward the upper face (larger x) when `upper`.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct BalanceCurve {
+    /// `P` with no ice (the edge at the ice-side face), W m-2.
+    pub p0: f64,
+    /// `P` with the edge at the band centre, W m-2.
+    pub pc: f64,
+    /// `P` all ice (the edge at the warm-side face), W m-2.
+    pub p1: f64,
+    /// Ice fraction with the edge at the band centre.
+    pub fc: f64,
+    /// Whether the ice lies toward the upper face.
+    pub upper: bool,
+}
+
+impl BalanceCurve {
+    /// Ice fraction where `P(f) = r` (clamped to 0..1) and its derivative by `r` (per W m-2).
+    #[inline(always)]
+    pub fn fraction(&self, r: f64) -> (f64, f64) {
+        let BalanceCurve { p0, pc, p1, fc, .. } = *self;
+        if r >= p0 {
+            (0.0, 0.0)
+        } else if r >= pc {
+            let s = fc / (p0 - pc);
+            (s * (p0 - r), -s)
+        } else if r > p1 {
+            let s = (1.0 - fc) / (pc - p1);
+            (fc + s * (pc - r), -s)
+        } else {
+            (1.0, 0.0)
+        }
+    }
+}
+
 /// Albedo parameterisation on a grid.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Albedo {
     /// The form.
     pub form: AlbedoForm,
+    /// The `step` form's sub-band edge rule.
+    pub edge_rule: EdgeRule,
     /// Ice-free albedo by band (dimensionless).
     pub ice_free: Vec<f64>,
     /// Ice albedo (dimensionless).
@@ -45,6 +111,9 @@ pub struct Albedo {
     half_lo: Vec<(f64, f64)>,
     /// Per band: distance from centre to upper face, and to the upper neighbour's centre.
     half_hi: Vec<(f64, f64)>,
+    /// Per band: whether the nearer pole lies toward the upper face (the edge-balance rule's
+    /// side for the ice when the absorbed sunlight is level across the band).
+    pole_upper: Vec<bool>,
 }
 
 /// Sub-band geometry of a grid: the two half bands of each band.
@@ -128,11 +197,99 @@ impl Albedo {
         let (half_lo, half_hi) = half_bands(grid);
         Albedo {
             form,
+            edge_rule: EdgeRule::Interpolated,
             ice_free,
             ice,
             freeze,
             half_lo,
             half_hi,
+            pole_upper: grid.x_centres.iter().map(|x| *x >= 0.0).collect(),
+        }
+    }
+
+    /// The same with the sub-band edge rule `rule`.
+    pub fn with_edge_rule(mut self, rule: EdgeRule) -> Albedo {
+        self.edge_rule = rule;
+        self
+    }
+
+    /// The edge-balance curve `P(f)` of band `i` (see [`EdgeRule::EdgeBalance`]) for band
+    /// insolation `sun` (W m-2) times `scale` (the solar scale), or `None` when ice does not
+    /// absorb less than the ice-free surface there (no sunlight, or an ice albedo not above the
+    /// ice-free one): then the band is wholly ice below `T_freeze` and ice free above.
+    ///
+    /// `q_j = scale S_j (1 - (a_free_j + a_ice) / 2)` is taken linear between band centres (on
+    /// an outer half band, the line through the two nearest centres); the ice lies on the side
+    /// of the lower neighbour value of `q` (the nearer pole on a tie); `A = scale S_i (a_ice -
+    /// a_free_i)`; with `d_ice`, `d_warm` the values of `q - q_i` at the ice-side and warm-side
+    /// faces, `P(0) = A/2 - d_ice`, `P(fc) = A (1/2 - fc)`, `P(1) = -A/2 - d_warm`. `d_ice` is
+    /// capped at `A fc / 2` and `d_warm` floored at `-A (1 - fc) / 2` so that `P` decreases
+    /// strictly (they bind only at a sharp extremum of `q` on a coarse grid).
+    #[inline(always)]
+    pub fn balance_curve(&self, sun: &[f64], scale: f64, i: usize) -> Option<BalanceCurve> {
+        let n = sun.len();
+        let (ai, af) = (self.ice, &self.ice_free);
+        let jump = scale * sun[i] * (ai - af[i]);
+        // (Also rejects a NaN.)
+        if !(jump > 0.0) {
+            return None;
+        }
+        let q = |j: usize| scale * sun[j] * (1.0 - 0.5 * (af[j] + ai));
+        let qi = q(i);
+        let (ql, qh) = match (i > 0, i + 1 < n) {
+            (true, true) => (q(i - 1), q(i + 1)),
+            (false, true) => {
+                let h = q(1);
+                (2.0 * qi - h, h)
+            }
+            (true, false) => {
+                let l = q(i - 1);
+                (l, 2.0 * qi - l)
+            }
+            (false, false) => (qi, qi),
+        };
+        let (hl, ll) = self.half_lo[i];
+        let (hh, lh) = self.half_hi[i];
+        let d_lo = if ll > 0.0 { (ql - qi) * hl / ll } else { 0.0 };
+        let d_hi = if lh > 0.0 { (qh - qi) * hh / lh } else { 0.0 };
+        let upper = if qh == ql { self.pole_upper[i] } else { qh < ql };
+        let w = hl + hh;
+        let (d_ice, d_warm, fc) = if upper {
+            (d_hi, d_lo, hh / w)
+        } else {
+            (d_lo, d_hi, hl / w)
+        };
+        let d_ice = d_ice.min(0.5 * jump * fc);
+        let d_warm = d_warm.max(-0.5 * jump * (1.0 - fc));
+        Some(BalanceCurve {
+            p0: 0.5 * jump - d_ice,
+            pc: jump * (0.5 - fc),
+            p1: -0.5 * jump - d_warm,
+            fc,
+            upper,
+        })
+    }
+
+    /// Albedo of band `i` under the edge-balance rule and its derivative by `T_i` (per K), from
+    /// `r = R(T_i)` and `dr = R'(T_i)` (W m-2 and W m-2 K-1; see [`EdgeRule::EdgeBalance`]).
+    #[inline(always)]
+    pub fn balance_band(
+        &self,
+        sun: &[f64],
+        scale: f64,
+        temps: &[f64],
+        i: usize,
+        r: f64,
+        dr: f64,
+    ) -> (f64, f64) {
+        let af = self.ice_free[i];
+        let d = self.ice - af;
+        match self.balance_curve(sun, scale, i) {
+            Some(c) => {
+                let (f, df) = c.fraction(r);
+                (af + f * d, d * df * dr)
+            }
+            None => (if temps[i] < self.freeze { af + d } else { af }, 0.0),
         }
     }
 
@@ -199,7 +356,9 @@ impl Albedo {
         (af + f * d, [d * df[0], d * df[1], d * df[2]])
     }
 
-    /// Albedo of band `i` and its derivatives by `T_{i-1}`, `T_i`, `T_{i+1}` (per K).
+    /// Albedo of band `i` and its derivatives by `T_{i-1}`, `T_i`, `T_{i+1}` (per K), the `step`
+    /// form by the interpolated edge rule (the model applies the edge-balance rule, which also
+    /// needs the insolation and OLR, through [`Albedo::balance_band`]).
     #[inline(always)]
     pub fn band(&self, temps: &[f64], i: usize) -> (f64, [f64; 3]) {
         let af = self.ice_free[i];
@@ -259,7 +418,7 @@ impl Albedo {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::grid::{Domain, Spacing};
+    use crate::grid::{p2, Domain, Spacing};
     use approx::assert_relative_eq;
 
     fn profile(grid: &Grid, warm: f64, drop: f64) -> Vec<f64> {
@@ -279,6 +438,45 @@ mod tests {
         let xs = g.x_centres[k] + (263.0 - t[k]) / (t[k + 1] - t[k]) * (g.x_centres[k + 1] - g.x_centres[k]);
         assert_relative_eq!(fr, 1.0 - xs, epsilon = 1e-13);
         assert_relative_eq!(alb.ice_measure_in(&g, &t, 0.0, 1.0), 1.0 - xs, epsilon = 1e-13);
+    }
+
+    #[test]
+    fn balance_fraction_is_continuous_and_puts_freezing_at_the_band_centre() {
+        // From the rule's definition (docs/discrete-model.md): f(R) is continuous and
+        // non-increasing, 0 above P(0), 1 below P(1), on every band of a globe (ice toward either
+        // pole); on equal-area bands R = 0 (T = T_freeze) gives f = fc = 1/2, the edge at the
+        // band centre.
+        for spacing in [Spacing::EqualArea, Spacing::EqualAngle] {
+            let g = Grid::new(Domain::Globe, spacing, 16);
+            let sun: Vec<f64> = g
+                .x_centres
+                .iter()
+                .map(|x| 340.0 * (1.0 - 0.48 * p2(*x)))
+                .collect();
+            let af: Vec<f64> = g.x_centres.iter().map(|x| 0.3 + 0.08 * p2(*x)).collect();
+            let alb =
+                Albedo::new(&g, AlbedoForm::Step, af, 0.62, 263.15).with_edge_rule(EdgeRule::EdgeBalance);
+            for i in 0..16 {
+                let c = alb
+                    .balance_curve(&sun, 0.98, i)
+                    .expect("ice brighter than the ground");
+                assert!(c.p0 > c.pc && c.pc > c.p1, "band {i}: {c:?}");
+                assert_eq!(c.upper, g.x_centres[i] > 0.0, "ice toward the pole, band {i}");
+                if spacing == Spacing::EqualArea {
+                    assert_relative_eq!(c.fraction(0.0).0, 0.5, epsilon = 1e-12);
+                    assert_relative_eq!(c.fc, 0.5, epsilon = 1e-12);
+                }
+                let mut prev = c.fraction(c.p0 + 1.0).0;
+                assert_eq!(prev, 0.0);
+                for k in 0..=4000 {
+                    let r = c.p0 + 1.0 - (c.p0 - c.p1 + 2.0) * k as f64 / 4000.0;
+                    let (f, _) = c.fraction(r);
+                    assert!(f >= prev && f - prev < 0.01, "band {i}: jump at R = {r}");
+                    prev = f;
+                }
+                assert_eq!(prev, 1.0);
+            }
+        }
     }
 
     #[test]

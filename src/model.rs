@@ -5,7 +5,7 @@
 //! (DESIGN section 2; docs/discrete-model.md has the exact discrete equations). This is the only
 //! module that knows every piece; it does no I/O.
 
-use crate::albedo::{Albedo, AlbedoForm};
+use crate::albedo::{Albedo, AlbedoForm, EdgeRule};
 use crate::grid::Grid;
 use crate::insolation::{self, SeasonalTable};
 use crate::linalg::Tridiag;
@@ -370,6 +370,23 @@ impl Model {
             });
             return;
         }
+        if let Some(bal) = self.balance(&d) {
+            // Step albedo with the edge-balance rule (relaxation transport): the band's
+            // albedo from its own temperature through R(T).
+            with_olr!(self, |olr_of| {
+                for i in 0..n {
+                    let ti = temps[i];
+                    let (o, dolr) = olr_of(ti);
+                    let (o, dolr) = d.olr(o, dolr, ti);
+                    let (r, dr) = bal.restoring(o, dolr, ti);
+                    let (a, _) = self.albedo.balance_band(sun, bal.scale, temps, i, r, dr);
+                    out[i] = d.solar_scale * sun[i] * (1.0 - a) - (o - d.greenhouse_wm2)
+                        + d.transport_scale * conv[i]
+                        + d.extra_wm2;
+                }
+            });
+            return;
+        }
         with_forms!(self, |alb, olr_of| {
             let mut flux_lo = 0.0;
             for i in 0..n {
@@ -437,8 +454,9 @@ impl Model {
         }
         let sun = self.sun(ws);
         let n = temps.len();
+        let bal = self.balance(&d);
         for i in 0..n {
-            let (_, da) = self.albedo.band(temps, i);
+            let (_, da) = self.albedo_band(bal.as_ref(), &d, sun, temps, i);
             let (olr, dolr) = self.longwave.eval(temps[i]);
             let (_, dolr) = d.olr(olr, dolr, temps[i]);
             let s = d.solar_scale * sun[i];
@@ -593,8 +611,9 @@ impl Model {
         jac.rank_one = None;
         let sun = self.sun(ws);
         let n = temps.len();
+        let bal = self.balance(&d);
         for i in 0..n {
-            let (alb, da) = self.albedo.band(temps, i);
+            let (alb, da) = self.albedo_band(bal.as_ref(), &d, sun, temps, i);
             let (olr, dolr) = self.longwave.eval(temps[i]);
             let (olr, dolr) = d.olr(olr, dolr, temps[i]);
             let s = d.solar_scale * sun[i];
@@ -644,8 +663,10 @@ impl Model {
         self.transport.convergence(&self.grid, temps, &mut b.transport);
         b.transport.iter_mut().for_each(|v| *v *= d.transport_scale);
         let sun = self.sun(ws);
+        let bal = self.balance(&d);
         for i in 0..n {
-            b.absorbed[i] = d.solar_scale * sun[i] * (1.0 - self.albedo.band(temps, i).0);
+            let a = self.albedo_band(bal.as_ref(), &d, sun, temps, i).0;
+            b.absorbed[i] = d.solar_scale * sun[i] * (1.0 - a);
             let (o, dolr) = self.longwave.eval(temps[i]);
             b.olr[i] = d.olr(o, dolr, temps[i]).0 - d.greenhouse_wm2;
         }
@@ -657,15 +678,71 @@ impl Model {
         self.grid.mean(temps)
     }
 
+    /// Ice measure (length in x covered by ice) inside `[lo, hi]` at model time `t_years`, by
+    /// the same sub-band ice fractions as the `step` albedo (docs/discrete-model.md,
+    /// "Diagnostics"). The time matters only for the edge-balance rule (its drivers and
+    /// seasonal sunlight).
+    pub fn ice_measure_at(&self, t_years: f64, temps: &[f64], lo: f64, hi: f64) -> f64 {
+        let d = self.drivers_at(t_years);
+        let Some(bal) = self.balance(&d) else {
+            return self.albedo.ice_measure_in(&self.grid, temps, lo, hi);
+        };
+        let n = temps.len();
+        let seasonal;
+        let sun: &[f64] = match &self.sunlight {
+            Sunlight::Fixed(s) => s,
+            Sunlight::Seasonal(table) => {
+                let mut s = vec![0.0; n];
+                table.eval(t_years, &mut s);
+                seasonal = s;
+                &seasonal
+            }
+        };
+        let g = &self.grid;
+        let mut total = 0.0;
+        for (i, &ti) in temps.iter().enumerate() {
+            let (a, b) = (g.x_faces[i], g.x_faces[i + 1]);
+            // The ice segment of the band: its ice fraction on the curve's ice side.
+            let (p, q) = match self.albedo.balance_curve(sun, bal.scale, i) {
+                Some(c) => {
+                    let (o, dolr) = self.longwave.eval(ti);
+                    let (o, dolr) = d.olr(o, dolr, ti);
+                    let (f, _) = c.fraction(bal.restoring(o, dolr, ti).0);
+                    if c.upper {
+                        (b - f * (b - a), b)
+                    } else {
+                        (a, a + f * (b - a))
+                    }
+                }
+                None if ti < self.albedo.freeze => (a, b),
+                None => (a, a),
+            };
+            total += (q.min(hi) - p.max(lo)).max(0.0);
+        }
+        total
+    }
+
+    /// [`Model::ice_measure_at`] for a state without a time (the drivers at time 0).
+    pub fn ice_measure_in(&self, temps: &[f64], lo: f64, hi: f64) -> f64 {
+        self.ice_measure_at(0.0, temps, lo, hi)
+    }
+
     /// Ice-edge latitudes `(north, south)` in degrees north: north is 90 when ice free and 0
     /// when ice covered; south (globe only) is -90 when ice free and 0 when ice covered.
+    /// For a state without a time: [`Model::ice_edges_at`] time 0.
     pub fn ice_edges(&self, temps: &[f64]) -> (f64, Option<f64>) {
+        self.ice_edges_at(0.0, temps)
+    }
+
+    /// [`Model::ice_edges`] of a state at model time `t_years` (the drivers and seasonal
+    /// sunlight at that time enter the edge-balance rule of relaxation transport).
+    pub fn ice_edges_at(&self, t_years: f64, temps: &[f64]) -> (f64, Option<f64>) {
         let g = &self.grid;
-        let north = self.albedo.ice_measure_in(g, temps, 0.0, 1.0);
+        let north = self.ice_measure_at(t_years, temps, 0.0, 1.0);
         let north_lat = (1.0 - north).clamp(0.0, 1.0).asin().to_degrees();
         let south = match g.domain {
             crate::grid::Domain::Globe => {
-                let s = self.albedo.ice_measure_in(g, temps, -1.0, 0.0);
+                let s = self.ice_measure_at(t_years, temps, -1.0, 0.0);
                 Some(-(1.0 - s).clamp(0.0, 1.0).asin().to_degrees())
             }
             crate::grid::Domain::Hemisphere => None,
@@ -682,6 +759,94 @@ impl Model {
             hi = f64::min(hi, b);
         }
         (lo, hi)
+    }
+}
+
+/// Per-evaluation constants of the edge-balance rule (step albedo, relaxation transport):
+/// `R(T) = OLR(T) - OLR(T_f) + gamma (T - T_f)` in W m-2 with the effective OLR and rate.
+#[derive(Debug, Clone, Copy)]
+struct Balance {
+    /// Effective OLR at freezing, W m-2.
+    olr_freeze: f64,
+    /// Effective relaxation rate, W m-2 K-1.
+    gamma: f64,
+    /// Freezing temperature, K.
+    freeze: f64,
+    /// Solar scale of the insolation.
+    scale: f64,
+}
+
+impl Balance {
+    /// `R(T)` and `R'(T)` at `t` (K) from the effective OLR `o` and its slope `dolr` there.
+    #[inline(always)]
+    fn restoring(&self, o: f64, dolr: f64, t: f64) -> (f64, f64) {
+        (
+            o - self.olr_freeze + self.gamma * (t - self.freeze),
+            dolr + self.gamma,
+        )
+    }
+}
+
+impl Model {
+    /// The edge-balance constants at drivers `d` when the model uses that rule: the `step`
+    /// albedo with [`EdgeRule::EdgeBalance`] and relaxation transport (with another transport
+    /// the interpolated rule applies).
+    #[inline]
+    fn balance(&self, d: &Drivers) -> Option<Balance> {
+        let Transport::Relaxation { rate } = self.transport else {
+            return None;
+        };
+        if self.albedo.form != AlbedoForm::Step || self.albedo.edge_rule != EdgeRule::EdgeBalance {
+            return None;
+        }
+        let tf = self.albedo.freeze;
+        let (o, dolr) = self.longwave.eval(tf);
+        Some(Balance {
+            olr_freeze: d.olr(o, dolr, tf).0,
+            gamma: rate * d.transport_scale,
+            freeze: tf,
+            scale: d.solar_scale,
+        })
+    }
+
+    /// Albedo of band `i` and its derivatives by `T_{i-1}`, `T_i`, `T_{i+1}` (per K) under the
+    /// model's edge rule, at drivers `d` and insolation `sun` (before the solar scale).
+    #[inline(always)]
+    fn albedo_band(
+        &self,
+        bal: Option<&Balance>,
+        d: &Drivers,
+        sun: &[f64],
+        temps: &[f64],
+        i: usize,
+    ) -> (f64, [f64; 3]) {
+        match bal {
+            None => self.albedo.band(temps, i),
+            Some(b) => {
+                let t = temps[i];
+                let (o, dolr) = self.longwave.eval(t);
+                let (o, dolr) = d.olr(o, dolr, t);
+                let (r, dr) = b.restoring(o, dolr, t);
+                let (a, da) = self.albedo.balance_band(sun, b.scale, temps, i, r, dr);
+                (a, [0.0, da, 0.0])
+            }
+        }
+    }
+
+    /// Whether the `step` albedo uses the edge-balance rule here (relaxation transport).
+    pub fn uses_edge_balance(&self) -> bool {
+        self.balance(&self.drivers).is_some()
+    }
+
+    /// Albedo of every band at model time `t_years` under the model's edge rule, into `out`.
+    pub fn albedo_at(&self, t_years: f64, temps: &[f64], ws: &mut Workspace, out: &mut [f64]) {
+        self.refresh_sun(t_years, ws);
+        let d = self.drivers_at(t_years);
+        let bal = self.balance(&d);
+        let sun = self.sun(ws);
+        for (i, o) in out.iter_mut().enumerate().take(temps.len()) {
+            *o = self.albedo_band(bal.as_ref(), &d, sun, temps, i).0;
+        }
     }
 }
 
@@ -724,11 +889,16 @@ impl Model {
             .iter()
             .map(|p| a.ice_free + a.ice_free_p2 * p)
             .collect();
-        let albedo = Albedo::new(&grid, a.form, ice_free, a.ice, a.freeze_k);
         let transport = match spec.transport {
             TransportSpec::Diffusive { d0, d2 } => Transport::diffusive(&grid, d0, d2),
             TransportSpec::Relaxation { rate } => Transport::Relaxation { rate },
         };
+        // T is continuous under diffusion and jumps at the edge under relaxation.
+        let edge_rule = match transport {
+            Transport::Diffusive { .. } => EdgeRule::Interpolated,
+            Transport::Relaxation { .. } => EdgeRule::EdgeBalance,
+        };
+        let albedo = Albedo::new(&grid, a.form, ice_free, a.ice, a.freeze_k).with_edge_rule(edge_rule);
         let hc = &spec.heat_capacity;
         let heat_capacity = (0..n)
             .map(|i| {

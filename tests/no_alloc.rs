@@ -51,6 +51,8 @@ fn implicit_steps_do_not_allocate() {
             "transport.kind=\"relaxation\"".to_string(),
             "albedo.kind=\"smooth\"".to_string(),
         ],
+        // The step albedo's edge-balance rule (relaxation transport).
+        vec!["transport.kind=\"relaxation\"".to_string()],
     ] {
         let cfg = config::load_str(&text, "t", Path::new("."), &sets).unwrap();
         let model = Model::from_spec(&cfg.spec.model);

@@ -213,3 +213,93 @@ fn implicit_scheme_is_second_order() {
         assert!((3.4..4.6).contains(&ratio), "error ratio {ratio} ({a} / {b})");
     }
 }
+
+/// The heating Jacobian (tridiagonal plus rank one) as a dense row-major matrix.
+fn dense_jacobian(model: &Model, temps: &[f64], fused: bool) -> (Vec<f64>, Vec<f64>) {
+    let n = model.len();
+    let mut ws = Workspace::new(n);
+    let mut jac = icefold::linalg::Tridiag::zeros(n);
+    let mut g = vec![0.0; n];
+    if fused {
+        model.heating_with_jacobian(0.0, temps, &mut ws, &mut g, &mut jac);
+    } else {
+        model.heating(0.0, temps, &mut ws, &mut g);
+        model.heating_jacobian(0.0, temps, &mut ws, &mut jac);
+    }
+    (jac.to_dense(&model.grid.weights), g)
+}
+
+#[test]
+fn edge_balance_jacobian_matches_finite_differences() {
+    // Central differences of the heating (common practice) against the analytic Jacobian of
+    // the step albedo's edge-balance rule (relaxation transport), for linear and gray-body OLR
+    // and with time-varying-style drivers (solar, OLR and transport scales), on a profile with
+    // several bands inside their ramps. Step 1e-5 K: truncation ~1e-10 (G is piecewise
+    // quadratic at most in T away from the ramp ends, which the state avoids by > 1e-3 K),
+    // round-off ~1e-16 * 400 / 1e-5 ~ 1e-8 W m-2 K-1; tolerance 1e-6.
+    let base = "[grid]\nbands = 24\ndomain = \"globe\"\nspacing = \"equal_angle\"\n\
+                [insolation]\nsolar_constant = 1370\ns2 = -0.482\n\
+                [albedo]\nice_free = 0.30\nice_free_p2 = 0.06\nice = 0.62\nfreeze_temperature_c = -10\n\
+                [transport]\nkind = \"relaxation\"\nrelaxation_rate = 3.04\n";
+    let linear = format!("{base}[longwave]\na = 202\nb = 1.9\n");
+    let gray = format!("{base}[longwave]\nkind = \"gray_body\"\nemissivity = 0.61\n");
+    let mut in_ramp = 0;
+    for text in [linear, gray] {
+        let cfg = load(&text, &[]);
+        let mut model = Model::from_spec(&cfg.spec.model);
+        assert!(model.uses_edge_balance());
+        for scaled in [false, true] {
+            if scaled {
+                model.drivers.solar_scale = 0.97;
+                model.drivers.olr_scale = 1.02;
+                model.drivers.olr_slope_wm2_per_k = 0.1;
+                model.drivers.transport_scale = 1.3;
+            }
+            let n = model.len();
+            // Warm equator, cold poles: a 30 K drop across |x| = 0.55 +- 0.25 puts a few
+            // bands in each hemisphere inside their ramps (about 14 K wide here).
+            let t: Vec<f64> = model
+                .grid
+                .x_centres
+                .iter()
+                .map(|x| 263.15 + 0.3 - 60.0 * (x.abs() - 0.55))
+                .collect();
+            let mut alb = vec![0.0; n];
+            let mut ws = Workspace::new(n);
+            model.albedo_at(0.0, &t, &mut ws, &mut alb);
+            let af = &model.albedo.ice_free;
+            in_ramp += (0..n)
+                .filter(|&i| alb[i] > af[i] + 1e-9 && alb[i] < model.albedo.ice - 1e-9)
+                .count();
+            let (jac, g) = dense_jacobian(&model, &t, false);
+            let (jac_fused, g_fused) = dense_jacobian(&model, &t, true);
+            let h = 1e-5;
+            for j in 0..n {
+                let (mut tp, mut tm) = (t.clone(), t.clone());
+                tp[j] += h;
+                tm[j] -= h;
+                let (gp, gm) = (
+                    dense_jacobian(&model, &tp, false).1,
+                    dense_jacobian(&model, &tm, false).1,
+                );
+                for i in 0..n {
+                    let fd = (gp[i] - gm[i]) / (2.0 * h);
+                    let an = jac[i * n + j];
+                    assert!(
+                        (fd - an).abs() < 1e-6,
+                        "scaled {scaled} row {i} column {j}: finite difference {fd} vs {an}"
+                    );
+                    // The fused pass evaluates the same expressions.
+                    assert!((jac_fused[i * n + j] - an).abs() <= 1e-12 * (1.0 + an.abs()));
+                }
+            }
+            for i in 0..n {
+                assert!((g_fused[i] - g[i]).abs() <= 1e-12 * (1.0 + g[i].abs()));
+            }
+        }
+    }
+    assert!(
+        in_ramp >= 8,
+        "{in_ramp} bands inside their ramps: the check is not vacuous"
+    );
+}

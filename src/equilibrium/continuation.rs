@@ -520,9 +520,7 @@ impl<'a> Tracer<'a> {
     /// Ice measure (ice-covered length in x over the whole grid) of a state.
     fn ice_measure(&self, t: &[f64]) -> f64 {
         let g = &self.model.grid;
-        self.model
-            .albedo
-            .ice_measure_in(g, t, g.x_faces[0], g.x_faces[g.len()])
+        self.model.ice_measure_in(t, g.x_faces[0], g.x_faces[g.len()])
     }
 
     /// Whether an ice measure means ice free (-1), ice covered (+1) or partly covered (0).

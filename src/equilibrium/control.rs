@@ -166,6 +166,15 @@ impl Controlled {
     pub fn heating_derivative(&self, model: &Model, p: f64, temps: &[f64], out: &mut [f64]) -> bool {
         let b = &self.base_model;
         let n = temps.len();
+        // The edge-balance albedo depends on the insolation and the OLR slope too: those
+        // derivatives are left to the caller's finite difference.
+        let through_albedo = matches!(
+            self.fast,
+            Some(Fast::SolarConstant | Fast::SolarScale | Fast::LinearB)
+        );
+        if through_albedo && model.uses_edge_balance() {
+            return false;
+        }
         match self.fast {
             None => return false,
             Some(Fast::SolarConstant) => {

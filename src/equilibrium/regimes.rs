@@ -203,8 +203,9 @@ pub fn regime_row(
 ) -> Result<RegimeRow, ContinuationError> {
     let set = all_branches(fam, opts)?;
     // The ice edge depends on the control only through the albedo keys (the freezing
-    // temperature moves the edge); otherwise the base model serves every point.
-    let varies = fam.key.starts_with("albedo.");
+    // temperature moves the edge) or, with the edge-balance rule of relaxation transport,
+    // through the insolation, OLR and rate too; otherwise the base model serves every point.
+    let varies = fam.key.starts_with("albedo.") || fam.base_model().uses_edge_balance();
     let base = fam.base_model().clone();
     let edge = |state: &[f64], p: f64| -> f64 {
         if varies {

@@ -117,7 +117,7 @@ impl Stability {
             (self.last, SpectrumMethod::SymmetricTridiagonal)
         } else if let Some(lead) = self.edge_coupled(jac) {
             (lead, SpectrumMethod::SymmetricWithEdge)
-        } else if let Some(lead) = RankOne::new(self, jac).and_then(|r| r.leading()) {
+        } else if let Some(lead) = RankOne::new(self, jac).and_then(|mut r| r.leading()) {
             (lead, SpectrumMethod::SecularRankOne)
         } else {
             let lead = general_eigenvalues(dense(model, jac))
@@ -370,6 +370,11 @@ struct RankOne {
     w: Vec<f64>,
     d: Vec<f64>,
     e2: Vec<f64>,
+    /// Whether `T` is diagonal (every off-diagonal zero): then the secular function is a sum.
+    diagonal: bool,
+    /// Thomas-algorithm scratch (no allocation per evaluation).
+    c: Vec<f64>,
+    z: Vec<f64>,
 }
 
 impl RankOne {
@@ -391,21 +396,36 @@ impl RankOne {
             }
             *e = p;
         }
+        let diagonal = (1..n).all(|i| t.lower[i] == 0.0 && t.upper[i - 1] == 0.0);
         Some(RankOne {
             d: t.diag.clone(),
             u: st.scale.iter().map(|c| c * gamma).collect(),
             w: st.weights.clone(),
             t,
             e2,
+            diagonal,
+            c: vec![0.0; n],
+            z: vec![0.0; n],
         })
     }
 
     /// `1 + w^T (T - x)^-1 u`, or `None` at a pole.
-    fn secular(&self, x: f64) -> Option<f64> {
+    fn secular(&mut self, x: f64) -> Option<f64> {
+        crate::tally::add(crate::tally::Kernel::SolveRow, self.t.len());
+        if self.diagonal {
+            let mut sum = 0.0;
+            for ((d, w), u) in self.d.iter().zip(&self.w).zip(&self.u) {
+                let piv = d - x;
+                if piv == 0.0 || !piv.is_finite() {
+                    return None;
+                }
+                sum += w * u / piv;
+            }
+            return Some(1.0 + sum);
+        }
         // Thomas algorithm on T - x for the right-hand side u.
         let n = self.t.len();
-        let mut c = vec![0.0; n];
-        let mut z = vec![0.0; n];
+        let (c, z) = (&mut self.c, &mut self.z);
         let mut prev_c = 0.0;
         let mut prev_z = 0.0;
         for i in 0..n {
@@ -422,28 +442,54 @@ impl RankOne {
         for i in (0..n.saturating_sub(1)).rev() {
             z[i] -= c[i] * z[i + 1];
         }
-        Some(1.0 + dot(&self.w, &z))
+        Some(1.0 + dot(&self.w, z))
     }
 
-    /// The zero of the secular function in `(lo, hi)` where it rises from negative to positive.
-    fn zero_between(&self, lo: f64, hi: f64) -> Option<f64> {
+    /// The zero of the secular function in `(lo, hi)` where it rises from negative to positive,
+    /// to a few ulps: regula falsi with the Illinois modification (superlinear, the bracket kept;
+    /// Dahlquist and Bjorck, Numerical Methods, 1974, section 6.2), a bisection step whenever
+    /// the bracket shrinks too slowly.
+    fn zero_between(&mut self, lo: f64, hi: f64) -> Option<f64> {
         let width = hi - lo;
         let (mut a, mut b) = (lo + 1e-13 * width.max(lo.abs()), hi - 1e-13 * width.max(hi.abs()));
-        if !(self.secular(a)? < 0.0 && self.secular(b)? > 0.0) {
+        let (mut fa, mut fb) = (self.secular(a)?, self.secular(b)?);
+        if !(fa < 0.0 && fb > 0.0) {
             return None;
         }
-        for _ in 0..200 {
-            let m = 0.5 * (a + b);
-            if m <= a || m >= b {
+        // Which end moved last (-1: a, +1: b), for the Illinois halving.
+        let mut side = 0;
+        for it in 0..200 {
+            let span = b - a;
+            if span <= 4.0 * f64::EPSILON * a.abs().max(b.abs()) {
                 break;
             }
-            if self.secular(m)? < 0.0 {
-                a = m;
+            let mut m = if it % 4 == 3 {
+                0.5 * (a + b)
             } else {
-                b = m;
+                (a * fb - b * fa) / (fb - fa)
+            };
+            if !(m > a && m < b) {
+                m = 0.5 * (a + b);
+            }
+            let fm = self.secular(m)?;
+            if fm == 0.0 {
+                return Some(m);
+            }
+            if fm < 0.0 {
+                (a, fa) = (m, fm);
+                if side == -1 {
+                    fb *= 0.5;
+                }
+                side = -1;
+            } else {
+                (b, fb) = (m, fm);
+                if side == 1 {
+                    fa *= 0.5;
+                }
+                side = 1;
             }
         }
-        Some(0.5 * (a + b))
+        Some(if fa.abs() < fb.abs() { a } else { b })
     }
 
     /// Upper bound of the spectrum of `T + u w^T` (Gershgorin on rows).
@@ -459,14 +505,18 @@ impl RankOne {
             .fold(f64::NEG_INFINITY, f64::max)
     }
 
-    fn leading(&self) -> Option<f64> {
-        let tau = largest_symmetric(&self.d, &self.e2);
+    fn leading(&mut self) -> Option<f64> {
+        let tau = if self.diagonal {
+            self.d.iter().copied().fold(f64::NEG_INFINITY, f64::max)
+        } else {
+            largest_symmetric(&self.d, &self.e2)
+        };
         let hi = self.upper_bound().max(tau) + 1e-9 * (1.0 + tau.abs());
         self.zero_between(tau, hi)
     }
 
     /// All eigenvalues, largest first.
-    fn spectrum(&self) -> Option<Vec<f64>> {
+    fn spectrum(&mut self) -> Option<Vec<f64>> {
         let n = self.t.len();
         let m = DMatrix::from_fn(n, n, |r, c| {
             if r == c {
@@ -587,7 +637,7 @@ pub fn spectrum(model: &Model, t_years: f64, temps: &[f64]) -> Spectrum {
             first.0 = largest_symmetric(d, e2);
         }
         ev
-    } else if let Some(ev) = RankOne::new(&st, &jac).and_then(|r| r.spectrum()) {
+    } else if let Some(ev) = RankOne::new(&st, &jac).and_then(|mut r| r.spectrum()) {
         rank_one = true;
         ev.into_iter().map(|v| (v, 0.0)).collect()
     } else {
@@ -645,6 +695,66 @@ mod tests {
         assert!((sp.real[0] + 2.0 * c).abs() < 1e-12 * c);
         for v in &sp.real[1..] {
             assert!((v + 5.0 * c).abs() < 1e-12 * c, "{v}");
+        }
+    }
+
+    #[test]
+    fn relaxation_leading_eigenvalue_matches_a_dense_solve() {
+        // Reference: nalgebra's general (Schur) eigen-solver on the dense Jacobian. Relaxation
+        // transport with the step albedo's edge-balance rule (diagonal plus rank one, the edge
+        // bands nearly neutral) at states with the edge inside a band, and with the smooth
+        // albedo; the secular root must agree to round-off of the matrix norm (~5 / year).
+        for (kind, edge) in [("step", 0.3), ("step", 0.7), ("smooth", 0.5)] {
+            let text = format!(
+                "[grid]\nbands = 40\n[insolation]\nsolar_constant = 1370\ns2 = -0.482\n\
+                 [albedo]\nkind = \"{kind}\"\nwidth_k = 4.0\nice_free = 0.32\nice = 0.62\n\
+                 freeze_temperature_c = -10\n[longwave]\na = 202\nb = 1.9\n\
+                 [transport]\nkind = \"relaxation\"\nrelaxation_rate = 3.04\n\
+                 [heat_capacity]\nvalue = 4.0e8\n"
+            );
+            let cfg = crate::config::load_str(&text, "t", std::path::Path::new("."), &[]).unwrap();
+            let model = Model::from_spec(&cfg.spec.model);
+            let g = &model.grid;
+            // The edge band at T_f + 5 K (inside its ramp), warm and cold sides 15 K away.
+            let k = (edge * 40.0) as usize;
+            let t: Vec<f64> = (0..40)
+                .map(|i| match i.cmp(&k) {
+                    std::cmp::Ordering::Less => 290.0 - 20.0 * g.x_centres[i],
+                    std::cmp::Ordering::Equal => 268.15,
+                    std::cmp::Ordering::Greater => 248.0 - 10.0 * g.x_centres[i],
+                })
+                .collect();
+            let (lead, method) = leading_eigenvalue(&model, 0.0, &t);
+            assert_eq!(method, SpectrumMethod::SecularRankOne);
+            let mut ws = Workspace::new(40);
+            let mut jac = Tridiag::zeros(40);
+            model.heating_jacobian(0.0, &t, &mut ws, &mut jac);
+            // The Jacobian is diagonal plus `gamma 1 w^T` with one heat capacity: similar (by
+            // W^1/2) to the symmetric `D + gamma sqrt(w) sqrt(w)^T`, whose dense symmetric
+            // solve is robust (the general Schur iteration cycles on the many equal diagonal
+            // entries, nalgebra issues 611 and 764).
+            assert!(jac.lower.iter().chain(&jac.upper).all(|v| *v == 0.0));
+            let gamma = jac.rank_one.unwrap();
+            let c = YEAR_SECONDS / 4.0e8;
+            let w = &g.weights;
+            let m = DMatrix::from_fn(40, 40, |r, q| {
+                c * ((if r == q { jac.diag[r] } else { 0.0 }) + gamma * (w[r] * w[q]).sqrt())
+            });
+            let want = m
+                .symmetric_eigenvalues()
+                .iter()
+                .copied()
+                .fold(f64::NEG_INFINITY, f64::max);
+            assert!(
+                (lead - want).abs() < 1e-12 * 5.0 + 1e-12 * want.abs(),
+                "{kind} {edge}: {lead} vs {want}"
+            );
+            let sp = spectrum(&model, 0.0, &t);
+            assert!(
+                (sp.real[0] - want).abs() < 1e-11,
+                "{kind}: {} vs {want}",
+                sp.real[0]
+            );
         }
     }
 

@@ -12,6 +12,7 @@ use crate::equilibrium::branches::{all_branches_from, BranchSet, BranchesProgres
 use crate::equilibrium::continuation::{
     Branch, BranchPoint, ContinuationError, ContinuationOptions, FoldPoint, LegEnd,
 };
+use crate::equilibrium::control::Controlled;
 use crate::equilibrium::stability::SpectrumMethod;
 use crate::error::Error;
 use crate::integrate::SolverError;
@@ -115,11 +116,13 @@ pub fn branches_job(
         return Err(Error::Other(e.to_string()));
     }
     let spec = branches_spec(cfg)?;
+    let family = Controlled::new(cfg, &spec.control).ok();
     let info = BranchesInfo {
         control_key: &spec.control,
         from: spec.from,
         to: spec.to,
         linearisations: run.set.linearisations,
+        family: family.as_ref(),
     };
     let prov = provenance(cfg, command_line);
     let reached = vec![

@@ -74,7 +74,7 @@ impl Collector<'_> {
         // outgoing + transport convergence + additive forcing), without allocating a budget.
         m.heating(t, temps, &mut self.ws, &mut self.heat);
         let g = &m.grid;
-        let (north, south) = m.ice_edges(temps);
+        let (north, south) = m.ice_edges_at(t, temps);
         self.rec.clear();
         self.rec.push(g.mean(temps));
         self.rec.push(g.mean(&self.heat));

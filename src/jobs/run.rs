@@ -316,7 +316,7 @@ pub fn run_job(
                 remove_restart(path);
             }
             let final_global_mean = model.global_mean(&summary.final_state);
-            let final_ice_edge_north = model.ice_edges(&summary.final_state).0;
+            let final_ice_edge_north = model.ice_edges_at(summary.t_end, &summary.final_state).0;
             Ok(RunReport {
                 summary,
                 final_global_mean,

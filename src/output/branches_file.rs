@@ -16,7 +16,7 @@ use std::path::Path;
 type IntColumn<'a> = (&'a str, Vec<(&'a str, Attr)>, Vec<i32>);
 
 /// Range and bookkeeping written as attributes.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone)]
 pub struct BranchesInfo<'a> {
     /// Dotted control key.
     pub control_key: &'a str,
@@ -26,6 +26,22 @@ pub struct BranchesInfo<'a> {
     pub to: f64,
     /// Linearisations used by the continuation.
     pub linearisations: u64,
+    /// The model family, for the ice edges of a model whose edge rule depends on the control
+    /// (the edge-balance rule of relaxation transport): each state's edge is then taken with
+    /// the model at its own control value.
+    pub family: Option<&'a crate::equilibrium::control::Controlled>,
+}
+
+/// Ice edges of `state` at control `p`: with the model at `p` when the edge rule depends on
+/// the control and `info` has the family, else with `model`.
+fn edges_at(model: &Model, info: &BranchesInfo<'_>, p: f64, state: &[f64]) -> (f64, Option<f64>) {
+    match info.family {
+        Some(fam) if model.uses_edge_balance() => match fam.model_at(p) {
+            Ok(m) => m.ice_edges(state),
+            Err(_) => model.ice_edges(state),
+        },
+        _ => model.ice_edges(state),
+    }
 }
 
 fn end_code(e: LegEnd) -> i32 {
@@ -68,7 +84,10 @@ pub fn write_branches_with(
         .collect();
     let globe = model.grid.domain == crate::grid::Domain::Globe;
     w.add_dimension("point", pts.len())?;
-    let edges: Vec<(f64, Option<f64>)> = pts.iter().map(|(_, p)| model.ice_edges(&p.state)).collect();
+    let edges: Vec<(f64, Option<f64>)> = pts
+        .iter()
+        .map(|(_, p)| edges_at(model, info, p.control, &p.state))
+        .collect();
     let f64_vars: Vec<(&str, String, String, Vec<f64>)> = vec![
         (
             "control",
@@ -179,7 +198,10 @@ pub fn write_branches_with(
             "fold_ice_edge_latitude_north",
             "degrees_north".into(),
             "ice-edge latitude at the fold".into(),
-            folds.iter().map(|(_, f)| model.ice_edges(&f.state).0).collect(),
+            folds
+                .iter()
+                .map(|(_, f)| edges_at(model, info, f.control, &f.state).0)
+                .collect(),
         ),
         (
             "fold_global_mean_temperature",

@@ -273,7 +273,7 @@ impl<'m> RunWriter<'m> {
         let b = &self.budget;
         let d = model.drivers_at(t);
         let g = &model.grid;
-        let (north, south) = model.ice_edges(temps);
+        let (north, south) = model.ice_edges_at(t, temps);
         let rec = &mut self.rec;
         rec.clear();
         for part in [temps, &b.absorbed, &b.olr, &b.transport] {

@@ -38,6 +38,11 @@ def _annual_mean(cfg: dict) -> dict:
     return cfg
 
 
+def _no_diffusivity(cfg: dict) -> dict:
+    cfg["transport"].pop("diffusivity", None)
+    return cfg
+
+
 # name -> (config dict or None for the repository's classic config, overrides)
 CASES = {
     # (a) the classic step-albedo config at 45 bands, 50 years from 15 C (settles ice free).
@@ -63,6 +68,15 @@ CASES = {
         albedo={"kind": "smooth", "width_k": 6.0},
         transport={"diffusivity": 0.44, "diffusivity_p2": -0.4},
         greenhouse={"co2_ppm": 400.0, "reference_co2_ppm": 280.0},
+        time={"years": 50, "output_every_years": 1})), {}),
+    # (b'') step albedo with relaxation transport (the edge-balance rule), Budyko-type values
+    # (from memory): from 15 C an ice cap grows, so edge bands pass through their ramps.
+    "b_budyko_step_relaxation": (_no_diffusivity(classic(
+        grid={"bands": 45},
+        insolation={"solar_constant": 1330.0},
+        albedo={"ice_free": 0.32, "ice_free_p2": 0.0},
+        longwave={"a": 202.0, "b": 1.9},
+        transport={"kind": "relaxation", "relaxation_rate": 3.04},
         time={"years": 50, "output_every_years": 1})), {}),
     # (c) one-band globe (the zero-dimensional model), gray-body OLR, smooth albedo, 2xCO2.
     "c_one_band_gray_body": (classic(

@@ -21,12 +21,12 @@ More generally `edge` may be a weight theta in [0, 1]: T_f = T(x_s+) + theta (T(
 
 Note on icefold's discrete model (docs/discrete-model.md): with relaxation transport a band's
 temperature depends on its own albedo only, T_j = (1 - f_j) W + f_j C (W, C the ice-free and ice
-temperatures there), and the sub-band ice fraction f_j follows from the interpolant through the
-neighbours (W on one side, C on the other). On locally uniform bands f_j = 1 - tau with
-tau = (T_j - C)/(W - C) has a solution only for theta = (T_f - C)/(W - C) in [7/16, 9/16]
-(tau^2 - 3 tau/2 + theta = 0 for tau >= theta, tau^2 - tau/2 + 1/2 - theta = 0 for tau < theta).
-So discrete equilibria sit between Q_{9/16}(x_s) and Q_{7/16}(x_s), around the "mean" curve, but
-this window does not shrink with the band width (test_budyko1969_reference checks it).
+temperatures there). Interpolating T through the neighbours (W on one side, C on the other) to
+place the edge would give, on locally uniform bands, only theta = (T_f - C)/(W - C) in
+[7/16, 9/16], a window that does not shrink with the band width. icefold's step albedo under
+relaxation therefore uses the edge-balance rule, which makes every discrete equilibrium satisfy
+this module's "mean" edge condition up to second-order discretisation errors
+(test_budyko1969_reference checks it on the reference's own discrete model).
 """
 
 from __future__ import annotations

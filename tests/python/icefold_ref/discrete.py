@@ -9,7 +9,8 @@ in years (1 year = 365.25 * 86400 s), so tendencies are returned in K per year.
 Supported (everything docs/discrete-model.md pins down except the seasonal insolation, the OLR
 table and land fractions, which raise `ConfigError`; forcing histories are in `forcing.py`):
 grid (hemisphere/globe, equal_area/equal_angle), insolation (legendre, annual_mean), albedo
-(step with the sub-band ice fraction rule, smooth, ramp), longwave (linear, gray_body,
+(step with the sub-band ice fraction rule, the edge-balance rule under relaxation transport,
+smooth, ramp), longwave (linear, gray_body,
 emission_level), greenhouse CO2 term, transport (diffusive with d2, relaxation), heat capacity.
 """
 
@@ -357,6 +358,64 @@ def ice_measure(grid: Grid, t: np.ndarray, tf: float, lo: float, hi: float) -> f
     return float(np.sum(_below_measure(pc, qc, ac, bc, tf)[keep]))
 
 
+def _line_at(xa, va, xb, vb, x):
+    """Value at x of the line through (xa, va) and (xb, vb)."""
+    return va + (vb - va) * (x - xa) / (xb - xa)
+
+
+def edge_balance(grid: Grid, sun: np.ndarray, af: np.ndarray, ai: float, r: np.ndarray,
+                 t: np.ndarray, tf: float):
+    """Ice fractions of the `step` albedo's edge-balance rule (relaxation transport), and for
+    each band whether its ice lies toward the upper face.
+
+    Written from docs/discrete-model.md ("step albedo with relaxation transport"): `sun` is
+    m S_i (solar scale applied), `r` is R(T_i) = OLR(T_i) - OLR(Tf) + gamma (T_i - Tf) in
+    W m-2. Band i solves r_i = P_i(f) with P_i piecewise linear in f through (0, A/2 - d_ice),
+    (fc, A (1/2 - fc)), (1, -A/2 - d_warm); q_j = m S_j (1 - (af_j + ai)/2) linear between
+    centres (the line through the two nearest centres on an outer half band).
+    """
+    n = grid.n
+    xf, xc = grid.x_f, grid.x_c
+    q = sun * (1.0 - 0.5 * (af + ai))
+    jump = sun * (ai - af)
+    f = np.where(t < tf, 1.0, 0.0)
+    upper = np.ones(n, dtype=bool)
+    for i in range(n):
+        if n == 1:
+            ql = qh = q[0]
+            q_lo_face = q_hi_face = q[0]
+        else:
+            ql = q[i - 1] if i > 0 else 2.0 * q[0] - q[1]
+            qh = q[i + 1] if i < n - 1 else 2.0 * q[i] - q[i - 1]
+            a, b = (i - 1, i) if i > 0 else (0, 1)
+            q_lo_face = _line_at(xc[a], q[a], xc[b], q[b], xf[i])
+            a, b = (i, i + 1) if i < n - 1 else (n - 2, n - 1)
+            q_hi_face = _line_at(xc[a], q[a], xc[b], q[b], xf[i + 1])
+        up = bool(xc[i] >= 0.0) if qh == ql else bool(qh < ql)
+        upper[i] = up
+        big_a = jump[i]
+        if not big_a > 0.0:
+            continue
+        dx = xf[i + 1] - xf[i]
+        if up:
+            d_ice, d_warm, fc = q_hi_face - q[i], q_lo_face - q[i], (xf[i + 1] - xc[i]) / dx
+        else:
+            d_ice, d_warm, fc = q_lo_face - q[i], q_hi_face - q[i], (xc[i] - xf[i]) / dx
+        d_ice = min(d_ice, 0.5 * big_a * fc)
+        d_warm = max(d_warm, -0.5 * big_a * (1.0 - fc))
+        p0, pc, p1 = 0.5 * big_a - d_ice, big_a * (0.5 - fc), -0.5 * big_a - d_warm
+        ri = r[i]
+        if ri >= p0:
+            f[i] = 0.0
+        elif ri >= pc:
+            f[i] = fc * (p0 - ri) / (p0 - pc)
+        elif ri > p1:
+            f[i] = fc + (1.0 - fc) * (pc - ri) / (pc - p1)
+        else:
+            f[i] = 1.0
+    return f, upper
+
+
 # ----------------------------------------------------------------------------------------------
 # The model
 # ----------------------------------------------------------------------------------------------
@@ -385,10 +444,38 @@ class Model:
     t0_p2: float = 0.0  # initial P2(x) part, K (initial.temperature_p2_k, at band centres)
 
     # -- pieces --------------------------------------------------------------------------
+    @property
+    def edge_balance(self) -> bool:
+        """Whether the step albedo uses the edge-balance rule (relaxation transport)."""
+        return self.albedo_kind == "step" and self.transport_kind == "relaxation"
+
+    def _edge_balance(self, t: np.ndarray):
+        """Edge-balance ice fractions and ice sides (constant drivers)."""
+        t = np.asarray(t, dtype=float)
+        tf = np.array([self.tf])
+        r = self.olr(t) - self.olr(tf)[0] + self.gamma * (t - self.tf)
+        return edge_balance(self.grid, self.insolation, self.af, self.ai, r, t, self.tf)
+
+    def ice_fraction(self, t: np.ndarray) -> np.ndarray:
+        """Ice fraction of each band by the step albedo's sub-band rule."""
+        if self.edge_balance:
+            return self._edge_balance(t)[0]
+        return ice_fraction(self.grid, t, self.tf)
+
+    def ice_measure(self, t: np.ndarray, lo: float, hi: float) -> float:
+        """Ice measure (in x) within [lo, hi] (docs/discrete-model.md, "Diagnostics")."""
+        if not self.edge_balance:
+            return ice_measure(self.grid, t, self.tf, lo, hi)
+        f, upper = self._edge_balance(t)
+        a, b = self.grid.x_f[:-1], self.grid.x_f[1:]
+        p = np.where(upper, b - f * (b - a), a)
+        q = np.where(upper, b, a + f * (b - a))
+        return float(np.sum(np.clip(np.minimum(q, hi) - np.maximum(p, lo), 0.0, None)))
+
     def albedo(self, t: np.ndarray) -> np.ndarray:
         """Band albedo alpha_i(T)."""
         if self.albedo_kind == "step":
-            f = ice_fraction(self.grid, t, self.tf)
+            f = self.ice_fraction(t)
             return f * self.ai + (1.0 - f) * self.af
         if self.albedo_kind == "smooth":
             return self.ai + (self.af - self.ai) * 0.5 * (1.0 + np.tanh((t - self.tf) / self.width))
@@ -445,14 +532,14 @@ class Model:
 
     def ice_edge_north(self, t: np.ndarray) -> float:
         """asin(1 - ice measure in [0, 1]) in degrees (90 ice free, 0 ice covered)."""
-        m = ice_measure(self.grid, t, self.tf, 0.0, 1.0)
+        m = self.ice_measure(t, 0.0, 1.0)
         return float(np.degrees(np.arcsin(np.clip(1.0 - m, -1.0, 1.0))))
 
     def ice_edge_south(self, t: np.ndarray) -> float:
         """-asin(1 - ice measure in [-1, 0]) in degrees_north (globe only)."""
         if self.grid.domain != "globe":
             raise ValueError("ice_edge_south is defined on a globe only")
-        m = ice_measure(self.grid, t, self.tf, -1.0, 0.0)
+        m = self.ice_measure(t, -1.0, 0.0)
         return float(-np.degrees(np.arcsin(np.clip(1.0 - m, -1.0, 1.0))))
 
 

@@ -186,6 +186,9 @@ class ForcedModel:
         if m.olr_kind not in ("linear", "gray_body") and (
                 {"longwave.a", "longwave.b", "longwave.emissivity"} & h.names()):
             raise d.ConfigError("a time-varying OLR key needs linear or gray-body OLR")
+        if m.edge_balance:
+            raise d.ConfigError("the step albedo's edge-balance rule (relaxation transport) "
+                                "under a forcing history is not modelled by the reference")
 
     def drivers(self, t: float) -> dict:
         """Insolation multiplier, greenhouse forcing, additive forcing (W m-2), OLR change and
