@@ -349,6 +349,8 @@ pub struct RawSweep {
     pub settle_max_years: Option<f64>,
     /// Relative precision of the refined tipping points.
     pub refine_relative: Option<f64>,
+    /// Spacing of the values: "linear" or "log".
+    pub spacing: Option<String>,
 }
 
 /// `[branches]`.

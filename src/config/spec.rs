@@ -201,6 +201,56 @@ pub struct SweepSpec {
     pub settle_max_years: f64,
     /// Relative precision of refined tipping points.
     pub refine_relative: f64,
+    /// How the values between `from` and `to` are spaced.
+    pub spacing: AxisSpacing,
+}
+
+/// How the values of a control axis are spaced (`sweep.spacing`, `branches.spacing`,
+/// `regimes.spacing`, `regimes.row_spacing`).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum AxisSpacing {
+    /// Equal steps in the control (the default).
+    #[default]
+    Linear,
+    /// Equal steps in ln(control); both ends positive.
+    Log,
+}
+
+impl AxisSpacing {
+    /// Name in configs and files (`"linear"`, `"log"`).
+    pub fn name(self) -> &'static str {
+        match self {
+            AxisSpacing::Linear => "linear",
+            AxisSpacing::Log => "log",
+        }
+    }
+
+    /// `n` values from `a` to `b` (both included; `a` alone when `n` is 1), equally spaced in
+    /// the control or in its logarithm.
+    pub fn values(self, a: f64, b: f64, n: usize) -> Vec<f64> {
+        if n <= 1 {
+            return vec![a];
+        }
+        let at = |i: usize| {
+            let f = i as f64 / (n - 1) as f64;
+            match self {
+                AxisSpacing::Linear => a + (b - a) * f,
+                // The ends exactly as given (exp(ln a) may differ from a in the last bit).
+                AxisSpacing::Log if i == 0 => a,
+                AxisSpacing::Log if i == n - 1 => b,
+                AxisSpacing::Log => (a.ln() + (b.ln() - a.ln()) * f).exp(),
+            }
+        };
+        (0..n).map(at).collect()
+    }
+
+    /// The middle of `a` and `b` on this axis (arithmetic or geometric mean).
+    pub fn midpoint(self, a: f64, b: f64) -> f64 {
+        match self {
+            AxisSpacing::Linear => 0.5 * (a + b),
+            AxisSpacing::Log => (a * b).sqrt(),
+        }
+    }
 }
 
 /// `[branches]`, validated.

@@ -721,6 +721,7 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
                     1e-4,
                     Range::AboveUpTo(0.0, 0.5),
                 )?,
+                spacing: axis_spacing(&c, "sweep", "spacing", &mut s.spacing, (from, to))?,
             })
         }
     };
@@ -1049,6 +1050,32 @@ fn control_key(c: &Checker, key: &str, v: &Option<String>) -> Result<String, Con
                 CONTROL_KEYS.join(", ")
             ),
         )),
+    }
+}
+
+/// `<section>.<key>`: "linear" (default) or "log"; log needs both ends of the axis above 0.
+fn axis_spacing(
+    c: &Checker,
+    section: &str,
+    key: &str,
+    slot: &mut Option<String>,
+    (from, to): (f64, f64),
+) -> Result<AxisSpacing, ConfigError> {
+    let name = format!("{section}.{key}");
+    match c.choice(&name, slot, "linear", &["linear", "log"])? {
+        "log" => {
+            if !(from > 0.0 && to > 0.0) {
+                return Err(c.range_err(
+                    &name,
+                    "\"log\"".into(),
+                    format!(
+                        "allowed: \"log\" only when both ends of the axis are above 0 (here {from} and {to}); else \"linear\""
+                    ),
+                ));
+            }
+            Ok(AxisSpacing::Log)
+        }
+        _ => Ok(AxisSpacing::Linear),
     }
 }
 
