@@ -178,6 +178,16 @@ pub struct SweepResult {
     pub unsettled_steps: usize,
 }
 
+/// The hysteresis line of a summary: `width` in `units` when reported, else what is missing
+/// (never a width that is not bounded by found tipping points on both ends).
+pub fn hysteresis_text(width: f64, missing: Option<&str>, units: &str) -> String {
+    match missing {
+        None if width.is_finite() => format!("hysteresis width {width:.6} {units}"),
+        None => "hysteresis width not reported".to_string(),
+        Some(why) => format!("hysteresis width not reported: {why}"),
+    }
+}
+
 /// Why a sweep failed.
 #[derive(Debug, thiserror::Error)]
 pub enum SweepError {
