@@ -369,6 +369,8 @@ pub struct RawBranches {
     pub max_step: Option<f64>,
     /// Point limit per branch.
     pub max_points: Option<i64>,
+    /// Continue in the control ("linear") or in its logarithm ("log").
+    pub spacing: Option<String>,
 }
 
 // ---- [regimes] (the 2-D regime map) ----

@@ -268,6 +268,8 @@ pub struct BranchesSpec {
     pub max_step: f64,
     /// Point limit per branch.
     pub max_points: usize,
+    /// Continuation in the control or in its logarithm.
+    pub spacing: AxisSpacing,
 }
 
 /// The whole validated configuration.
@@ -349,6 +351,7 @@ impl RegimesSpec {
             step: self.step,
             max_step: self.max_step,
             max_points: self.max_points,
+            spacing: AxisSpacing::Linear,
         }
     }
 

@@ -758,6 +758,7 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
                 step,
                 max_step,
                 max_points: mp as usize,
+                spacing: axis_spacing(&c, "branches", "spacing", &mut b.spacing, (from, to))?,
             })
         }
     };
