@@ -321,3 +321,95 @@ fn bad_input_exits_2_naming_the_key_and_leaves_no_file() {
         assert!(leftovers.is_empty(), "{name}: {leftovers:?}");
     }
 }
+
+#[test]
+fn sweep_prints_a_width_only_when_both_tipping_points_are_found() {
+    // Issue 12 (cosmetic): "hysteresis width -0.000000" was printed when no grid value lay
+    // between the tipping points. Now a width is a real, positive number bounded by found
+    // tipping points, or the console, file and inspect say what is missing.
+    let dir = tempdir("width");
+    let cfg = config("emission-level-co2.toml");
+    let run = |name: &str, sets: &[&str]| {
+        let mut args = vec!["sweep", cfg.to_str().unwrap(), "-o", name];
+        let owned: Vec<String> = sets.iter().map(|s| s.to_string()).collect();
+        for s in &owned {
+            args.push("--set");
+            args.push(s);
+        }
+        let out = icefold(&dir, &args);
+        ok(&out);
+        String::from_utf8_lossy(&out.stderr).into_owned()
+    };
+    let co2 = "sweep.control=greenhouse.co2_ppm";
+    // Both tipping points inside the first 1000 ppm step: a positive width.
+    let err = run("both.nc", &[co2, "sweep.from=1", "sweep.to=1e5", "sweep.steps=101"]);
+    assert!(!err.contains("-0.000000"), "{err}");
+    let w: f64 = err
+        .split("hysteresis width ")
+        .nth(1)
+        .and_then(|s| s.split_whitespace().next())
+        .and_then(|s| s.parse().ok())
+        .unwrap_or_else(|| panic!("no width in {err}"));
+    assert!(w > 1.0 && w < 1.5, "{err}");
+    // Started on the snowball inside the bistable range: the legs still differ at 100 ppm,
+    // so the lower end is not found and no width is given.
+    let err = run(
+        "open.nc",
+        &[co2, "sweep.from=100", "sweep.to=1e4", "sweep.steps=21", "initial.temperature_c=-60"],
+    );
+    assert!(err.contains("hysteresis width not reported: the legs still differ at 100"), "{err}");
+    let r = NcReader::open(&dir.join("open.nc")).unwrap();
+    assert!(r.attr_f64("hysteresis_width").unwrap().unwrap().is_nan());
+    assert!(r.attr_str("hysteresis_missing").unwrap().is_some());
+    let out = icefold(&dir, &["inspect", "open.nc"]);
+    ok(&out);
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert!(text.contains("hysteresis: width not reported"), "{text}");
+}
+
+#[test]
+fn log_spacing_refuses_ends_at_or_below_zero_naming_the_key() {
+    // Bad input (DESIGN exit codes): ln of a non-positive end is undefined.
+    let dir = tempdir("logspacing");
+    let base = "[grid]\nbands = 12\n";
+    for (cmd, text, key) in [
+        ("sweep", format!("{base}[sweep]\ncontrol = \"forcing.constant_wm2\"\nfrom = -5\nto = 5\nspacing = \"log\"\n"), "sweep.spacing"),
+        ("branches", format!("{base}[branches]\ncontrol = \"forcing.constant_wm2\"\nfrom = 0\nto = 5\nspacing = \"log\"\n"), "branches.spacing"),
+        ("sweep", format!("{base}[sweep]\ncontrol = \"greenhouse.co2_ppm\"\nfrom = 1\nto = 5\nspacing = \"logarithmic\"\n"), "sweep.spacing"),
+    ] {
+        std::fs::write(dir.join("bad.toml"), text).unwrap();
+        let out = icefold(&dir, &[cmd, "bad.toml", "-o", "out.nc"]);
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(2), "{err}");
+        assert!(err.contains(key) && err.contains("\"linear\""), "{err}");
+        assert!(!dir.join("out.nc").exists());
+    }
+    // Log spacing works for branches too and is recorded on the control variable.
+    let cfg = config("emission-level-co2.toml");
+    let out = icefold(
+        &dir,
+        &[
+            "branches",
+            cfg.to_str().unwrap(),
+            "--set",
+            "branches.control=greenhouse.co2_ppm",
+            "--set",
+            "branches.from=0.001",
+            "--set",
+            "branches.to=1e6",
+            "--set",
+            "branches.spacing=\"log\"",
+            "-o",
+            "br.nc",
+        ],
+    );
+    ok(&out);
+    let r = NcReader::open(&dir.join("br.nc")).unwrap();
+    assert_eq!(r.attr_str("control_spacing").unwrap().as_deref(), Some("log"));
+    assert_eq!(r.var_attr_str("control", "spacing").unwrap().as_deref(), Some("log"));
+    let folds = r.read_f64("fold_control").unwrap();
+    // The four folds of the CO2 curve (tests/tipping.rs), mapped back from ln(ppm).
+    for f in [0.0603, 3.188, 4.418, 1805.5] {
+        assert!(folds.iter().any(|g| (g / f - 1.0).abs() < 1e-3), "{f} not in {folds:?}");
+    }
+}
