@@ -413,3 +413,54 @@ fn log_spacing_refuses_ends_at_or_below_zero_naming_the_key() {
         assert!(folds.iter().any(|g| (g / f - 1.0).abs() < 1e-3), "{f} not in {folds:?}");
     }
 }
+
+#[test]
+fn log_spaced_regime_maps_find_the_same_folds_and_record_their_axes() {
+    // Continuing in ln(CO2) instead of CO2 changes the steps, not the folds: the rows at the
+    // range ends (the same values in both maps) have the same folds to the continuation's fold
+    // tolerance (1e-7 relative in its variable; 1e-5 allows for the differently placed steps).
+    let dir = tempdir("regimeslog");
+    let cfg = config("emission-level-co2.toml");
+    let map = |name: &str, spacing: &str| {
+        let sets = [
+            "regimes.control=greenhouse.co2_ppm".to_string(),
+            "regimes.from=0.01".into(),
+            "regimes.to=1e4".into(),
+            "regimes.columns=21".into(),
+            "regimes.row_control=transport.diffusivity".into(),
+            "regimes.row_from=0.3".into(),
+            "regimes.row_to=0.9".into(),
+            "regimes.rows=3".into(),
+            format!("regimes.spacing=\"{spacing}\""),
+            format!("regimes.row_spacing=\"{spacing}\""),
+        ];
+        let mut args = vec!["regimes", cfg.to_str().unwrap(), "-o", name];
+        for s in &sets {
+            args.push("--set");
+            args.push(s);
+        }
+        ok(&icefold(&dir, &args));
+        NcReader::open(&dir.join(name)).unwrap()
+    };
+    let (lin, log) = (map("lin.nc", "linear"), map("log.nc", "log"));
+    assert_eq!(log.var_attr_str("p1", "spacing").unwrap().as_deref(), Some("log"));
+    assert_eq!(log.var_attr_str("p2", "spacing").unwrap().as_deref(), Some("log"));
+    assert_eq!(lin.var_attr_str("p1", "spacing").unwrap().as_deref(), Some("linear"));
+    let p2 = log.read_f64("p2").unwrap();
+    assert!((p2[1] - (0.3f64 * 0.9).sqrt()).abs() < 1e-12, "{p2:?}");
+    let p1 = log.read_f64("p1").unwrap();
+    assert!((p1[1] / p1[0] - 10f64.powf(0.3)).abs() < 1e-9, "{p1:?}");
+    let folds = |r: &NcReader, row: f64| -> Vec<f64> {
+        let (c, y) = (r.read_f64("fold_p1").unwrap(), r.read_f64("fold_p2").unwrap());
+        let mut v: Vec<f64> = c.iter().zip(&y).filter(|(_, b)| (**b - row).abs() < 1e-12).map(|(a, _)| *a).collect();
+        v.sort_by(f64::total_cmp);
+        v
+    };
+    for row in [0.3, 0.9] {
+        let (a, b) = (folds(&lin, row), folds(&log, row));
+        assert_eq!(a.len(), b.len(), "row {row}: {a:?} vs {b:?}");
+        for (x, y) in a.iter().zip(&b) {
+            assert!((x / y - 1.0).abs() < 1e-5, "row {row}: {a:?} vs {b:?}");
+        }
+    }
+}

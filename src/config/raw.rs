@@ -402,4 +402,8 @@ pub struct RawRegimes {
     pub max_step: Option<f64>,
     /// Point limit per branch.
     pub max_points: Option<i64>,
+    /// Spacing along `control`: "linear" or "log".
+    pub spacing: Option<String>,
+    /// Spacing of the rows' values of `row_control`: "linear" or "log".
+    pub row_spacing: Option<String>,
 }

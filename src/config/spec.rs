@@ -339,6 +339,10 @@ pub struct RegimesSpec {
     pub max_step: f64,
     /// Point limit per branch.
     pub max_points: usize,
+    /// Spacing along `control` (columns, continuation in the control or its logarithm).
+    pub spacing: AxisSpacing,
+    /// Spacing of the rows' values of `row_control`.
+    pub row_spacing: AxisSpacing,
 }
 
 impl RegimesSpec {
@@ -351,25 +355,19 @@ impl RegimesSpec {
             step: self.step,
             max_step: self.max_step,
             max_points: self.max_points,
-            spacing: AxisSpacing::Linear,
+            spacing: self.spacing,
         }
     }
 
-    /// Values of `control` at the cell centres: `columns` evenly spaced from `from` to `to`.
+    /// Values of `control` at the cell centres: `columns` evenly spaced (in the control or its
+    /// logarithm) from `from` to `to`.
     pub fn column_values(&self) -> Vec<f64> {
-        spaced(self.from, self.to, self.columns)
+        self.spacing.values(self.from, self.to, self.columns)
     }
 
-    /// Values of `row_control`: `rows` evenly spaced from `row_from` to `row_to`.
+    /// Values of `row_control`: `rows` evenly spaced (in the key or its logarithm) from
+    /// `row_from` to `row_to`.
     pub fn row_values(&self) -> Vec<f64> {
-        spaced(self.row_from, self.row_to, self.rows)
+        self.row_spacing.values(self.row_from, self.row_to, self.rows)
     }
-}
-
-/// `n` evenly spaced values from `a` to `b` (both included; `a` alone when `n` is 1).
-fn spaced(a: f64, b: f64, n: usize) -> Vec<f64> {
-    if n <= 1 {
-        return vec![a];
-    }
-    (0..n).map(|i| a + (b - a) * i as f64 / (n - 1) as f64).collect()
 }

@@ -1125,6 +1125,8 @@ fn regimes_spec(
     let max_points = count("regimes.max_points", &mut r.max_points, 5000, 10, 1_000_000)?;
     let step = c.num("regimes.step", &mut r.step, 0.02, Range::Above(0.0))?;
     let max_step = c.num("regimes.max_step", &mut r.max_step, 0.1, Range::Above(0.0))?;
+    let spacing = axis_spacing(c, "regimes", "spacing", &mut r.spacing, (from, to))?;
+    let row_spacing = axis_spacing(c, "regimes", "row_spacing", &mut r.row_spacing, (row_from, row_to))?;
     Ok(Some(crate::config::spec::RegimesSpec {
         control,
         from,
@@ -1137,5 +1139,7 @@ fn regimes_spec(
         step,
         max_step,
         max_points,
+        spacing,
+        row_spacing,
     }))
 }
