@@ -342,7 +342,10 @@ fn sweep_prints_a_width_only_when_both_tipping_points_are_found() {
     };
     let co2 = "sweep.control=greenhouse.co2_ppm";
     // Both tipping points inside the first 1000 ppm step: a positive width.
-    let err = run("both.nc", &[co2, "sweep.from=1", "sweep.to=1e5", "sweep.steps=101"]);
+    let err = run(
+        "both.nc",
+        &[co2, "sweep.from=1", "sweep.to=1e5", "sweep.steps=101"],
+    );
     assert!(!err.contains("-0.000000"), "{err}");
     let w: f64 = err
         .split("hysteresis width ")
@@ -355,9 +358,18 @@ fn sweep_prints_a_width_only_when_both_tipping_points_are_found() {
     // so the lower end is not found and no width is given.
     let err = run(
         "open.nc",
-        &[co2, "sweep.from=100", "sweep.to=1e4", "sweep.steps=21", "initial.temperature_c=-60"],
+        &[
+            co2,
+            "sweep.from=100",
+            "sweep.to=1e4",
+            "sweep.steps=21",
+            "initial.temperature_c=-60",
+        ],
     );
-    assert!(err.contains("hysteresis width not reported: the legs still differ at 100"), "{err}");
+    assert!(
+        err.contains("hysteresis width not reported: the legs still differ at 100"),
+        "{err}"
+    );
     let r = NcReader::open(&dir.join("open.nc")).unwrap();
     assert!(r.attr_f64("hysteresis_width").unwrap().unwrap().is_nan());
     assert!(r.attr_str("hysteresis_missing").unwrap().is_some());
@@ -406,11 +418,17 @@ fn log_spacing_refuses_ends_at_or_below_zero_naming_the_key() {
     ok(&out);
     let r = NcReader::open(&dir.join("br.nc")).unwrap();
     assert_eq!(r.attr_str("control_spacing").unwrap().as_deref(), Some("log"));
-    assert_eq!(r.var_attr_str("control", "spacing").unwrap().as_deref(), Some("log"));
+    assert_eq!(
+        r.var_attr_str("control", "spacing").unwrap().as_deref(),
+        Some("log")
+    );
     let folds = r.read_f64("fold_control").unwrap();
     // The four folds of the CO2 curve (tests/tipping.rs), mapped back from ln(ppm).
     for f in [0.0603, 3.188, 4.418, 1805.5] {
-        assert!(folds.iter().any(|g| (g / f - 1.0).abs() < 1e-3), "{f} not in {folds:?}");
+        assert!(
+            folds.iter().any(|g| (g / f - 1.0).abs() < 1e-3),
+            "{f} not in {folds:?}"
+        );
     }
 }
 
@@ -445,14 +463,22 @@ fn log_spaced_regime_maps_find_the_same_folds_and_record_their_axes() {
     let (lin, log) = (map("lin.nc", "linear"), map("log.nc", "log"));
     assert_eq!(log.var_attr_str("p1", "spacing").unwrap().as_deref(), Some("log"));
     assert_eq!(log.var_attr_str("p2", "spacing").unwrap().as_deref(), Some("log"));
-    assert_eq!(lin.var_attr_str("p1", "spacing").unwrap().as_deref(), Some("linear"));
+    assert_eq!(
+        lin.var_attr_str("p1", "spacing").unwrap().as_deref(),
+        Some("linear")
+    );
     let p2 = log.read_f64("p2").unwrap();
     assert!((p2[1] - (0.3f64 * 0.9).sqrt()).abs() < 1e-12, "{p2:?}");
     let p1 = log.read_f64("p1").unwrap();
     assert!((p1[1] / p1[0] - 10f64.powf(0.3)).abs() < 1e-9, "{p1:?}");
     let folds = |r: &NcReader, row: f64| -> Vec<f64> {
         let (c, y) = (r.read_f64("fold_p1").unwrap(), r.read_f64("fold_p2").unwrap());
-        let mut v: Vec<f64> = c.iter().zip(&y).filter(|(_, b)| (**b - row).abs() < 1e-12).map(|(a, _)| *a).collect();
+        let mut v: Vec<f64> = c
+            .iter()
+            .zip(&y)
+            .filter(|(_, b)| (**b - row).abs() < 1e-12)
+            .map(|(a, _)| *a)
+            .collect();
         v.sort_by(f64::total_cmp);
         v
     };

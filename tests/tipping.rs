@@ -537,18 +537,53 @@ fn co2_sweep(from: f64, to: f64, steps: usize, spacing: &str) -> (Loaded, SweepR
 /// bracket `rel`; the midpoint is within half of it of any point inside) of a fold; the count
 /// per direction is as expected, and the width is the stretch between the outermost tipping
 /// points of the two legs (one interval of disagreement in each of these sweeps).
-fn assert_tipping_on_folds(what: &str, sweep: &SweepResult, folds: &[f64], rel: f64, ups: usize, downs: usize) {
+fn assert_tipping_on_folds(
+    what: &str,
+    sweep: &SweepResult,
+    folds: &[f64],
+    rel: f64,
+    ups: usize,
+    downs: usize,
+) {
     for t in &sweep.tipping {
         assert!(t.resolved, "{what}: unresolved {t:?}");
         let best = nearest_relative(t.control, folds);
-        assert!(best <= rel, "{what}: tipping point {} is {best:e} from a fold ({folds:?})", t.control);
+        assert!(
+            best <= rel,
+            "{what}: tipping point {} is {best:e} from a fold ({folds:?})",
+            t.control
+        );
     }
-    let up: Vec<f64> = sweep.tipping.iter().filter(|t| t.direction > 0).map(|t| t.control).collect();
-    let down: Vec<f64> = sweep.tipping.iter().filter(|t| t.direction < 0).map(|t| t.control).collect();
-    assert_eq!((up.len(), down.len()), (ups, downs), "{what}: {:?}", sweep.tipping);
-    let width = up.iter().copied().fold(f64::NEG_INFINITY, f64::max) - down.iter().copied().fold(f64::INFINITY, f64::min);
-    assert!(sweep.hysteresis_missing.is_none(), "{what}: {:?}", sweep.hysteresis_missing);
-    assert!(width > 0.0 && (sweep.hysteresis_width / width - 1.0).abs() < 1e-9, "{what}: width {} vs {width}", sweep.hysteresis_width);
+    let up: Vec<f64> = sweep
+        .tipping
+        .iter()
+        .filter(|t| t.direction > 0)
+        .map(|t| t.control)
+        .collect();
+    let down: Vec<f64> = sweep
+        .tipping
+        .iter()
+        .filter(|t| t.direction < 0)
+        .map(|t| t.control)
+        .collect();
+    assert_eq!(
+        (up.len(), down.len()),
+        (ups, downs),
+        "{what}: {:?}",
+        sweep.tipping
+    );
+    let width = up.iter().copied().fold(f64::NEG_INFINITY, f64::max)
+        - down.iter().copied().fold(f64::INFINITY, f64::min);
+    assert!(
+        sweep.hysteresis_missing.is_none(),
+        "{what}: {:?}",
+        sweep.hysteresis_missing
+    );
+    assert!(
+        width > 0.0 && (sweep.hysteresis_width / width - 1.0).abs() < 1e-9,
+        "{what}: width {} vs {width}",
+        sweep.hysteresis_width
+    );
 }
 
 #[test]
@@ -568,7 +603,10 @@ fn coarse_co2_sweeps_across_folds_find_the_snowball_onset_and_a_positive_width()
     let onset = s.tipping.iter().map(|t| t.control).fold(f64::INFINITY, f64::min);
     // The snowball onset is the lowest fold of the large-cap branch.
     let lowest = folds.iter().copied().fold(f64::INFINITY, f64::min);
-    assert!((onset / lowest - 1.0).abs() <= rel && (onset - 0.0603).abs() < 1e-4, "onset {onset} vs {lowest}");
+    assert!(
+        (onset / lowest - 1.0).abs() <= rel && (onset - 0.0603).abs() < 1e-4,
+        "onset {onset} vs {lowest}"
+    );
 }
 
 #[test]
@@ -607,7 +645,12 @@ fn log_spaced_sweep_values_are_equal_steps_in_the_logarithm() {
     // Definition of log spacing (common practice): ln of the values is evenly spaced, the ends
     // exactly as given.
     let (_, s) = co2_sweep(0.01, 1e4, 7, "log");
-    let up: Vec<f64> = s.steps.iter().filter(|t| t.direction > 0).map(|t| t.control).collect();
+    let up: Vec<f64> = s
+        .steps
+        .iter()
+        .filter(|t| t.direction > 0)
+        .map(|t| t.control)
+        .collect();
     assert_eq!(up.first(), Some(&0.01));
     assert_eq!(up.last(), Some(&1e4));
     for (k, v) in up.iter().enumerate() {

@@ -277,7 +277,10 @@ fn control_summary(r: &NcReader, kind: &str, s: &mut String) -> Result<(), Error
     if kind == "sweep" {
         let tc = r.read_f64("tipping_control")?;
         let td = r.read_f64("tipping_direction")?;
-        let (lo, hi) = (r.read_f64("tipping_bracket_low")?, r.read_f64("tipping_bracket_high")?);
+        let (lo, hi) = (
+            r.read_f64("tipping_bracket_low")?,
+            r.read_f64("tipping_bracket_high")?,
+        );
         let list: Vec<String> = tc
             .iter()
             .zip(&td)

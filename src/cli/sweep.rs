@@ -43,7 +43,7 @@ pub fn main(
         hysteresis_text(
             r.hysteresis_width,
             r.hysteresis_missing.as_deref(),
-            control_units(&cfg.spec.sweep.as_ref().map_or("", |s| s.control.as_str()))
+            control_units(cfg.spec.sweep.as_ref().map_or("", |s| s.control.as_str()))
         )
     );
     if r.unsettled_steps > 0 {

@@ -1126,7 +1126,13 @@ fn regimes_spec(
     let step = c.num("regimes.step", &mut r.step, 0.02, Range::Above(0.0))?;
     let max_step = c.num("regimes.max_step", &mut r.max_step, 0.1, Range::Above(0.0))?;
     let spacing = axis_spacing(c, "regimes", "spacing", &mut r.spacing, (from, to))?;
-    let row_spacing = axis_spacing(c, "regimes", "row_spacing", &mut r.row_spacing, (row_from, row_to))?;
+    let row_spacing = axis_spacing(
+        c,
+        "regimes",
+        "row_spacing",
+        &mut r.row_spacing,
+        (row_from, row_to),
+    )?;
     Ok(Some(crate::config::spec::RegimesSpec {
         control,
         from,

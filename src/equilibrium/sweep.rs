@@ -743,7 +743,9 @@ fn hysteresis(
                 Bound::RangeEnd => format!(
                     "the legs still differ at {v}, an end of the swept range (widen sweep.from/sweep.to)"
                 ),
-                Bound::Unresolved => format!("a jump near {v} could not be placed (unresolved tipping point)"),
+                Bound::Unresolved => {
+                    format!("a jump near {v} could not be placed (unresolved tipping point)")
+                }
             };
             missing.get_or_insert(why);
         }

@@ -7,12 +7,12 @@ use super::run::{interrupted, remove_restart, restart_error, Checkpointing};
 use super::Ending;
 use crate::checkpoint::{self, Restart, RestartError};
 use crate::config::spec::{AxisSpacing, BranchesSpec};
-use crate::equilibrium::control::Controlled;
 use crate::config::{ConfigError, Loaded};
 use crate::equilibrium::branches::{all_branches_from, BranchSet, BranchesProgress, BranchesRun};
 use crate::equilibrium::continuation::{
     Branch, BranchPoint, ContinuationError, ContinuationOptions, FoldPoint, LegEnd,
 };
+use crate::equilibrium::control::Controlled;
 use crate::equilibrium::stability::SpectrumMethod;
 use crate::error::Error;
 use crate::integrate::SolverError;

@@ -235,7 +235,10 @@ fn save_progress(p: &SweepProgress, config_text: &str) -> Restart {
     r.put_u64("sweep.tipping.i", &ti);
     r.put_f64(
         "sweep.tipping.after_state",
-        &p.tipping.iter().flat_map(|t| t.after_state.clone()).collect::<Vec<_>>(),
+        &p.tipping
+            .iter()
+            .flat_map(|t| t.after_state.clone())
+            .collect::<Vec<_>>(),
     );
     r.put_u64(
         "sweep.counts",
