@@ -1063,6 +1063,10 @@ fn axis_spacing(
     (from, to): (f64, f64),
 ) -> Result<AxisSpacing, ConfigError> {
     let name = format!("{section}.{key}");
+    // The default is not written back, so configs without the key resolve as before.
+    if slot.is_none() {
+        return Ok(AxisSpacing::Linear);
+    }
     match c.choice(&name, slot, "linear", &["linear", "log"])? {
         "log" => {
             if !(from > 0.0 && to > 0.0) {
