@@ -321,3 +321,172 @@ fn bad_input_exits_2_naming_the_key_and_leaves_no_file() {
         assert!(leftovers.is_empty(), "{name}: {leftovers:?}");
     }
 }
+
+#[test]
+fn sweep_prints_a_width_only_when_both_tipping_points_are_found() {
+    // Issue 12 (cosmetic): "hysteresis width -0.000000" was printed when no grid value lay
+    // between the tipping points. Now a width is a real, positive number bounded by found
+    // tipping points, or the console, file and inspect say what is missing.
+    let dir = tempdir("width");
+    let cfg = config("emission-level-co2.toml");
+    let run = |name: &str, sets: &[&str]| {
+        let mut args = vec!["sweep", cfg.to_str().unwrap(), "-o", name];
+        let owned: Vec<String> = sets.iter().map(|s| s.to_string()).collect();
+        for s in &owned {
+            args.push("--set");
+            args.push(s);
+        }
+        let out = icefold(&dir, &args);
+        ok(&out);
+        String::from_utf8_lossy(&out.stderr).into_owned()
+    };
+    let co2 = "sweep.control=greenhouse.co2_ppm";
+    // Both tipping points inside the first 1000 ppm step: a positive width.
+    let err = run(
+        "both.nc",
+        &[co2, "sweep.from=1", "sweep.to=1e5", "sweep.steps=101"],
+    );
+    assert!(!err.contains("-0.000000"), "{err}");
+    let w: f64 = err
+        .split("hysteresis width ")
+        .nth(1)
+        .and_then(|s| s.split_whitespace().next())
+        .and_then(|s| s.parse().ok())
+        .unwrap_or_else(|| panic!("no width in {err}"));
+    assert!(w > 1.0 && w < 1.5, "{err}");
+    // Started on the snowball inside the bistable range: the legs still differ at 100 ppm,
+    // so the lower end is not found and no width is given.
+    let err = run(
+        "open.nc",
+        &[
+            co2,
+            "sweep.from=100",
+            "sweep.to=1e4",
+            "sweep.steps=21",
+            "initial.temperature_c=-60",
+        ],
+    );
+    assert!(
+        err.contains("hysteresis width not reported: the legs still differ at 100"),
+        "{err}"
+    );
+    let r = NcReader::open(&dir.join("open.nc")).unwrap();
+    assert!(r.attr_f64("hysteresis_width").unwrap().unwrap().is_nan());
+    assert!(r.attr_str("hysteresis_missing").unwrap().is_some());
+    let out = icefold(&dir, &["inspect", "open.nc"]);
+    ok(&out);
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert!(text.contains("hysteresis: width not reported"), "{text}");
+}
+
+#[test]
+fn log_spacing_refuses_ends_at_or_below_zero_naming_the_key() {
+    // Bad input (DESIGN exit codes): ln of a non-positive end is undefined.
+    let dir = tempdir("logspacing");
+    let base = "[grid]\nbands = 12\n";
+    for (cmd, text, key) in [
+        ("sweep", format!("{base}[sweep]\ncontrol = \"forcing.constant_wm2\"\nfrom = -5\nto = 5\nspacing = \"log\"\n"), "sweep.spacing"),
+        ("branches", format!("{base}[branches]\ncontrol = \"forcing.constant_wm2\"\nfrom = 0\nto = 5\nspacing = \"log\"\n"), "branches.spacing"),
+        ("sweep", format!("{base}[sweep]\ncontrol = \"greenhouse.co2_ppm\"\nfrom = 1\nto = 5\nspacing = \"logarithmic\"\n"), "sweep.spacing"),
+    ] {
+        std::fs::write(dir.join("bad.toml"), text).unwrap();
+        let out = icefold(&dir, &[cmd, "bad.toml", "-o", "out.nc"]);
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(2), "{err}");
+        assert!(err.contains(key) && err.contains("\"linear\""), "{err}");
+        assert!(!dir.join("out.nc").exists());
+    }
+    // Log spacing works for branches too and is recorded on the control variable.
+    let cfg = config("emission-level-co2.toml");
+    let out = icefold(
+        &dir,
+        &[
+            "branches",
+            cfg.to_str().unwrap(),
+            "--set",
+            "branches.control=greenhouse.co2_ppm",
+            "--set",
+            "branches.from=0.001",
+            "--set",
+            "branches.to=1e6",
+            "--set",
+            "branches.spacing=\"log\"",
+            "-o",
+            "br.nc",
+        ],
+    );
+    ok(&out);
+    let r = NcReader::open(&dir.join("br.nc")).unwrap();
+    assert_eq!(r.attr_str("control_spacing").unwrap().as_deref(), Some("log"));
+    assert_eq!(
+        r.var_attr_str("control", "spacing").unwrap().as_deref(),
+        Some("log")
+    );
+    let folds = r.read_f64("fold_control").unwrap();
+    // The four folds of the CO2 curve (tests/tipping.rs), mapped back from ln(ppm).
+    for f in [0.0603, 3.188, 4.418, 1805.5] {
+        assert!(
+            folds.iter().any(|g| (g / f - 1.0).abs() < 1e-3),
+            "{f} not in {folds:?}"
+        );
+    }
+}
+
+#[test]
+fn log_spaced_regime_maps_find_the_same_folds_and_record_their_axes() {
+    // Continuing in ln(CO2) instead of CO2 changes the steps, not the folds: the rows at the
+    // range ends (the same values in both maps) have the same folds to the continuation's fold
+    // tolerance (1e-7 relative in its variable; 1e-5 allows for the differently placed steps).
+    let dir = tempdir("regimeslog");
+    let cfg = config("emission-level-co2.toml");
+    let map = |name: &str, spacing: &str| {
+        let sets = [
+            "regimes.control=greenhouse.co2_ppm".to_string(),
+            "regimes.from=0.01".into(),
+            "regimes.to=1e4".into(),
+            "regimes.columns=21".into(),
+            "regimes.row_control=transport.diffusivity".into(),
+            "regimes.row_from=0.3".into(),
+            "regimes.row_to=0.9".into(),
+            "regimes.rows=3".into(),
+            format!("regimes.spacing=\"{spacing}\""),
+            format!("regimes.row_spacing=\"{spacing}\""),
+        ];
+        let mut args = vec!["regimes", cfg.to_str().unwrap(), "-o", name];
+        for s in &sets {
+            args.push("--set");
+            args.push(s);
+        }
+        ok(&icefold(&dir, &args));
+        NcReader::open(&dir.join(name)).unwrap()
+    };
+    let (lin, log) = (map("lin.nc", "linear"), map("log.nc", "log"));
+    assert_eq!(log.var_attr_str("p1", "spacing").unwrap().as_deref(), Some("log"));
+    assert_eq!(log.var_attr_str("p2", "spacing").unwrap().as_deref(), Some("log"));
+    assert_eq!(
+        lin.var_attr_str("p1", "spacing").unwrap().as_deref(),
+        Some("linear")
+    );
+    let p2 = log.read_f64("p2").unwrap();
+    assert!((p2[1] - (0.3f64 * 0.9).sqrt()).abs() < 1e-12, "{p2:?}");
+    let p1 = log.read_f64("p1").unwrap();
+    assert!((p1[1] / p1[0] - 10f64.powf(0.3)).abs() < 1e-9, "{p1:?}");
+    let folds = |r: &NcReader, row: f64| -> Vec<f64> {
+        let (c, y) = (r.read_f64("fold_p1").unwrap(), r.read_f64("fold_p2").unwrap());
+        let mut v: Vec<f64> = c
+            .iter()
+            .zip(&y)
+            .filter(|(_, b)| (**b - row).abs() < 1e-12)
+            .map(|(a, _)| *a)
+            .collect();
+        v.sort_by(f64::total_cmp);
+        v
+    };
+    for row in [0.3, 0.9] {
+        let (a, b) = (folds(&lin, row), folds(&log, row));
+        assert_eq!(a.len(), b.len(), "row {row}: {a:?} vs {b:?}");
+        for (x, y) in a.iter().zip(&b) {
+            assert!((x / y - 1.0).abs() < 1e-5, "row {row}: {a:?} vs {b:?}");
+        }
+    }
+}

@@ -619,3 +619,156 @@ fn co2_branches_have_the_snowball_loop() {
         assert!(best < 5e-5, "CO2 fold expected at {e} ppm, nearest {got:?}");
     }
 }
+
+/// Control values of every fold of the emission-level CO2 curve, by continuation over
+/// 0.001..1e6 ppm with steps fine enough (max_step 0.002) to resolve the sub-band wiggles of
+/// the step-albedo curve near the snowball onset (the default steps over them: issue 12, 4).
+fn emission_level_co2_folds() -> Vec<f64> {
+    let cfg = load(&config_text("emission-level-co2.toml"), &[]);
+    let fam = Controlled::new(&cfg, "greenhouse.co2_ppm").unwrap();
+    let set = all_branches(&fam, options(0.001, 1e6, 0.002)).unwrap();
+    set.branches
+        .iter()
+        .flat_map(|b| b.folds.iter().map(|f| f.control))
+        .collect()
+}
+
+/// The sweep of emission-level-co2.toml in CO2 from `from` to `to` in `steps` values.
+fn co2_sweep(from: f64, to: f64, steps: usize, spacing: &str) -> (Loaded, SweepResult) {
+    let sets = [
+        "sweep.control=greenhouse.co2_ppm".to_string(),
+        format!("sweep.from={from}"),
+        format!("sweep.to={to}"),
+        format!("sweep.steps={steps}"),
+        format!("sweep.spacing=\"{spacing}\""),
+    ];
+    let sets: Vec<&str> = sets.iter().map(|s| s.as_str()).collect();
+    let cfg = load(&config_text("emission-level-co2.toml"), &sets);
+    let sweep = icefold::jobs::sweep::run_sweep(&cfg, false).unwrap();
+    (cfg, sweep)
+}
+
+/// Every tipping point is resolved and within the sweep's refinement tolerance (relative
+/// bracket `rel`; the midpoint is within half of it of any point inside) of a fold; the count
+/// per direction is as expected, and the width is the stretch between the outermost tipping
+/// points of the two legs (one interval of disagreement in each of these sweeps).
+fn assert_tipping_on_folds(
+    what: &str,
+    sweep: &SweepResult,
+    folds: &[f64],
+    rel: f64,
+    ups: usize,
+    downs: usize,
+) {
+    for t in &sweep.tipping {
+        assert!(t.resolved, "{what}: unresolved {t:?}");
+        let best = nearest_relative(t.control, folds);
+        assert!(
+            best <= rel,
+            "{what}: tipping point {} is {best:e} from a fold ({folds:?})",
+            t.control
+        );
+    }
+    let up: Vec<f64> = sweep
+        .tipping
+        .iter()
+        .filter(|t| t.direction > 0)
+        .map(|t| t.control)
+        .collect();
+    let down: Vec<f64> = sweep
+        .tipping
+        .iter()
+        .filter(|t| t.direction < 0)
+        .map(|t| t.control)
+        .collect();
+    assert_eq!(
+        (up.len(), down.len()),
+        (ups, downs),
+        "{what}: {:?}",
+        sweep.tipping
+    );
+    let width = up.iter().copied().fold(f64::NEG_INFINITY, f64::max)
+        - down.iter().copied().fold(f64::INFINITY, f64::min);
+    assert!(
+        sweep.hysteresis_missing.is_none(),
+        "{what}: {:?}",
+        sweep.hysteresis_missing
+    );
+    assert!(
+        width > 0.0 && (sweep.hysteresis_width / width - 1.0).abs() < 1e-9,
+        "{what}: width {} vs {width}",
+        sweep.hysteresis_width
+    );
+}
+
+#[test]
+fn coarse_co2_sweeps_across_folds_find_the_snowball_onset_and_a_positive_width() {
+    // The two reproductions of issue 12 (defect 3), consistency with the continuation (common
+    // practice). 1 to 1e5 ppm in 101 linear steps (1000 ppm apart): the small-cap fold (4.42
+    // ppm, up) and the end of the ice-free branch (3.19 ppm, down) lie inside the first step;
+    // the old sweep missed the first and printed width -0. 0.01 to 1e4 ppm: the last down step
+    // (100 -> 0.01 ppm) holds 3.19 ppm and the snowball onset (0.0603 ppm); the old sweep
+    // reported the onset at 3.188 ppm and a width of 1802 ppm.
+    let folds = emission_level_co2_folds();
+    let (cfg, s) = co2_sweep(1.0, 1e5, 101, "linear");
+    let rel = cfg.spec.sweep.as_ref().unwrap().refine_relative;
+    assert_tipping_on_folds("1..1e5", &s, &folds, rel, 1, 1);
+    let (_, s) = co2_sweep(0.01, 1e4, 101, "linear");
+    assert_tipping_on_folds("0.01..1e4", &s, &folds, rel, 1, 2);
+    let onset = s.tipping.iter().map(|t| t.control).fold(f64::INFINITY, f64::min);
+    // The snowball onset is the lowest fold of the large-cap branch.
+    let lowest = folds.iter().copied().fold(f64::INFINITY, f64::min);
+    assert!(
+        (onset / lowest - 1.0).abs() <= rel && (onset - 0.0603).abs() < 1e-4,
+        "onset {onset} vs {lowest}"
+    );
+}
+
+#[test]
+fn sweep_tipping_points_agree_with_the_folds_at_every_step_count() {
+    // Consistency with the continuation (common practice), at 11, 21, 51 and 101 values per
+    // direction, linear and log spacing: CO2 in the emission-level model (two ranges) and the
+    // solar constant in sweep-solar.toml.
+    let folds = emission_level_co2_folds();
+    let sol = load(&config_text("sweep-solar.toml"), &[]);
+    let sfam = Controlled::new(&sol, "insolation.solar_constant").unwrap();
+    let sfolds: Vec<f64> = all_branches(&sfam, options(1100.0, 1900.0, 0.002))
+        .unwrap()
+        .branches
+        .iter()
+        .flat_map(|b| b.folds.iter().map(|f| f.control))
+        .collect();
+    for n in [11, 21, 51, 101] {
+        for spacing in ["linear", "log"] {
+            let (cfg, s) = co2_sweep(0.01, 1e4, n, spacing);
+            let rel = cfg.spec.sweep.as_ref().unwrap().refine_relative;
+            assert_tipping_on_folds(&format!("0.01..1e4 n={n} {spacing}"), &s, &folds, rel, 1, 2);
+            let (_, s) = co2_sweep(1.0, 1e5, n, spacing);
+            assert_tipping_on_folds(&format!("1..1e5 n={n} {spacing}"), &s, &folds, rel, 1, 1);
+            let sets = [format!("sweep.steps={n}"), format!("sweep.spacing=\"{spacing}\"")];
+            let sets: Vec<&str> = sets.iter().map(|s| s.as_str()).collect();
+            let cfg = load(&config_text("sweep-solar.toml"), &sets);
+            let s = icefold::jobs::sweep::run_sweep(&cfg, false).unwrap();
+            let rel = cfg.spec.sweep.as_ref().unwrap().refine_relative;
+            assert_tipping_on_folds(&format!("solar n={n} {spacing}"), &s, &sfolds, rel, 1, 2);
+        }
+    }
+}
+
+#[test]
+fn log_spaced_sweep_values_are_equal_steps_in_the_logarithm() {
+    // Definition of log spacing (common practice): ln of the values is evenly spaced, the ends
+    // exactly as given.
+    let (_, s) = co2_sweep(0.01, 1e4, 7, "log");
+    let up: Vec<f64> = s
+        .steps
+        .iter()
+        .filter(|t| t.direction > 0)
+        .map(|t| t.control)
+        .collect();
+    assert_eq!(up.first(), Some(&0.01));
+    assert_eq!(up.last(), Some(&1e4));
+    for (k, v) in up.iter().enumerate() {
+        assert!((v.log10() - (-2.0 + k as f64)).abs() < 1e-12, "{up:?}");
+    }
+}

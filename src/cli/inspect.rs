@@ -296,10 +296,22 @@ fn control_summary(r: &NcReader, kind: &str, s: &mut String) -> Result<(), Error
     if kind == "sweep" {
         let tc = r.read_f64("tipping_control")?;
         let td = r.read_f64("tipping_direction")?;
+        let (lo, hi) = (
+            r.read_f64("tipping_bracket_low")?,
+            r.read_f64("tipping_bracket_high")?,
+        );
         let list: Vec<String> = tc
             .iter()
             .zip(&td)
-            .map(|(c, d)| format!("{c:.6} ({})", if *d > 0.0 { "rising" } else { "falling" }))
+            .enumerate()
+            .map(|(k, (c, d))| {
+                let way = if *d > 0.0 { "rising" } else { "falling" };
+                if c.is_finite() {
+                    format!("{c:.6} ({way})")
+                } else {
+                    format!("unresolved between {:.6} and {:.6} ({way})", lo[k], hi[k])
+                }
+            })
             .collect();
         let _ = writeln!(
             s,
@@ -311,7 +323,12 @@ fn control_summary(r: &NcReader, kind: &str, s: &mut String) -> Result<(), Error
             }
         );
         if let Some(w) = r.attr_f64("hysteresis_width")? {
-            let _ = writeln!(s, "hysteresis: width {w:.6} {units}");
+            let missing = r.attr_str("hysteresis_missing")?;
+            let text = crate::equilibrium::sweep::hysteresis_text(w, missing.as_deref(), &units);
+            let _ = writeln!(s, "hysteresis: {}", text.trim_start_matches("hysteresis "));
+        }
+        if let Some(sp) = r.attr_str("control_spacing")? {
+            let _ = writeln!(s, "spacing:    {sp}");
         }
     } else {
         let fc = r.read_f64("fold_control")?;

@@ -1,6 +1,8 @@
 //! `icefold sweep CONFIG`: two-way quasi-static sweep with refined tipping points.
 
 use super::{ConfigArgs, OutputArgs, ResumeArgs};
+use crate::equilibrium::control::control_units;
+use crate::equilibrium::sweep::hysteresis_text;
 use crate::error::Error;
 use crate::jobs::sweep::sweep_job;
 
@@ -19,15 +21,17 @@ pub fn main(
         .tipping
         .iter()
         .map(|t| {
-            format!(
-                "{:.6} ({})",
-                t.control,
-                if t.direction > 0 { "up" } else { "down" }
-            )
+            let way = if t.direction > 0 { "up" } else { "down" };
+            if t.resolved {
+                format!("{:.6} ({way})", t.control)
+            } else {
+                let (a, b) = (t.bracket.0.min(t.bracket.1), t.bracket.0.max(t.bracket.1));
+                format!("unresolved between {a:.6} and {b:.6} ({way})")
+            }
         })
         .collect();
     eprintln!(
-        "icefold: wrote {} ({} steps, {} time-stepped); tipping points: {}; hysteresis width {:.6}",
+        "icefold: wrote {} ({} steps, {} time-stepped); tipping points: {}; {}",
         path.display(),
         r.steps.len(),
         r.settled_steps,
@@ -36,7 +40,11 @@ pub fn main(
         } else {
             tips.join(", ")
         },
-        r.hysteresis_width
+        hysteresis_text(
+            r.hysteresis_width,
+            r.hysteresis_missing.as_deref(),
+            control_units(cfg.spec.sweep.as_ref().map_or("", |s| s.control.as_str()))
+        )
     );
     if r.unsettled_steps > 0 {
         eprintln!(

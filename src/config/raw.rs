@@ -349,6 +349,8 @@ pub struct RawSweep {
     pub settle_max_years: Option<f64>,
     /// Relative precision of the refined tipping points.
     pub refine_relative: Option<f64>,
+    /// Spacing of the values: "linear" or "log".
+    pub spacing: Option<String>,
 }
 
 /// `[branches]`.
@@ -367,6 +369,8 @@ pub struct RawBranches {
     pub max_step: Option<f64>,
     /// Point limit per branch.
     pub max_points: Option<i64>,
+    /// Continue in the control ("linear") or in its logarithm ("log").
+    pub spacing: Option<String>,
 }
 
 // ---- [regimes] (the 2-D regime map) ----
@@ -398,4 +402,8 @@ pub struct RawRegimes {
     pub max_step: Option<f64>,
     /// Point limit per branch.
     pub max_points: Option<i64>,
+    /// Spacing along `control`: "linear" or "log".
+    pub spacing: Option<String>,
+    /// Spacing of the rows' values of `row_control`: "linear" or "log".
+    pub row_spacing: Option<String>,
 }

@@ -198,6 +198,56 @@ pub struct SweepSpec {
     pub settle_max_years: f64,
     /// Relative precision of refined tipping points.
     pub refine_relative: f64,
+    /// How the values between `from` and `to` are spaced.
+    pub spacing: AxisSpacing,
+}
+
+/// How the values of a control axis are spaced (`sweep.spacing`, `branches.spacing`,
+/// `regimes.spacing`, `regimes.row_spacing`).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum AxisSpacing {
+    /// Equal steps in the control (the default).
+    #[default]
+    Linear,
+    /// Equal steps in ln(control); both ends positive.
+    Log,
+}
+
+impl AxisSpacing {
+    /// Name in configs and files (`"linear"`, `"log"`).
+    pub fn name(self) -> &'static str {
+        match self {
+            AxisSpacing::Linear => "linear",
+            AxisSpacing::Log => "log",
+        }
+    }
+
+    /// `n` values from `a` to `b` (both included; `a` alone when `n` is 1), equally spaced in
+    /// the control or in its logarithm.
+    pub fn values(self, a: f64, b: f64, n: usize) -> Vec<f64> {
+        if n <= 1 {
+            return vec![a];
+        }
+        let at = |i: usize| {
+            let f = i as f64 / (n - 1) as f64;
+            match self {
+                AxisSpacing::Linear => a + (b - a) * f,
+                // The ends exactly as given (exp(ln a) may differ from a in the last bit).
+                AxisSpacing::Log if i == 0 => a,
+                AxisSpacing::Log if i == n - 1 => b,
+                AxisSpacing::Log => (a.ln() + (b.ln() - a.ln()) * f).exp(),
+            }
+        };
+        (0..n).map(at).collect()
+    }
+
+    /// The middle of `a` and `b` on this axis (arithmetic or geometric mean).
+    pub fn midpoint(self, a: f64, b: f64) -> f64 {
+        match self {
+            AxisSpacing::Linear => 0.5 * (a + b),
+            AxisSpacing::Log => (a * b).sqrt(),
+        }
+    }
 }
 
 /// `[branches]`, validated.
@@ -215,6 +265,8 @@ pub struct BranchesSpec {
     pub max_step: f64,
     /// Point limit per branch.
     pub max_points: usize,
+    /// Continuation in the control or in its logarithm.
+    pub spacing: AxisSpacing,
 }
 
 /// The whole validated configuration.
@@ -284,6 +336,10 @@ pub struct RegimesSpec {
     pub max_step: f64,
     /// Point limit per branch.
     pub max_points: usize,
+    /// Spacing along `control` (columns, continuation in the control or its logarithm).
+    pub spacing: AxisSpacing,
+    /// Spacing of the rows' values of `row_control`.
+    pub row_spacing: AxisSpacing,
 }
 
 impl RegimesSpec {
@@ -296,24 +352,19 @@ impl RegimesSpec {
             step: self.step,
             max_step: self.max_step,
             max_points: self.max_points,
+            spacing: self.spacing,
         }
     }
 
-    /// Values of `control` at the cell centres: `columns` evenly spaced from `from` to `to`.
+    /// Values of `control` at the cell centres: `columns` evenly spaced (in the control or its
+    /// logarithm) from `from` to `to`.
     pub fn column_values(&self) -> Vec<f64> {
-        spaced(self.from, self.to, self.columns)
+        self.spacing.values(self.from, self.to, self.columns)
     }
 
-    /// Values of `row_control`: `rows` evenly spaced from `row_from` to `row_to`.
+    /// Values of `row_control`: `rows` evenly spaced (in the key or its logarithm) from
+    /// `row_from` to `row_to`.
     pub fn row_values(&self) -> Vec<f64> {
-        spaced(self.row_from, self.row_to, self.rows)
+        self.row_spacing.values(self.row_from, self.row_to, self.rows)
     }
-}
-
-/// `n` evenly spaced values from `a` to `b` (both included; `a` alone when `n` is 1).
-fn spaced(a: f64, b: f64, n: usize) -> Vec<f64> {
-    if n <= 1 {
-        return vec![a];
-    }
-    (0..n).map(|i| a + (b - a) * i as f64 / (n - 1) as f64).collect()
 }

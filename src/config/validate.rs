@@ -761,6 +761,7 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
                     1e-4,
                     Range::AboveUpTo(0.0, 0.5),
                 )?,
+                spacing: axis_spacing(&c, "sweep", "spacing", &mut s.spacing, (from, to))?,
             })
         }
     };
@@ -797,6 +798,7 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
                 step,
                 max_step,
                 max_points: mp as usize,
+                spacing: axis_spacing(&c, "branches", "spacing", &mut b.spacing, (from, to))?,
             })
         }
     };
@@ -1092,6 +1094,36 @@ fn control_key(c: &Checker, key: &str, v: &Option<String>) -> Result<String, Con
     }
 }
 
+/// `<section>.<key>`: "linear" (default) or "log"; log needs both ends of the axis above 0.
+fn axis_spacing(
+    c: &Checker,
+    section: &str,
+    key: &str,
+    slot: &mut Option<String>,
+    (from, to): (f64, f64),
+) -> Result<AxisSpacing, ConfigError> {
+    let name = format!("{section}.{key}");
+    // The default is not written back, so configs without the key resolve as before.
+    if slot.is_none() {
+        return Ok(AxisSpacing::Linear);
+    }
+    match c.choice(&name, slot, "linear", &["linear", "log"])? {
+        "log" => {
+            if !(from > 0.0 && to > 0.0) {
+                return Err(c.range_err(
+                    &name,
+                    "\"log\"".into(),
+                    format!(
+                        "allowed: \"log\" only when both ends of the axis are above 0 (here {from} and {to}); else \"linear\""
+                    ),
+                ));
+            }
+            Ok(AxisSpacing::Log)
+        }
+        _ => Ok(AxisSpacing::Linear),
+    }
+}
+
 // ---- [regimes] (the 2-D regime map) ----
 
 /// `[regimes]`: both keys numeric model keys and different, both ranges increasing, counts
@@ -1137,6 +1169,14 @@ fn regimes_spec(
     let max_points = count("regimes.max_points", &mut r.max_points, 5000, 10, 1_000_000)?;
     let step = c.num("regimes.step", &mut r.step, 0.02, Range::Above(0.0))?;
     let max_step = c.num("regimes.max_step", &mut r.max_step, 0.1, Range::Above(0.0))?;
+    let spacing = axis_spacing(c, "regimes", "spacing", &mut r.spacing, (from, to))?;
+    let row_spacing = axis_spacing(
+        c,
+        "regimes",
+        "row_spacing",
+        &mut r.row_spacing,
+        (row_from, row_to),
+    )?;
     Ok(Some(crate::config::spec::RegimesSpec {
         control,
         from,
@@ -1149,5 +1189,7 @@ fn regimes_spec(
         step,
         max_step,
         max_points,
+        spacing,
+        row_spacing,
     }))
 }

@@ -48,6 +48,8 @@ pub struct Controlled {
     base_model: Model,
     base_value: f64,
     fast: Option<Fast>,
+    /// The family runs in q = ln(p) (log spacing): `model_at(q)` is the model at p = exp(q).
+    log: bool,
 }
 
 impl Controlled {
@@ -85,7 +87,45 @@ impl Controlled {
             base_model,
             base_value,
             fast,
+            log: false,
         })
+    }
+
+    /// The same family in q = ln(p): `model_at(q)` is the model at `exp(q)` and
+    /// `heating_derivative` is `dG/dq = p dG/dp`, so continuation and sweeps in q step evenly
+    /// in the logarithm of the key (`spacing = "log"`). Map results back with [`Self::key_value`].
+    pub fn in_log(mut self) -> Controlled {
+        self.log = true;
+        // The cache key of the base model: NaN when ln is undefined (the first set applies).
+        self.base_value = if self.base_value > 0.0 {
+            self.base_value.ln()
+        } else {
+            f64::NAN
+        };
+        self
+    }
+
+    /// Whether the family runs in ln of the key.
+    pub fn is_log(&self) -> bool {
+        self.log
+    }
+
+    /// The key's value at family value `q` (`exp(q)` in log, else `q`).
+    pub fn key_value(&self, q: f64) -> f64 {
+        if self.log {
+            q.exp()
+        } else {
+            q
+        }
+    }
+
+    /// The family value of key value `p` (`ln(p)` in log, else `p`).
+    pub fn family_value(&self, p: f64) -> f64 {
+        if self.log {
+            p.ln()
+        } else {
+            p
+        }
     }
 
     /// The reference value of the control.
@@ -105,8 +145,9 @@ impl Controlled {
         Ok(m)
     }
 
-    /// Set `model` (built from this family) to control value `p`.
+    /// Set `model` (built from this family) to control value `p` (in ln of the key when log).
     pub fn apply(&self, model: &mut Model, p: f64) -> Result<(), ConfigError> {
+        let p = self.key_value(p);
         let b = &self.base_model;
         match self.fast {
             Some(Fast::SolarConstant) => {
@@ -164,6 +205,20 @@ impl Controlled {
     /// into `out`, in closed form for the fast keys. Returns false (and leaves `out` as it was)
     /// for keys that rebuild the model.
     pub fn heating_derivative(&self, model: &Model, p: f64, temps: &[f64], out: &mut [f64]) -> bool {
+        if self.log {
+            // dG/dq = (dG/dp) dp/dq with p = exp(q), dp/dq = p.
+            let p = p.exp();
+            if !self.heating_derivative_in_key(model, p, temps, out) {
+                return false;
+            }
+            out.iter_mut().for_each(|o| *o *= p);
+            return true;
+        }
+        self.heating_derivative_in_key(model, p, temps, out)
+    }
+
+    /// `heating_derivative` per unit of the key itself.
+    fn heating_derivative_in_key(&self, model: &Model, p: f64, temps: &[f64], out: &mut [f64]) -> bool {
         let b = &self.base_model;
         let n = temps.len();
         // The edge-balance albedo depends on the insolation and the OLR slope too: those

@@ -6,7 +6,7 @@ use super::run::{build_model, provenance};
 use super::run::{interrupted, remove_restart, restart_error, Checkpointing};
 use super::Ending;
 use crate::checkpoint::{self, Restart, RestartError};
-use crate::config::spec::BranchesSpec;
+use crate::config::spec::{AxisSpacing, BranchesSpec};
 use crate::config::{ConfigError, Loaded};
 use crate::equilibrium::branches::{all_branches_from, BranchSet, BranchesProgress, BranchesRun};
 use crate::equilibrium::continuation::{
@@ -59,8 +59,34 @@ fn run_branches_from(
     require_steady(cfg)?;
     let spec = branches_spec(cfg)?;
     let fam = family(cfg, "branches.control", &spec.control, [spec.from, spec.to])?;
-    let opts = ContinuationOptions::from_spec(spec, cfg.spec.equilibrium.tolerance_wm2);
+    let mut opts = ContinuationOptions::from_spec(spec, cfg.spec.equilibrium.tolerance_wm2);
+    if spec.spacing == AxisSpacing::Log {
+        // Continue in q = ln(p); the progress (and its checkpoints) stays in q, the result is
+        // mapped back to the key's values.
+        let fam = fam.in_log();
+        (opts.from, opts.to) = (spec.from.ln(), spec.to.ln());
+        let mut run = all_branches_from(&fam, opts, progress, on_seed);
+        to_key_values(&mut run.set, &fam);
+        return Ok(run);
+    }
     Ok(all_branches_from(&fam, opts, progress, on_seed))
+}
+
+/// Controls of branches traced in `fam`'s variable mapped to the key's values: points and
+/// folds `p = exp(q)`, `dp/ds = p dq/ds` (arclength stays that of the scaled q metric).
+pub fn to_key_values(set: &mut BranchSet, fam: &Controlled) {
+    if !fam.is_log() {
+        return;
+    }
+    for b in &mut set.branches {
+        for pt in &mut b.points {
+            pt.control = fam.key_value(pt.control);
+            pt.dpds *= pt.control;
+        }
+        for f in &mut b.folds {
+            f.control = fam.key_value(f.control);
+        }
+    }
 }
 
 /// Trace and write the file at `path`.
@@ -121,6 +147,7 @@ pub fn branches_job(
         control_key: &spec.control,
         from: spec.from,
         to: spec.to,
+        spacing: spec.spacing.name(),
         linearisations: run.set.linearisations,
         family: family.as_ref(),
     };

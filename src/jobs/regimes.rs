@@ -11,7 +11,7 @@ use super::run::{build_model, provenance};
 use super::Ending;
 use crate::checkpoint::{self, Restart, RestartError};
 use crate::cli::progress;
-use crate::config::spec::RegimesSpec;
+use crate::config::spec::{AxisSpacing, RegimesSpec};
 use crate::config::{ConfigError, Loaded};
 use crate::equilibrium::continuation::{ContinuationError, ContinuationOptions};
 use crate::equilibrium::control::Controlled;
@@ -112,7 +112,16 @@ fn compute(
     )?;
     let columns = spec.column_values();
     let values = spec.row_values();
-    let copts = ContinuationOptions::from_spec(&spec.row_branches(), cfg.spec.equilibrium.tolerance_wm2);
+    let mut copts = ContinuationOptions::from_spec(&spec.row_branches(), cfg.spec.equilibrium.tolerance_wm2);
+    let log = spec.spacing == AxisSpacing::Log;
+    // Log spacing: each row is continued in q = ln(control) (the columns too are compared in
+    // q) and its folds mapped back to the control's values.
+    let row_columns: Vec<f64> = if log {
+        (copts.from, copts.to) = (spec.from.ln(), spec.to.ln());
+        columns.iter().map(|c| c.ln()).collect()
+    } else {
+        columns.clone()
+    };
     let pool = super::worker_pool(opts.threads)?;
     let pb = if opts.progress {
         progress::bar(values.len() as u64, "regime rows")
@@ -140,9 +149,16 @@ fn compute(
                     let q = values[i];
                     let row = || -> Result<RegimeRow, Error> {
                         let row_cfg = cfg.with_value(&spec.row_control, q)?;
-                        let fam = Controlled::new(&row_cfg, &spec.control)?;
-                        regime_row(&fam, copts, &columns, q)
-                            .map_err(|e| continuation_error(e, &spec.row_control, q))
+                        let mut fam = Controlled::new(&row_cfg, &spec.control)?;
+                        if log {
+                            fam = fam.in_log();
+                        }
+                        let mut row = regime_row(&fam, copts, &row_columns, q)
+                            .map_err(|e| continuation_error(e, &spec.row_control, q))?;
+                        for f in &mut row.folds {
+                            f.control = fam.key_value(f.control);
+                        }
+                        Ok(row)
                     };
                     let r = row();
                     pb.inc(1);
@@ -177,7 +193,20 @@ fn compute(
         (None, Some(sig)) if rows.len() < values.len() => Outcome::Stopped(sig),
         _ => Outcome::Finished,
     };
-    let lines = fold_lines(&rows, spec.to - spec.from);
+    let lines = if log {
+        // Link folds of neighbouring rows by their distance in ln(control).
+        let mut in_q = rows.clone();
+        for f in in_q.iter_mut().flat_map(|r| r.folds.iter_mut()) {
+            f.control = f.control.ln();
+        }
+        let mut lines = fold_lines(&in_q, spec.to.ln() - spec.from.ln());
+        for v in lines.iter_mut().flatten() {
+            v.p1 = v.p1.exp();
+        }
+        lines
+    } else {
+        fold_lines(&rows, spec.to - spec.from)
+    };
     Ok((RegimeMap { columns, rows, lines }, outcome, saved))
 }
 

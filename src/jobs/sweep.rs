@@ -222,16 +222,24 @@ fn save_progress(p: &SweepProgress, config_text: &str) -> Restart {
                 t.ice_edge_after,
                 t.global_mean_before,
                 t.global_mean_after,
+                t.after_control,
             ]
         })
         .collect();
     let ti: Vec<u64> = p
         .tipping
         .iter()
-        .flat_map(|t| [(t.direction + 1) as u64, t.step as u64])
+        .flat_map(|t| [(t.direction + 1) as u64, t.step as u64, u64::from(t.resolved)])
         .collect();
     r.put_f64("sweep.tipping.f", &tf);
     r.put_u64("sweep.tipping.i", &ti);
+    r.put_f64(
+        "sweep.tipping.after_state",
+        &p.tipping
+            .iter()
+            .flat_map(|t| t.after_state.clone())
+            .collect::<Vec<_>>(),
+    );
     r.put_u64(
         "sweep.counts",
         &[p.settled_steps as u64, p.unsettled_steps as u64],
@@ -275,16 +283,21 @@ fn restore_progress(r: &Restart, n: usize) -> Result<SweepProgress, RestartError
             }
         })
         .collect();
-    let (tf, ti) = (r.f64s("sweep.tipping.f")?, r.u64s("sweep.tipping.i")?);
-    let m = tf.len() / 7;
-    if tf.len() != 7 * m || ti.len() != 2 * m {
+    let (tf, ti, ta) = (
+        r.f64s("sweep.tipping.f")?,
+        r.u64s("sweep.tipping.i")?,
+        r.f64s("sweep.tipping.after_state")?,
+    );
+    let m = tf.len() / 8;
+    if tf.len() != 8 * m || ti.len() != 3 * m || ta.len() != n * m {
         return Err(r.bad("sweep tipping arrays do not match"));
     }
     let tipping = (0..m)
         .map(|j| {
-            let (f, i) = (&tf[7 * j..7 * j + 7], &ti[2 * j..2 * j + 2]);
+            let (f, i) = (&tf[8 * j..8 * j + 8], &ti[3 * j..3 * j + 3]);
             Tipping {
                 control: f[0],
+                resolved: i[2] != 0,
                 bracket: (f[1], f[2]),
                 direction: i[0] as i32 - 1,
                 step: i[1] as usize,
@@ -292,6 +305,8 @@ fn restore_progress(r: &Restart, n: usize) -> Result<SweepProgress, RestartError
                 ice_edge_after: f[4],
                 global_mean_before: f[5],
                 global_mean_after: f[6],
+                after_control: f[7],
+                after_state: ta[n * j..n * (j + 1)].to_vec(),
             }
         })
         .collect();

@@ -24,6 +24,8 @@ pub struct BranchesInfo<'a> {
     pub from: f64,
     /// Upper end of the range.
     pub to: f64,
+    /// How the continuation stepped: "linear" (in the control) or "log" (in its logarithm).
+    pub spacing: &'a str,
     /// Linearisations used by the continuation.
     pub linearisations: u64,
     /// The model family, for the ice edges of a model whose edge rule depends on the control
@@ -127,7 +129,12 @@ pub fn write_branches_with(
         ),
     ];
     for (name, u, long, values) in &f64_vars {
-        w.add_variable_f64(name, &["point"], &attrs(u, long, None))?;
+        let mut a = attrs(u, long, None);
+        if *name == "control" {
+            // Whether the continuation stepped in the control or its logarithm (picture axes).
+            a.push(("spacing", Attr::from(info.spacing)));
+        }
+        w.add_variable_f64(name, &["point"], &a)?;
         w.write_f64(name, values)?;
     }
     if globe {
@@ -305,6 +312,7 @@ pub fn write_branches_with(
     w.set_attr_str("control_units", units)?;
     w.set_attr_f64("control_from", info.from)?;
     w.set_attr_f64("control_to", info.to)?;
+    w.set_attr_str("control_spacing", info.spacing)?;
     w.set_attr_i64("linearisations", info.linearisations as i64)?;
     apply_completion(&mut w, completion)?;
     w.finish()

@@ -53,6 +53,7 @@ pub fn write_regimes_with(
             ),
             ("control_key", Attr::from(spec.control.as_str())),
             ("axis", Attr::from("X")),
+            ("spacing", Attr::from(spec.spacing.name())),
         ],
     )?;
     w.add_coordinate(
@@ -69,6 +70,7 @@ pub fn write_regimes_with(
             ),
             ("control_key", Attr::from(spec.row_control.as_str())),
             ("axis", Attr::from("Y")),
+            ("spacing", Attr::from(spec.row_spacing.name())),
         ],
     )?;
     let cells = |f: &dyn Fn(&crate::equilibrium::regimes::RegimeRow, usize) -> i32| -> Vec<i32> {

@@ -83,7 +83,12 @@ pub fn write_sweep_with(
         ),
     ];
     for (name, u, long, values) in &f64_vars {
-        w.add_variable_f64(name, &["step"], &attrs(u, long, None))?;
+        let mut a = attrs(u, long, None);
+        if *name == "control" {
+            // How the values are spaced ("linear" or "log"), for axes of pictures.
+            a.push(("spacing", Attr::from(spec.spacing.name())));
+        }
+        w.add_variable_f64(name, &["step"], &a)?;
         w.write_f64(name, values)?;
     }
     if steps.iter().any(|s| s.ice_edge_south.is_some()) {
@@ -165,7 +170,7 @@ pub fn write_sweep_with(
             "tipping_control",
             units.into(),
             format!(
-                "control value at the tipping point (midpoint of the refined bracket; {})",
+                "control value at the tipping point (midpoint of the refined bracket; NaN when unresolved; {})",
                 spec.control
             ),
             tcol(&|k| tp[k].control),
@@ -173,13 +178,13 @@ pub fn write_sweep_with(
         (
             "tipping_bracket_low",
             units.into(),
-            "lower end of the refined bracket of the tipping point".into(),
+            "lower end of the refined bracket of the tipping point (unresolved: of the interval holding the jump)".into(),
             tcol(&|k| tp[k].bracket.0.min(tp[k].bracket.1)),
         ),
         (
             "tipping_bracket_high",
             units.into(),
-            "upper end of the refined bracket of the tipping point".into(),
+            "upper end of the refined bracket of the tipping point (unresolved: of the interval holding the jump)".into(),
             tcol(&|k| tp[k].bracket.0.max(tp[k].bracket.1)),
         ),
         (
@@ -224,6 +229,17 @@ pub fn write_sweep_with(
         "tipping_direction",
         &tp.iter().map(|t| t.direction).collect::<Vec<_>>(),
     )?;
+    let mut a = attrs(
+        "1",
+        "1 if the tipping point was bracketed to refine_relative, 0 if only the interval holding the jump is known",
+        None,
+    );
+    a.push(("flag_meanings", Attr::from("unresolved resolved")));
+    w.add_variable_i32("tipping_resolved", &["tipping"], &a)?;
+    w.write_i32(
+        "tipping_resolved",
+        &tp.iter().map(|t| i32::from(t.resolved)).collect::<Vec<_>>(),
+    )?;
     w.add_variable_i32(
         "tipping_step",
         &["tipping"],
@@ -260,8 +276,12 @@ pub fn write_sweep_with(
     w.set_attr_f64("hysteresis_width", res.hysteresis_width)?;
     w.set_attr_str(
         "hysteresis_width_comment",
-        "total control length (control units) over which the two legs end in different states, bounded by the refined tipping points",
+        "total control length (control units) over which the two legs end in different states, bounded by the refined tipping points; NaN when an end is not found (see hysteresis_missing)",
     )?;
+    if let Some(why) = &res.hysteresis_missing {
+        w.set_attr_str("hysteresis_missing", why)?;
+    }
+    w.set_attr_str("control_spacing", spec.spacing.name())?;
     w.set_attr_f64("settle_k_per_year", spec.settle_k_per_year)?;
     w.set_attr_f64("settle_max_years", spec.settle_max_years)?;
     w.set_attr_f64("refine_relative", spec.refine_relative)?;
