@@ -51,7 +51,12 @@ fn pictures() -> &'static Vec<(String, Rendered)> {
         // The gallery configs, as scripts/make-gallery.sh runs them (a few made smaller).
         for (cmd, cfg, name, sets) in [
             ("run", "classic-step-albedo", "classic-run", &[][..]),
-            ("equilibrium", "classic-step-albedo", "classic-equilibrium", &[][..]),
+            (
+                "equilibrium",
+                "classic-step-albedo",
+                "classic-equilibrium",
+                &[][..],
+            ),
             ("run", "smooth-albedo", "smooth-run", &[][..]),
             ("run", "gray-body", "gray-body-run", &[][..]),
             ("run", "global-mean", "global-mean-run", &[][..]),
@@ -62,7 +67,12 @@ fn pictures() -> &'static Vec<(String, Rendered)> {
             ("sweep", "sweep-solar", "solar-sweep", &["grid.bands=45"][..]),
             ("branches", "branches-solar", "solar-branches", &[][..]),
             ("branches", "branches-co2", "co2-branches", &[][..]),
-            ("branches", "north1975-exact", "north1975-branches", &["grid.bands=60"][..]),
+            (
+                "branches",
+                "north1975-exact",
+                "north1975-branches",
+                &["grid.bands=60"][..],
+            ),
             (
                 "ensemble",
                 "ensemble-lhs",
@@ -242,7 +252,9 @@ fn legend_check_notices_a_legend_over_data() {
     let mut l = find("classic-run-timeseries").layout.clone();
     let a = l.plots[0].area;
     let leg = Rect::at(a.x0 + 10.0, a.y0 + 10.0, 80.0, 30.0);
-    l.plots[0].lines.push(vec![(a.x0, a.y0 + 25.0), (a.x1, a.y0 + 25.0)]);
+    l.plots[0]
+        .lines
+        .push(vec![(a.x0, a.y0 + 25.0), (a.x1, a.y0 + 25.0)]);
     l.legends.push(leg);
     assert!(covered(&l).iter().any(|(r, _)| *r == leg));
 }
@@ -352,7 +364,12 @@ fn map_classes_are_told_apart_in_colour_greyscale_and_colour_blindness() {
         }
         maps += 1;
         let [colour, grey, deut] = class_distances(c);
-        assert!(colour.0 >= MIN_DE76, "{name}: ΔE76 {:.1} for {}", colour.0, colour.1);
+        assert!(
+            colour.0 >= MIN_DE76,
+            "{name}: ΔE76 {:.1} for {}",
+            colour.0,
+            colour.1
+        );
         assert!(grey.0 >= MIN_DL, "{name}: ΔL* {:.1} for {}", grey.0, grey.1);
         assert!(
             deut.0 >= MIN_DE76_DEUTERANOPE,

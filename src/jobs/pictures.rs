@@ -162,7 +162,15 @@ fn annual(t: &[f64], v: &[f64], per: usize) -> Annual {
 /// Adds a time series to `p`: as it is, or, when the records resolve seasons (`per` records a
 /// year), as its annual mean over the shaded range within each year.
 #[allow(clippy::too_many_arguments)]
-fn add_series(p: &mut Panel, t: &[f64], v: Vec<f64>, stroke: Stroke, colour: usize, label: &str, per: Option<usize>) {
+fn add_series(
+    p: &mut Panel,
+    t: &[f64],
+    v: Vec<f64>,
+    stroke: Stroke,
+    colour: usize,
+    label: &str,
+    per: Option<usize>,
+) {
     match per {
         None => p
             .series
@@ -210,12 +218,24 @@ fn run_timeseries(r: &NcReader, title: &str) -> Result<Figure, Error> {
         read(r, "ice_edge_latitude_north")?,
         Stroke::Solid,
         1,
-        if globe { "northern ice edge (°N)" } else { "northern ice edge" },
+        if globe {
+            "northern ice edge (°N)"
+        } else {
+            "northern ice edge"
+        },
         per,
     );
     if globe {
         let south: Vec<f64> = read(r, "ice_edge_latitude_south")?.iter().map(|v| -v).collect();
-        add_series(&mut edge, &t, south, Stroke::Dashed, 3, "southern ice edge (°S)", per);
+        add_series(
+            &mut edge,
+            &t,
+            south,
+            Stroke::Dashed,
+            3,
+            "southern ice edge (°S)",
+            per,
+        );
     }
     edge.y_range = Some((-4.0, 94.0));
     let mut budget = Panel::new("Time (year)", "Forcing and imbalance (W m⁻²)");
@@ -271,8 +291,7 @@ fn times_ten_to(v: f64) -> String {
 /// Freezing temperature of the step albedo (°C) from the file's configuration (−10 °C if
 /// the configuration does not say).
 fn freeze_c(r: &NcReader) -> Result<f64, Error> {
-    Ok(r
-        .attr_str("config_toml")?
+    Ok(r.attr_str("config_toml")?
         .and_then(|c| c.parse::<toml::Table>().ok())
         .and_then(|c| c.get("albedo")?.get("freeze_temperature_c")?.as_float())
         .unwrap_or(-10.0))
@@ -296,7 +315,13 @@ fn lat_edges(r: &NcReader) -> Result<Vec<f64>, Error> {
 /// along the frame.
 fn off_frame(v: &[f64], lo: f64, hi: f64) -> Vec<f64> {
     v.iter()
-        .map(|&x| if x >= hi - 1e-6 || x <= lo + 1e-6 { f64::NAN } else { x })
+        .map(|&x| {
+            if x >= hi - 1e-6 || x <= lo + 1e-6 {
+                f64::NAN
+            } else {
+                x
+            }
+        })
         .collect()
 }
 
@@ -359,6 +384,7 @@ fn run_map(r: &NcReader, title: &str) -> Result<HeatMap, Error> {
             )]
         },
         overlay,
+        smooth: per.is_some(),
         width_px: 1200,
         height_px: 800,
         ..Default::default()
@@ -381,11 +407,14 @@ fn run_profile(r: &NcReader, title: &str) -> Result<Figure, Error> {
         pick("outgoing_longwave")?,
         pick("transport_convergence")?,
     ];
+    let edges = lat_edges(r)?;
+    let ice = ice_spans(r, &edges, |v| v.last().copied())?;
     Ok(profile_figure(
         title,
         &format!("final state, year {t_end}"),
         lat,
-        lat_edges(r)?,
+        edges,
+        ice,
         freeze_c(r)?,
         fields,
     ))
@@ -404,14 +433,41 @@ fn equilibrium_profile(r: &NcReader, title: &str) -> Result<Figure, Error> {
         .copied()
         .unwrap_or(f64::NAN);
     let sub = format!("{stability} equilibrium, ice edge {edge:.1}°N");
+    let edges = lat_edges(r)?;
+    let ice = ice_spans(r, &edges, |v| v.first().copied())?;
     Ok(profile_figure(
         title,
         &sub,
         read(r, "lat")?,
-        lat_edges(r)?,
+        edges,
+        ice,
         freeze_c(r)?,
         fields,
     ))
+}
+
+/// Latitude spans under ice, from the file's ice-edge latitudes (`pick` takes the value to
+/// use from each series): poleward of the northern edge, and of the southern one on a globe.
+fn ice_spans(
+    r: &NcReader,
+    edges: &[f64],
+    pick: impl Fn(&[f64]) -> Option<f64>,
+) -> Result<Vec<(f64, f64)>, Error> {
+    let (lo, hi) = (edges[0], edges[edges.len() - 1]);
+    let mut out = Vec::new();
+    if let Some(n) = pick(&read(r, "ice_edge_latitude_north")?).filter(|v| v.is_finite()) {
+        if n < hi {
+            out.push((n.max(lo), hi));
+        }
+    }
+    if has(r, "ice_edge_latitude_south")? {
+        if let Some(s) = pick(&read(r, "ice_edge_latitude_south")?).filter(|v| v.is_finite()) {
+            if s > lo {
+                out.push((lo, s.min(hi)));
+            }
+        }
+    }
+    Ok(out)
 }
 
 /// The stability spectrum of an equilibrium: the decay (or growth) rate of every mode of the
@@ -481,31 +537,22 @@ fn axis_log(r: &NcReader, var: &str, values: &[f64]) -> Result<bool, Error> {
 }
 
 /// Temperature and the three terms of the energy budget against latitude over the whole
-/// grid (`edges`: cell boundaries), with ice-covered latitudes (colder than `freeze` °C)
-/// shaded and the freezing temperature drawn; `fields` holds surface temperature (K),
+/// grid (`edges`: cell boundaries), with the ice-covered `spans` of latitude shaded and the
+/// freezing temperature (`freeze`, °C) drawn; `fields` holds surface temperature (K),
 /// absorbed sunlight, OLR and transport convergence (W m-2).
 fn profile_figure(
     title: &str,
     subtitle: &str,
     lat: Vec<f64>,
     edges: Vec<f64>,
+    spans: Vec<(f64, f64)>,
     freeze: f64,
     fields: [Vec<f64>; 4],
 ) -> Figure {
     let [temp, sun, olr, conv] = fields;
     let range = (edges[0], edges[edges.len() - 1]);
     let tf = freeze + 273.15;
-    // Ice-covered cells, merged into spans.
-    let mut spans: Vec<(f64, f64)> = Vec::new();
-    for (j, v) in temp.iter().enumerate() {
-        if *v < tf && j + 1 < edges.len() {
-            match spans.last_mut() {
-                Some(s) if (s.1 - edges[j]).abs() < 1e-9 => s.1 = edges[j + 1],
-                _ => spans.push((edges[j], edges[j + 1])),
-            }
-        }
-    }
-    let shade_label = Some(format!("ice (colder than {})", celsius(freeze)));
+    let shade_label = Some("ice (poleward of the ice edge)".to_string());
     let mut p_temp = Panel::new("Latitude (°N)", "Temperature (K)");
     p_temp.title = Some(subtitle.to_string());
     p_temp.x_range = Some(range);
@@ -683,7 +730,10 @@ fn ensemble_outcomes(r: &NcReader, title: &str) -> Result<Figure, Error> {
             continue;
         }
         let v = read(r, &name)?;
-        let y: Vec<f64> = ok.iter().map(|&m| v.get(m).copied().unwrap_or(f64::NAN)).collect();
+        let y: Vec<f64> = ok
+            .iter()
+            .map(|&m| v.get(m).copied().unwrap_or(f64::NAN))
+            .collect();
         let mut p = Panel::new(xl, control_label(key));
         p.series.push(
             Series::new(last.clone(), y, Stroke::Markers, [0, 2, 3][j % 3])
@@ -974,7 +1024,11 @@ fn hysteresis(r: &NcReader, title: &str, kind: &str) -> Result<Figure, Error> {
         for k in 0..tc.len() {
             let text = format!("tips at {}", fmt(tc[k]));
             // The jump, coloured as the sweep direction that made it.
-            let colour = if tdir.get(k).copied().unwrap_or(1.0) > 0.0 { 0 } else { 2 };
+            let colour = if tdir.get(k).copied().unwrap_or(1.0) > 0.0 {
+                0
+            } else {
+                2
+            };
             p_edge.arrows.push(plot::Arrow {
                 from: (tc[k], tb[k]),
                 to: (tc[k], ta[k]),

@@ -235,7 +235,12 @@ pub fn text_rect(at: (f64, f64), (width, height): (f64, f64), anchor: Anchor, up
         let x0 = across(anchor.v, at.0, height);
         Rect::at(x0, y1 - width, height, width)
     } else {
-        Rect::at(along(anchor.h, at.0, width), across(anchor.v, at.1, height), width, height)
+        Rect::at(
+            along(anchor.h, at.0, width),
+            across(anchor.v, at.1, height),
+            width,
+            height,
+        )
     }
 }
 
@@ -293,13 +298,51 @@ pub fn text_height(size: f64) -> f64 {
     1.164 * style::em(size)
 }
 
+/// Drops the points of a polyline that lie within `tol` pixels of the straight line between
+/// the kept points around them (so flat stretches of long series do not bloat the SVG); the
+/// first and last points stay. Every dropped point is checked against the segment that
+/// replaces it, so the drawn line moves by at most `tol`.
+pub fn simplify(pts: &[(f64, f64)], tol: f64) -> Vec<(f64, f64)> {
+    if pts.len() < 3 {
+        return pts.to_vec();
+    }
+    let dist = |p: (f64, f64), a: (f64, f64), b: (f64, f64)| {
+        let (dx, dy) = (b.0 - a.0, b.1 - a.1);
+        let len2 = dx * dx + dy * dy;
+        let t = if len2 > 0.0 {
+            (((p.0 - a.0) * dx + (p.1 - a.1) * dy) / len2).clamp(0.0, 1.0)
+        } else {
+            0.0
+        };
+        (p.0 - a.0 - t * dx).hypot(p.1 - a.1 - t * dy)
+    };
+    // Longest run of points one segment may replace (bounds the work on long straight runs).
+    const MAX_RUN: usize = 256;
+    let mut out = vec![pts[0]];
+    let mut a = 0;
+    let mut j = 2;
+    while j < pts.len() {
+        let ok = j - a <= MAX_RUN && (a + 1..j).all(|i| dist(pts[i], pts[a], pts[j]) <= tol);
+        if !ok {
+            a = j - 1;
+            out.push(pts[a]);
+        }
+        j += 1;
+    }
+    out.push(pts[pts.len() - 1]);
+    out
+}
+
+/// Largest distance a drawn line may move when its points are thinned, in pixels.
+const SIMPLIFY_TOL: f64 = 0.05;
+
 impl Canvas<'_> {
     /// Polyline through `pts`.
     pub fn line(&self, pts: &[(f64, f64)], colour: RGBAColor, width: f64) -> Result<(), PlotError> {
         if pts.len() < 2 {
             return Ok(());
         }
-        let pts: Vec<(i32, i32)> = pts.iter().copied().map(kp).collect();
+        let pts: Vec<(i32, i32)> = simplify(pts, SIMPLIFY_TOL).into_iter().map(kp).collect();
         self.root
             .draw(&PathElement::new(pts, stroke(colour, width)))
             .map_err(draw_err)
@@ -316,7 +359,7 @@ impl Canvas<'_> {
         if pts.len() < 2 {
             return Ok(());
         }
-        let pts: Vec<(i32, i32)> = pts.iter().copied().map(kp).collect();
+        let pts: Vec<(i32, i32)> = simplify(pts, SIMPLIFY_TOL).into_iter().map(kp).collect();
         self.root
             .draw(&DashedPathElement::new(
                 pts,
@@ -1311,6 +1354,37 @@ mod tests {
             .abs()
             / 2.0;
         assert!((area - 30.0).abs() < 1e-9, "{area} {p:?}");
+    }
+
+    #[test]
+    fn simplify_keeps_corners_and_drops_straight_runs() {
+        let line: Vec<(f64, f64)> = (0..=100)
+            .map(|i| (f64::from(i), 0.0))
+            .chain([(100.0, 50.0)])
+            .collect();
+        let s = simplify(&line, 0.05);
+        assert_eq!(s, vec![(0.0, 0.0), (100.0, 0.0), (100.0, 50.0)]);
+        // A curve keeps every point that is needed to stay within the tolerance.
+        let arc: Vec<(f64, f64)> = (0..=200)
+            .map(|i| {
+                let t = f64::from(i) / 200.0 * std::f64::consts::PI;
+                (100.0 * t.cos(), 100.0 * t.sin())
+            })
+            .collect();
+        let s = simplify(&arc, 0.05);
+        assert!(s.len() > 10 && s.len() < arc.len(), "{}", s.len());
+        for p in &arc {
+            let d = s
+                .windows(2)
+                .map(|w| {
+                    let (a, b) = (w[0], w[1]);
+                    let (dx, dy) = (b.0 - a.0, b.1 - a.1);
+                    let t = (((p.0 - a.0) * dx + (p.1 - a.1) * dy) / (dx * dx + dy * dy)).clamp(0.0, 1.0);
+                    (p.0 - a.0 - t * dx).hypot(p.1 - a.1 - t * dy)
+                })
+                .fold(f64::INFINITY, f64::min);
+            assert!(d <= 0.05 + 1e-12, "{p:?} moved by {d}");
+        }
     }
 
     #[test]

@@ -601,7 +601,8 @@ fn leader_line(point: (f64, f64), b: &Rect, ring: f64) -> ((f64, f64), (f64, f64
 
 /// Whether segments a-b and p-q cross (proper intersection).
 fn segments_cross(a: (f64, f64), b: (f64, f64), p: (f64, f64), q: (f64, f64)) -> bool {
-    let side = |o: (f64, f64), u: (f64, f64), v: (f64, f64)| (u.0 - o.0) * (v.1 - o.1) - (u.1 - o.1) * (v.0 - o.0);
+    let side =
+        |o: (f64, f64), u: (f64, f64), v: (f64, f64)| (u.0 - o.0) * (v.1 - o.1) - (u.1 - o.1) * (v.0 - o.0);
     let (d1, d2) = (side(p, q, a), side(p, q, b));
     let (d3, d4) = (side(a, b, p), side(a, b, q));
     d1 * d2 < 0.0 && d3 * d4 < 0.0
@@ -876,7 +877,15 @@ fn draw_panel(
         let (px1, _) = map.px(x0.max(x1), map.y.0);
         let (px0, px1) = (px0.max(a.x0), px1.min(a.x1));
         if px0.is_finite() && px1.is_finite() && px1 > px0 {
-            c.fill_rect(Rect { x0: px0, y0: a.y0, x1: px1, y1: a.y1 }, style::SHADE.to_rgba())?;
+            c.fill_rect(
+                Rect {
+                    x0: px0,
+                    y0: a.y0,
+                    x1: px1,
+                    y1: a.y1,
+                },
+                style::SHADE.to_rgba(),
+            )?;
         }
     }
     canvas::draw_grid(c, map, &lay.xt.0, &pl.yt.0, sizes)?;
@@ -943,8 +952,15 @@ fn draw_panel(
             data.lines.push(l.clone());
         }
         let w = 0.45 * head;
-        let tri = [h, (base.0 - uy * w, base.1 + ux * w), (base.0 + uy * w, base.1 - ux * w)];
-        if tri.iter().all(|q| a.inflate(0.5).contains(&Rect::at(q.0, q.1, 0.0, 0.0))) {
+        let tri = [
+            h,
+            (base.0 - uy * w, base.1 + ux * w),
+            (base.0 + uy * w, base.1 - ux * w),
+        ];
+        if tri
+            .iter()
+            .all(|q| a.inflate(0.5).contains(&Rect::at(q.0, q.1, 0.0, 0.0)))
+        {
             c.polygon(&tri, colour)?;
         }
     }

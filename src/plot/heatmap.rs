@@ -57,6 +57,10 @@ pub struct HeatMap {
     pub categorical: Option<Vec<(f64, String)>>,
     /// Fixed colour-scale limits (lower, upper); `None` uses the range of the finite values.
     pub z_range: Option<(f64, f64)>,
+    /// Cells blended smoothly instead of drawn sharp: for fields that change from cell to
+    /// cell faster than a few screen pixels (e.g. a resolved seasonal cycle), where sharp
+    /// cells narrower than the pixel grid beat against it (moiré).
+    pub smooth: bool,
     /// Logarithmic x axis (all x values and edges must be positive).
     pub x_log: bool,
     /// Logarithmic y axis (all y values and edges must be positive).
@@ -442,7 +446,10 @@ fn to_log(m: &HeatMap) -> Result<HeatMap, PlotError> {
     let mut out = m.clone();
     let l = |v: f64| if v > 0.0 { v.log10() } else { f64::NAN };
     let (xe, ye) = cell_edges(m);
-    for (on, what, e) in [(m.x_log, "heat map x (log axis)", &xe), (m.y_log, "heat map y (log axis)", &ye)] {
+    for (on, what, e) in [
+        (m.x_log, "heat map x (log axis)", &xe),
+        (m.y_log, "heat map y (log axis)", &ye),
+    ] {
         if on && e[0] <= 0.0 {
             return Err(PlotError::BadRange {
                 what: what.into(),
@@ -491,11 +498,10 @@ pub fn heatmap_layout(m: &HeatMap) -> Result<(String, canvas::LayoutReport), Plo
     };
     let lay = layout(m, &scale, &sizes)?;
     let map = &lay.map;
-    // Sharp cells unless there are more than one column (row) per three screen pixels, where
-    // sharp scaling beats against the pixel grid (moiré).
+    // Smooth cells when asked and the cells are narrower than three screen pixels.
     let (xe, ye) = cell_edges(m);
-    let smooth = (pixel_cells(&xe).len() as f64) > map.area.w() / 3.0
-        || (pixel_cells(&ye).len() as f64) > map.area.h() / 3.0;
+    let smooth = m.smooth
+        && ((xe.len() - 1) as f64 > map.area.w() / 3.0 || (ye.len() - 1) as f64 > map.area.h() / 3.0);
     let mut bitmaps = vec![Bitmap {
         rect: map.area,
         png: field_png(m, &scale)?,
