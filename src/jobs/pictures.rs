@@ -651,6 +651,8 @@ fn ensemble_spread(r: &NcReader, title: &str) -> Result<Figure, Error> {
             .push(Series::new(t.clone(), median, Stroke::Solid, colour).labelled("median"));
         if name == "ice_edge_latitude_north" {
             p.y_range = Some((-4.0, 94.0));
+            // A median between two groups of members is a state no member has.
+            p.title = Some("band and median can hide two outcomes: see the outcomes picture".into());
         }
         panels.push(p);
     }
