@@ -168,6 +168,7 @@ fn heatmap() -> Result<String, PlotError> {
         z_range: None,
         width_px: 1200,
         height_px: 800,
+        ..HeatMap::default()
     })
 }
 
@@ -214,6 +215,7 @@ fn regimes() -> Result<String, PlotError> {
         z_range: None,
         width_px: 1100,
         height_px: 760,
+        ..HeatMap::default()
     })
 }
 

@@ -12,6 +12,9 @@ if [ -z "${ICEFOLD_BIN:-}" ]; then cargo build --release --quiet; fi
 mkdir -p "$OUT"
 # Only the .nc files of steps marked "keep" stay (small ones); the others are drawn and
 # removed, so that the gallery stays under 5 MB.
+# Pictures per file kind (`icefold plot`): run -> NAME-timeseries, NAME-map, NAME-profile;
+# equilibrium -> NAME-profile, NAME-spectrum; sweep and branches -> NAME-hysteresis;
+# ensemble -> NAME-spread, NAME-outcomes; regimes -> NAME-map.
 
 step() { # command config name keep|drop
   local cmd="$1" cfg="configs/$2.toml" name="$3" keep="$4"

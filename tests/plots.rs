@@ -83,7 +83,7 @@ fn every_kind_of_file_gets_its_pictures() {
         ),
         (
             make(&dir, "equilibrium", "configs/classic-step-albedo.toml", "eq", &[]),
-            &["eq-profile"],
+            &["eq-profile", "eq-spectrum"],
         ),
         (
             make(
@@ -117,7 +117,7 @@ fn every_kind_of_file_gets_its_pictures() {
                     "ensemble.sensitivity=false",
                 ],
             ),
-            &["ens-spread"],
+            &["ens-spread", "ens-outcomes"],
         ),
         (
             make(
@@ -139,6 +139,9 @@ fn every_kind_of_file_gets_its_pictures() {
             let expected = match stem.rsplit('-').next().unwrap() {
                 "map" if stem.starts_with("reg") => (1300, 800),
                 "map" => (1200, 800),
+                "spectrum" => (1200, 800),
+                // A histogram and one scatter per sampled parameter (two here).
+                "outcomes" => (1200, 1110),
                 "profile" => (1200, 900),
                 "hysteresis" => (1200, 1100),
                 "spread" => (1200, 1000),

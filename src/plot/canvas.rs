@@ -74,7 +74,6 @@ impl Rect {
         other.x0 >= self.x0 && other.x1 <= self.x1 && other.y0 >= self.y0 && other.y1 <= self.y1
     }
     /// Whether the two rectangles overlap (touching edges do not count).
-    #[cfg(test)]
     pub fn overlaps(&self, other: &Rect) -> bool {
         self.x0 < other.x1 && other.x0 < self.x1 && self.y0 < other.y1 && other.y0 < self.y1
     }
@@ -161,10 +160,181 @@ pub enum PointShape {
     Down,
 }
 
-/// A drawing surface in 1x pixels over plotters' SVG backend.
+/// A drawing surface in 1x pixels over plotters' SVG backend; it also records where every
+/// text, legend and plot area went (see [`LayoutReport`]).
 pub struct Canvas<'a> {
     root: DrawingArea<SVGBackend<'a>, Shift>,
+    report: std::cell::RefCell<LayoutReport>,
 }
+
+/// One text as placed: its string and the box it takes, in 1x pixels.
+#[derive(Debug, Clone, PartialEq)]
+pub struct TextBox {
+    /// The text.
+    pub text: String,
+    /// Its bounding box (width as measured with the embedded font, height the font's
+    /// ascent plus descent).
+    pub rect: Rect,
+}
+
+/// A plot area and the data drawn in it, in pixels, for checks that a legend covers none.
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct PlotData {
+    /// The plot area (inside the frame).
+    pub area: Rect,
+    /// Every drawn line as a polyline, every marker or dot as a one-point line, every shaded
+    /// band as its closed outline.
+    pub lines: Vec<Vec<(f64, f64)>>,
+}
+
+/// Where everything went in a finished picture: the boxes of all texts, of the legends, the
+/// plot areas with their data, and the colours of a categorical map's classes. The drawing
+/// code fills it as it draws, so checks (tests/picture_quality.rs) need no pixel parsing.
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct LayoutReport {
+    /// Picture size in pixels.
+    pub width: f64,
+    /// Picture height in pixels.
+    pub height: f64,
+    /// Every text drawn.
+    pub texts: Vec<TextBox>,
+    /// Every legend box drawn.
+    pub legends: Vec<Rect>,
+    /// Plot areas and their data.
+    pub plots: Vec<PlotData>,
+    /// Classes of a categorical map: name and colour (sRGB).
+    pub classes: Vec<(String, (u8, u8, u8))>,
+}
+
+impl Default for Rect {
+    fn default() -> Rect {
+        Rect::at(0.0, 0.0, 0.0, 0.0)
+    }
+}
+
+/// Box of a text of `width` x `height` anchored at `at`; `upright` texts read upwards (the
+/// box turns by a quarter: the text's top faces left).
+pub fn text_rect(at: (f64, f64), (width, height): (f64, f64), anchor: Anchor, upright: bool) -> Rect {
+    let along = |h: HPos, p: f64, len: f64| match h {
+        HPos::Left => p,
+        HPos::Center => p - 0.5 * len,
+        HPos::Right => p - len,
+    };
+    let across = |v: VPos, p: f64, len: f64| match v {
+        VPos::Top => p,
+        VPos::Center => p - 0.5 * len,
+        VPos::Bottom => p - len,
+    };
+    if upright {
+        // Reading upwards: "left" of the text is its bottom end; "top" faces left.
+        let y1 = match anchor.h {
+            HPos::Left => at.1,
+            HPos::Center => at.1 + 0.5 * width,
+            HPos::Right => at.1 + width,
+        };
+        let x0 = across(anchor.v, at.0, height);
+        Rect::at(x0, y1 - width, height, width)
+    } else {
+        Rect::at(
+            along(anchor.h, at.0, width),
+            across(anchor.v, at.1, height),
+            width,
+            height,
+        )
+    }
+}
+
+/// `text` broken at spaces into lines no wider than `max_w` pixels (a single word wider than
+/// that keeps its own line).
+pub fn wrap_text(text: &str, size: f64, bold: bool, max_w: f64) -> Vec<String> {
+    let mut lines: Vec<String> = Vec::new();
+    let mut cur = String::new();
+    for word in text.split_whitespace() {
+        let trial = if cur.is_empty() {
+            word.to_string()
+        } else {
+            format!("{cur} {word}")
+        };
+        if !cur.is_empty() && style::text_width(&trial, size, bold) > max_w {
+            lines.push(std::mem::replace(&mut cur, word.to_string()));
+        } else {
+            cur = trial;
+        }
+    }
+    if !cur.is_empty() {
+        lines.push(cur);
+    }
+    lines
+}
+
+/// Draws a bold title, wrapped to `lines`, centred at `cx` from `top` down.
+pub fn draw_title(c: &Canvas, lines: &[String], cx: f64, top: f64, sizes: &Sizes) -> Result<(), PlotError> {
+    for (i, l) in lines.iter().enumerate() {
+        c.text(
+            l,
+            (cx, top + 1.25 * i as f64 * style::em(sizes.title)),
+            sizes.title,
+            true,
+            Anchor::new(HPos::Center, VPos::Top),
+            false,
+            BLACK,
+        )?;
+    }
+    Ok(())
+}
+
+/// Height of a title of `n` lines including the space below it.
+pub fn title_height(n: usize, sizes: &Sizes) -> f64 {
+    if n == 0 {
+        0.0
+    } else {
+        (1.25 * n as f64 + 0.25) * style::em(sizes.title)
+    }
+}
+
+/// Height of a line of text at plotters size `size`: DejaVu Sans ascent plus descent
+/// (0.928 + 0.236 em, from the font's hhea table as fontdb reports it).
+pub fn text_height(size: f64) -> f64 {
+    1.164 * style::em(size)
+}
+
+/// Drops the points of a polyline that lie within `tol` pixels of the straight line between
+/// the kept points around them (so flat stretches of long series do not bloat the SVG); the
+/// first and last points stay. Every dropped point is checked against the segment that
+/// replaces it, so the drawn line moves by at most `tol`.
+pub fn simplify(pts: &[(f64, f64)], tol: f64) -> Vec<(f64, f64)> {
+    if pts.len() < 3 {
+        return pts.to_vec();
+    }
+    let dist = |p: (f64, f64), a: (f64, f64), b: (f64, f64)| {
+        let (dx, dy) = (b.0 - a.0, b.1 - a.1);
+        let len2 = dx * dx + dy * dy;
+        let t = if len2 > 0.0 {
+            (((p.0 - a.0) * dx + (p.1 - a.1) * dy) / len2).clamp(0.0, 1.0)
+        } else {
+            0.0
+        };
+        (p.0 - a.0 - t * dx).hypot(p.1 - a.1 - t * dy)
+    };
+    // Longest run of points one segment may replace (bounds the work on long straight runs).
+    const MAX_RUN: usize = 256;
+    let mut out = vec![pts[0]];
+    let mut a = 0;
+    let mut j = 2;
+    while j < pts.len() {
+        let ok = j - a <= MAX_RUN && (a + 1..j).all(|i| dist(pts[i], pts[a], pts[j]) <= tol);
+        if !ok {
+            a = j - 1;
+            out.push(pts[a]);
+        }
+        j += 1;
+    }
+    out.push(pts[pts.len() - 1]);
+    out
+}
+
+/// Largest distance a drawn line may move when its points are thinned, in pixels.
+const SIMPLIFY_TOL: f64 = 0.05;
 
 impl Canvas<'_> {
     /// Polyline through `pts`.
@@ -172,7 +342,7 @@ impl Canvas<'_> {
         if pts.len() < 2 {
             return Ok(());
         }
-        let pts: Vec<(i32, i32)> = pts.iter().copied().map(kp).collect();
+        let pts: Vec<(i32, i32)> = simplify(pts, SIMPLIFY_TOL).into_iter().map(kp).collect();
         self.root
             .draw(&PathElement::new(pts, stroke(colour, width)))
             .map_err(draw_err)
@@ -189,7 +359,7 @@ impl Canvas<'_> {
         if pts.len() < 2 {
             return Ok(());
         }
-        let pts: Vec<(i32, i32)> = pts.iter().copied().map(kp).collect();
+        let pts: Vec<(i32, i32)> = simplify(pts, SIMPLIFY_TOL).into_iter().map(kp).collect();
         self.root
             .draw(&DashedPathElement::new(
                 pts,
@@ -293,9 +463,37 @@ impl Canvas<'_> {
         if upright {
             ts = ts.transform(FontTransform::Rotate270);
         }
+        let rect = text_rect(
+            at,
+            (style::text_width(s, size, bold), text_height(size)),
+            anchor,
+            upright,
+        );
+        self.report.borrow_mut().texts.push(TextBox {
+            text: s.to_string(),
+            rect,
+        });
         self.root
             .draw(&Text::new(s.to_string(), kp(at), ts))
             .map_err(draw_err)
+    }
+
+    /// Records a legend box (for [`LayoutReport::legends`]).
+    pub fn note_legend(&self, r: Rect) {
+        self.report.borrow_mut().legends.push(r);
+    }
+
+    /// Records a plot area and the data drawn in it.
+    pub fn note_plot(&self, data: PlotData) {
+        self.report.borrow_mut().plots.push(data);
+    }
+
+    /// Records the classes of a categorical map.
+    pub fn note_class(&self, name: &str, c: RGBColor) {
+        self.report
+            .borrow_mut()
+            .classes
+            .push((name.to_string(), (c.0, c.1, c.2)));
     }
 }
 
@@ -305,6 +503,9 @@ pub struct Bitmap {
     pub rect: Rect,
     /// PNG bytes.
     pub png: Vec<u8>,
+    /// Smooth scaling instead of sharp pixels: for images with more columns or rows than a
+    /// few per screen pixel, where sharp scaling makes moiré.
+    pub smooth: bool,
 }
 
 /// Draws a `width_px` x `height_px` picture on a white background with `draw`, then returns the
@@ -314,7 +515,7 @@ pub fn draw_svg(
     height_px: u32,
     bitmaps: &[Bitmap],
     draw: impl FnOnce(&Canvas) -> Result<(), PlotError>,
-) -> Result<String, PlotError> {
+) -> Result<(String, LayoutReport), PlotError> {
     check_size(width_px, height_px)?;
     style::ensure_fonts()?;
     let big = (
@@ -322,14 +523,22 @@ pub fn draw_svg(
         (f64::from(height_px) * OVERSAMPLE) as u32,
     );
     let mut buf = String::new();
-    {
+    let report = {
         let root = SVGBackend::with_string(&mut buf, big).into_drawing_area();
         root.fill(&WHITE).map_err(draw_err)?;
-        let canvas = Canvas { root };
+        let canvas = Canvas {
+            root,
+            report: std::cell::RefCell::new(LayoutReport {
+                width: f64::from(width_px),
+                height: f64::from(height_px),
+                ..LayoutReport::default()
+            }),
+        };
         draw(&canvas)?;
         canvas.root.present().map_err(draw_err)?;
-    }
-    finish_svg(&buf, (width_px, height_px), big, bitmaps)
+        canvas.report.into_inner()
+    };
+    Ok((finish_svg(&buf, (width_px, height_px), big, bitmaps)?, report))
 }
 
 /// Sets the picture size back to 1x (keeping the oversampled `viewBox`), declares the xlink
@@ -361,8 +570,9 @@ fn finish_svg(
     out.push_str(&rest[..bg_end]);
     for b in bitmaps {
         let href = format!("data:image/png;base64,{}", base64(&b.png));
+        let rendering = if b.smooth { "optimizeQuality" } else { "pixelated" };
         out.push_str(&format!(
-            "<image x=\"{}\" y=\"{}\" width=\"{}\" height=\"{}\" preserveAspectRatio=\"none\" image-rendering=\"pixelated\" style=\"image-rendering:pixelated\" href=\"{href}\" xlink:href=\"{href}\"/>\n",
+            "<image x=\"{}\" y=\"{}\" width=\"{}\" height=\"{}\" preserveAspectRatio=\"none\" image-rendering=\"{rendering}\" style=\"image-rendering:{rendering}\" href=\"{href}\" xlink:href=\"{href}\"/>\n",
             k(b.rect.x0),
             k(b.rect.y0),
             k(b.rect.w()),
@@ -507,6 +717,86 @@ pub fn x_ticks(lo: f64, hi: f64, len_px: f64, sizes: &Sizes) -> (Vec<f64>, Vec<S
         }
         n -= 1;
     }
+}
+
+/// Label of the value `10^e` on a logarithmic axis: plain for 0.001 ..= 10000 (e.g. "0.01",
+/// "300"), otherwise a mantissa and a power of ten with superscript digits (e.g. "10⁶",
+/// "2×10⁵").
+pub fn log_label(e: f64) -> String {
+    let v = 10f64.powf(e);
+    let k = e.floor();
+    let mant = (v / 10f64.powf(k)).round();
+    if (-3.0..=4.0).contains(&k) {
+        let decimals = if k < 0.0 { (-k) as usize } else { 0 };
+        return format!("{:.*}", decimals, mant * 10f64.powf(k));
+    }
+    const SUP: [char; 10] = ['⁰', '¹', '²', '³', '⁴', '⁵', '⁶', '⁷', '⁸', '⁹'];
+    let mut p = String::new();
+    if k < 0.0 {
+        p.push('⁻');
+    }
+    for ch in format!("{}", k.abs() as i64).chars() {
+        p.push(SUP[ch.to_digit(10).unwrap_or(0) as usize]);
+    }
+    if mant == 1.0 {
+        format!("10{p}")
+    } else {
+        format!("{mant}×10{p}")
+    }
+}
+
+/// Ticks of a logarithmic axis whose range `(lo, hi)` is given in log10 units: powers of ten
+/// (every second or fifth one when they would crowd), or 1-2-5 steps when the range spans
+/// under two decades. Positions are in log10 units; labels show the values.
+pub fn log_ticks(lo: f64, hi: f64, len_px: f64, sizes: &Sizes) -> (Vec<f64>, Vec<String>) {
+    let fits = |t: &[f64], l: &[String]| {
+        let widest = l
+            .iter()
+            .map(|s| style::text_width(s, sizes.tick, false))
+            .fold(0.0, f64::max);
+        // Closest pair of neighbouring ticks, in pixels.
+        let closest = t
+            .windows(2)
+            .map(|w| (w[1] - w[0]) / (hi - lo) * len_px)
+            .fold(f64::INFINITY, f64::min);
+        widest + 1.5 * style::em(sizes.tick) <= closest
+    };
+    let mut best: Option<(Vec<f64>, Vec<String>)> = None;
+    for mantissas in [&[1.0, 2.0, 5.0][..], &[1.0, 3.0][..]] {
+        let mut t = Vec::new();
+        for k in (lo.floor() as i64)..=(hi.ceil() as i64) {
+            for m in mantissas {
+                let e = k as f64 + f64::log10(*m);
+                if e >= lo - 1e-9 && e <= hi + 1e-9 {
+                    t.push(e);
+                }
+            }
+        }
+        let l: Vec<String> = t.iter().map(|&e| log_label(e)).collect();
+        if t.len() >= 3 && fits(&t, &l) {
+            return (t, l);
+        }
+        if best.is_none() && t.len() >= 2 && fits(&t, &l) {
+            best = Some((t, l));
+        }
+    }
+    if hi - lo >= 1.0 {
+        for every in [1i64, 2, 3, 5, 10, 20, 50] {
+            let t: Vec<f64> = ((lo - 1e-9).ceil() as i64..=(hi + 1e-9).floor() as i64)
+                .filter(|k| k.rem_euclid(every) == 0)
+                .map(|k| k as f64)
+                .collect();
+            let l: Vec<String> = t.iter().map(|&e| log_label(e)).collect();
+            if t.len() >= 2 && fits(&t, &l) {
+                return (t, l);
+            }
+        }
+    }
+    best.unwrap_or_else(|| {
+        let t = vec![lo, hi];
+        let l = t.iter().map(|&e| log_label(e)).collect();
+        (t, l)
+    })
 }
 
 /// Ticks and labels along a vertical axis of `len_px` pixels (about three ems apart or more).
@@ -930,6 +1220,7 @@ pub fn draw_legend(
     let (sample, row, pad) = legend_metrics(sizes);
     let (w, h) = legend_size(entries, horizontal, sizes);
     let bx = Rect::at(origin.0, origin.1, w, h);
+    c.note_legend(bx);
     if framed {
         c.fill_rect(bx, WHITE.mix(0.88))?;
         c.frame_rect(bx, FRAME_GREY.to_rgba(), 0.8 * sizes.frame)?;
@@ -959,13 +1250,12 @@ pub fn draw_legend(
                 shape,
                 casing,
             } => {
-                for dx in [0.25, 0.75] {
-                    let p = (s0 + dx * sample, y);
-                    if let Some(cs) = casing {
-                        c.point(*shape, p, sizes.marker + 1.5 * sizes.halo, cs.to_rgba())?;
-                    }
-                    c.point(*shape, p, sizes.marker, colour.to_rgba())?;
+                // One marker in the middle of the sample (two read as a doubled symbol).
+                let p = (s0 + 0.5 * sample, y);
+                if let Some(cs) = casing {
+                    c.point(*shape, p, sizes.marker + 1.5 * sizes.halo, cs.to_rgba())?;
                 }
+                c.point(*shape, p, sizes.marker, colour.to_rgba())?;
             }
             Swatch::Fill(colour) => {
                 let r = Rect::at(s0, y - 0.38 * row, sample, 0.76 * row);
@@ -1064,6 +1354,37 @@ mod tests {
             .abs()
             / 2.0;
         assert!((area - 30.0).abs() < 1e-9, "{area} {p:?}");
+    }
+
+    #[test]
+    fn simplify_keeps_corners_and_drops_straight_runs() {
+        let line: Vec<(f64, f64)> = (0..=100)
+            .map(|i| (f64::from(i), 0.0))
+            .chain([(100.0, 50.0)])
+            .collect();
+        let s = simplify(&line, 0.05);
+        assert_eq!(s, vec![(0.0, 0.0), (100.0, 0.0), (100.0, 50.0)]);
+        // A curve keeps every point that is needed to stay within the tolerance.
+        let arc: Vec<(f64, f64)> = (0..=200)
+            .map(|i| {
+                let t = f64::from(i) / 200.0 * std::f64::consts::PI;
+                (100.0 * t.cos(), 100.0 * t.sin())
+            })
+            .collect();
+        let s = simplify(&arc, 0.05);
+        assert!(s.len() > 10 && s.len() < arc.len(), "{}", s.len());
+        for p in &arc {
+            let d = s
+                .windows(2)
+                .map(|w| {
+                    let (a, b) = (w[0], w[1]);
+                    let (dx, dy) = (b.0 - a.0, b.1 - a.1);
+                    let t = (((p.0 - a.0) * dx + (p.1 - a.1) * dy) / (dx * dx + dy * dy)).clamp(0.0, 1.0);
+                    (p.0 - a.0 - t * dx).hypot(p.1 - a.1 - t * dy)
+                })
+                .fold(f64::INFINITY, f64::min);
+            assert!(d <= 0.05 + 1e-12, "{p:?} moved by {d}");
+        }
     }
 
     #[test]

@@ -127,6 +127,18 @@ pub struct Band {
     pub colour: usize,
 }
 
+/// An arrow from one point to another (data units), e.g. the jump of a sweep at a tipping
+/// point.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Arrow {
+    /// Tail (x, y).
+    pub from: (f64, f64),
+    /// Head (x, y).
+    pub to: (f64, f64),
+    /// Palette index.
+    pub colour: usize,
+}
+
 /// One plot area with its axes.
 #[derive(Debug, Clone, PartialEq, Default)]
 pub struct Panel {
@@ -144,6 +156,19 @@ pub struct Panel {
     pub bands: Vec<Band>,
     /// Fixed y range (lower, upper); `None` fits the data with a small margin.
     pub y_range: Option<(f64, f64)>,
+    /// Fixed x range; the figure's shared x range covers the ranges of all panels that set
+    /// one (else the data).
+    pub x_range: Option<(f64, f64)>,
+    /// Logarithmic x axis (values at or below zero are left out); the figure's shared axis
+    /// is logarithmic if any panel asks for it.
+    pub x_log: bool,
+    /// Arrows drawn over the data.
+    pub arrows: Vec<Arrow>,
+    /// x spans shaded light grey over the full height (e.g. where there is ice), with the
+    /// legend text of the shading.
+    pub shade_x: Vec<(f64, f64)>,
+    /// Legend text of the shaded spans.
+    pub shade_label: Option<String>,
 }
 
 impl Panel {
@@ -225,6 +250,7 @@ fn panel_x(p: &Panel) -> impl Iterator<Item = &f64> {
         .flat_map(|s| s.x.iter())
         .chain(p.bands.iter().flat_map(|b| b.x.iter()))
         .chain(p.markers.iter().map(|m| &m.x))
+        .chain(p.x_range.iter().flat_map(|r| [&r.0, &r.1]))
 }
 
 /// Range of the y values whose x lies in `xr`.
@@ -259,6 +285,12 @@ fn has_data(p: &Panel) -> bool {
 
 fn legend_entries(p: &Panel) -> Vec<LegendEntry> {
     let mut out = Vec::new();
+    if let (Some(l), false) = (&p.shade_label, p.shade_x.is_empty()) {
+        out.push(LegendEntry {
+            label: l.clone(),
+            swatch: Swatch::Fill(style::SHADE.to_rgba()),
+        });
+    }
     for b in &p.bands {
         if let Some(l) = &b.label {
             out.push(LegendEntry {
@@ -292,6 +324,7 @@ struct PanelLayout {
 
 /// Geometry of the whole figure.
 struct Layout {
+    title: Vec<String>,
     panels: Vec<PanelLayout>,
     xt: (Vec<f64>, Vec<String>),
     y_name_x: f64,
@@ -308,12 +341,16 @@ fn layout(
 ) -> Result<Layout, PlotError> {
     let (w, h) = (f64::from(fig.width_px), f64::from(fig.height_px));
     let n = fig.panels.len();
-    let top = sizes.margin
-        + if fig.title.is_empty() {
-            0.0
+    let title_lines = canvas::wrap_text(&fig.title, sizes.title, true, w - 2.0 * sizes.margin);
+    let top = sizes.margin + canvas::title_height(title_lines.len(), sizes);
+    let log = fig.panels.iter().any(|p| p.x_log);
+    let x_ticks = |len: f64| {
+        if log {
+            canvas::log_ticks(xr.0, xr.1, len, sizes)
         } else {
-            1.5 * em(sizes.title)
-        };
+            canvas::x_ticks(xr.0, xr.1, len, sizes)
+        }
+    };
     let shows_x_name: Vec<bool> = (0..n)
         .map(|i| i + 1 == n || fig.panels[i].x_label != fig.panels[i + 1].x_label)
         .collect();
@@ -351,13 +388,15 @@ fn layout(
             .fold(0.0, f64::max);
     // Room right of the plots for half of the last x tick label.
     let mut right = w - sizes.margin - legend_column_w;
-    let (_, first) = canvas::x_ticks(xr.0, xr.1, (right - left).max(1.0), sizes);
+    let (_, first) = x_ticks((right - left).max(1.0));
     let widest = first
         .iter()
         .map(|s| style::text_width(s, sizes.tick, false))
         .fold(0.0, f64::max);
     if legend_column_w == 0.0 {
-        right -= (0.5 * widest - sizes.margin).max(0.0);
+        // Half of the last tick label may stick out right of the plot: keep it inside the
+        // picture's margin.
+        right -= 0.5 * widest;
     }
     if right - left < 6.0 * em(sizes.tick) {
         return Err(PlotError::TooSmall {
@@ -367,7 +406,7 @@ fn layout(
             plot_height: plot_h,
         });
     }
-    let xt = canvas::x_ticks(xr.0, xr.1, right - left, sizes);
+    let xt = x_ticks(right - left);
     let mut y = top;
     let mut panels = Vec::with_capacity(n);
     for i in 0..n {
@@ -390,6 +429,7 @@ fn layout(
         });
     }
     Ok(Layout {
+        title: title_lines,
         panels,
         xt,
         y_name_x: sizes.margin,
@@ -478,7 +518,12 @@ fn place_labels(p: &Panel, map: &Mapping, occ: &mut Occupancy, sizes: &Sizes) ->
         );
         let mut best: Option<(u64, usize, Rect, bool)> = None;
         let mut order = 0;
-        for (dist, leader) in [(ring + 0.6 * sizes.gap, false), (ring + 4.0 * sizes.gap, true)] {
+        for (dist, leader) in [
+            (ring + 0.6 * sizes.gap, false),
+            (ring + 4.0 * sizes.gap, true),
+            (ring + 9.0 * sizes.gap, true),
+            (ring + 15.0 * sizes.gap, true),
+        ] {
             let d = dist;
             let cands = [
                 (c.0 + d, c.1 - d - h),       // upper right
@@ -494,6 +539,26 @@ fn place_labels(p: &Panel, map: &Mapping, occ: &mut Occupancy, sizes: &Sizes) ->
                 let r = Rect::at(x, y, w, h);
                 order += 1;
                 if !inner.contains(&r) {
+                    continue;
+                }
+                // Never over another label, nor with a leader crossing another label's
+                // leader or box.
+                let lead = leader.then(|| leader_line(c, &r, ring));
+                let clash = spots.iter().any(|s: &LabelSpot| {
+                    s.text_box.inflate(0.3 * sizes.gap).overlaps(&r)
+                        || lead.is_some_and(|(a, b)| {
+                            segment_hits_rect(a, b, &s.text_box)
+                                || s.leader && {
+                                    let (p, q) = leader_line(s.point, &s.text_box, ring);
+                                    segments_cross(a, b, p, q)
+                                }
+                        })
+                        || s.leader && {
+                            let (p, q) = leader_line(s.point, &s.text_box, ring);
+                            segment_hits_rect(p, q, &r)
+                        }
+                });
+                if clash {
                     continue;
                 }
                 let ink = occ.ink_in(&r);
@@ -524,6 +589,33 @@ fn place_labels(p: &Panel, map: &Mapping, occ: &mut Occupancy, sizes: &Sizes) ->
         });
     }
     spots
+}
+
+/// The leader from the ring around `point` to the nearest point of the label box `b`.
+fn leader_line(point: (f64, f64), b: &Rect, ring: f64) -> ((f64, f64), (f64, f64)) {
+    let target = (point.0.clamp(b.x0, b.x1), point.1.clamp(b.y0, b.y1));
+    let (dx, dy) = (target.0 - point.0, target.1 - point.1);
+    let d = dx.hypot(dy).max(1e-9);
+    ((point.0 + dx / d * ring, point.1 + dy / d * ring), target)
+}
+
+/// Whether segments a-b and p-q cross (proper intersection).
+fn segments_cross(a: (f64, f64), b: (f64, f64), p: (f64, f64), q: (f64, f64)) -> bool {
+    let side =
+        |o: (f64, f64), u: (f64, f64), v: (f64, f64)| (u.0 - o.0) * (v.1 - o.1) - (u.1 - o.1) * (v.0 - o.0);
+    let (d1, d2) = (side(p, q, a), side(p, q, b));
+    let (d3, d4) = (side(a, b, p), side(a, b, q));
+    d1 * d2 < 0.0 && d3 * d4 < 0.0
+}
+
+/// Whether the segment a-b passes through the inside of `r`.
+fn segment_hits_rect(a: (f64, f64), b: (f64, f64), r: &Rect) -> bool {
+    let inner = r.inflate(-0.5);
+    (0..=16).any(|k| {
+        let t = f64::from(k) / 16.0;
+        let (x, y) = (a.0 + t * (b.0 - a.0), a.1 + t * (b.1 - a.1));
+        x > inner.x0 && x < inner.x1 && y > inner.y0 && y < inner.y1
+    })
 }
 
 /// Inside corners (and edge midpoints) to try for a legend of size `(w, h)`, best first.
@@ -578,6 +670,14 @@ fn place(p: &Panel, map: &Mapping, sizes: &Sizes) -> Placement {
             }
         }
     }
+    for ar in &p.arrows {
+        let (t, h) = (map.px(ar.from.0, ar.from.1), map.px(ar.to.0, ar.to.1));
+        if t.0.is_finite() && t.1.is_finite() && h.0.is_finite() && h.1.is_finite() {
+            for l in clip_polyline(&[t, h], &map.area) {
+                occ.mark_polyline(&l);
+            }
+        }
+    }
     for m in &p.markers {
         let c = map.px(m.x, m.y);
         if c.0.is_finite() && c.1.is_finite() {
@@ -617,8 +717,47 @@ fn crossings(poly: &[(f64, f64)], x: f64) -> Vec<f64> {
 
 /// Draws a figure and returns its SVG text (see the module doc for what goes where).
 pub fn figure_svg(fig: &Figure) -> Result<String, PlotError> {
+    figure_layout(fig).map(|(svg, _)| svg)
+}
+
+/// The figure with every x value replaced by its log10 (values at or below zero by NaN), for
+/// a logarithmic x axis.
+fn to_log_x(fig: &Figure) -> Figure {
+    let l = |v: f64| if v > 0.0 { v.log10() } else { f64::NAN };
+    let mut f = fig.clone();
+    for p in &mut f.panels {
+        for s in &mut p.series {
+            s.x.iter_mut().for_each(|v| *v = l(*v));
+        }
+        for b in &mut p.bands {
+            b.x.iter_mut().for_each(|v| *v = l(*v));
+        }
+        for m in &mut p.markers {
+            m.x = l(m.x);
+        }
+        for a in &mut p.arrows {
+            a.from.0 = l(a.from.0);
+            a.to.0 = l(a.to.0);
+        }
+        for sp in &mut p.shade_x {
+            *sp = (l(sp.0), l(sp.1));
+        }
+        p.x_range = p.x_range.map(|(a, b)| (l(a), l(b)));
+    }
+    f
+}
+
+/// Draws a figure and returns its SVG text and where every text, legend and data line went.
+pub fn figure_layout(fig: &Figure) -> Result<(String, canvas::LayoutReport), PlotError> {
     validate(fig)?;
     style::ensure_fonts()?;
+    let logged;
+    let fig = if fig.panels.iter().any(|p| p.x_log) {
+        logged = to_log_x(fig);
+        &logged
+    } else {
+        fig
+    };
     let sizes = Sizes::for_picture(fig.width_px, fig.height_px);
     // Shared x range: tight for lines, with a margin when points or markers could sit on
     // the frame.
@@ -626,18 +765,29 @@ pub fn figure_svg(fig: &Figure) -> Result<String, PlotError> {
         .panels
         .iter()
         .any(|p| !p.markers.is_empty() || p.series.iter().any(|s| s.stroke.point_shape().is_some()));
-    let xr = padded(
-        finite_range(fig.panels.iter().flat_map(panel_x)),
-        if pointy { 0.04 } else { 0.0 },
+    let fixed_x = finite_range(
+        fig.panels
+            .iter()
+            .flat_map(|p| p.x_range.iter().flat_map(|r| [&r.0, &r.1])),
     );
+    let xr = match fixed_x {
+        Some((lo, hi)) if hi > lo => (lo, hi),
+        _ => padded(
+            finite_range(fig.panels.iter().flat_map(panel_x)),
+            if pointy { 0.04 } else { 0.0 },
+        ),
+    };
     let yrs: Vec<(f64, f64)> = fig
         .panels
         .iter()
         .map(|p| p.y_range.unwrap_or_else(|| padded(panel_y_range(p, xr), 0.06)))
         .collect();
 
-    // First try with every legend inside its plot; if one finds no free spot, make a column
-    // for legends right of the plots and place again.
+    // First try with every legend inside its plot; if one finds no free spot in a panel whose
+    // y range is free, raise the top of that range so the legend's height stays clear above
+    // the data, and place again; if a legend still finds no spot, make a column for legends
+    // right of the plots and place again.
+    let mut yrs = yrs;
     let mut lay = layout(fig, &sizes, xr, &yrs, 0.0)?;
     let mut placed: Vec<Placement> = fig
         .panels
@@ -645,6 +795,29 @@ pub fn figure_svg(fig: &Figure) -> Result<String, PlotError> {
         .zip(&lay.panels)
         .map(|(p, pl)| place(p, &pl.map, &sizes))
         .collect();
+    let mut raised = false;
+    for (i, p) in fig.panels.iter().enumerate() {
+        let entries = legend_entries(p);
+        if placed[i].legend.is_some() || entries.is_empty() || p.y_range.is_some() {
+            continue;
+        }
+        let h = lay.panels[i].map.area.h();
+        let room = legend_size(&entries, false, &sizes).1 + 2.5 * sizes.gap;
+        if room < 0.5 * h {
+            let (lo, hi) = yrs[i];
+            yrs[i] = (lo, lo + (hi - lo) * h / (h - room));
+            raised = true;
+        }
+    }
+    if raised {
+        lay = layout(fig, &sizes, xr, &yrs, 0.0)?;
+        placed = fig
+            .panels
+            .iter()
+            .zip(&lay.panels)
+            .map(|(p, pl)| place(p, &pl.map, &sizes))
+            .collect();
+    }
     let needs_column = fig
         .panels
         .iter()
@@ -669,17 +842,7 @@ pub fn figure_svg(fig: &Figure) -> Result<String, PlotError> {
     }
 
     canvas::draw_svg(fig.width_px, fig.height_px, &[], |c| {
-        if !fig.title.is_empty() {
-            c.text(
-                &fig.title,
-                (0.5 * f64::from(fig.width_px), sizes.margin),
-                sizes.title,
-                true,
-                Anchor::new(HPos::Center, VPos::Top),
-                false,
-                BLACK,
-            )?;
-        }
+        canvas::draw_title(c, &lay.title, 0.5 * f64::from(fig.width_px), sizes.margin, &sizes)?;
         for ((p, pl), placement) in fig.panels.iter().zip(&lay.panels).zip(&placed) {
             draw_panel(c, p, pl, &lay, placement, &sizes)?;
         }
@@ -708,8 +871,39 @@ fn draw_panel(
             BLACK,
         )?;
     }
-    // Grid first, then the data, then the frame and ticks on top.
+    // Shading, grid, then the data, then the frame and ticks on top.
+    for &(x0, x1) in &p.shade_x {
+        let (px0, _) = map.px(x0.min(x1), map.y.0);
+        let (px1, _) = map.px(x0.max(x1), map.y.0);
+        let (px0, px1) = (px0.max(a.x0), px1.min(a.x1));
+        if px0.is_finite() && px1.is_finite() && px1 > px0 {
+            c.fill_rect(
+                Rect {
+                    x0: px0,
+                    y0: a.y0,
+                    x1: px1,
+                    y1: a.y1,
+                },
+                style::SHADE.to_rgba(),
+            )?;
+        }
+    }
     canvas::draw_grid(c, map, &lay.xt.0, &pl.yt.0, sizes)?;
+    let mut data = canvas::PlotData {
+        area: a,
+        lines: Vec::new(),
+    };
+    for d in &placement.drawn {
+        data.lines.extend(d.lines.iter().cloned());
+        data.lines.extend(d.dots.iter().map(|&p| vec![p]));
+    }
+    for polys in &placement.bands {
+        for poly in polys {
+            let mut closed = poly.clone();
+            closed.push(poly[0]);
+            data.lines.push(closed);
+        }
+    }
     for (band, polys) in p.bands.iter().zip(&placement.bands) {
         let colour = style::with_alpha(style::series_colour(band.colour), style::BAND_OPACITY);
         for poly in polys {
@@ -738,6 +932,42 @@ fn draw_panel(
             c.point(shape, pt, r, colour)?;
         }
     }
+    for ar in &p.arrows {
+        let (t, h) = (map.px(ar.from.0, ar.from.1), map.px(ar.to.0, ar.to.1));
+        if !(t.0.is_finite() && t.1.is_finite() && h.0.is_finite() && h.1.is_finite()) {
+            continue;
+        }
+        let colour = style::series_colour(ar.colour).to_rgba();
+        let (dx, dy) = (h.0 - t.0, h.1 - t.1);
+        let len = dx.hypot(dy);
+        if len < 1.0 {
+            continue;
+        }
+        let (ux, uy) = (dx / len, dy / len);
+        let head = (4.0 * sizes.marker).min(0.5 * len);
+        let base = (h.0 - ux * head, h.1 - uy * head);
+        let pieces = clip_polyline(&[t, base], &a);
+        for l in &pieces {
+            c.line(l, colour, 0.8 * sizes.line)?;
+            data.lines.push(l.clone());
+        }
+        let w = 0.45 * head;
+        let tri = [
+            h,
+            (base.0 - uy * w, base.1 + ux * w),
+            (base.0 + uy * w, base.1 - ux * w),
+        ];
+        if tri
+            .iter()
+            .all(|q| a.inflate(0.5).contains(&Rect::at(q.0, q.1, 0.0, 0.0)))
+        {
+            c.polygon(&tri, colour)?;
+        }
+    }
+    for spot in &placement.labels {
+        data.lines.push(vec![spot.point]);
+    }
+    c.note_plot(data);
     if !has_data(p) {
         c.text(
             "no data",
@@ -765,10 +995,7 @@ fn draw_panel(
         c.point(PointShape::Disc, spot.point, 0.55 * sizes.marker, BLACK.to_rgba())?;
         let b = spot.text_box;
         if spot.leader {
-            let target = (spot.point.0.clamp(b.x0, b.x1), spot.point.1.clamp(b.y0, b.y1));
-            let (dx, dy) = (target.0 - spot.point.0, target.1 - spot.point.1);
-            let d = dx.hypot(dy).max(1e-9);
-            let start = (spot.point.0 + dx / d * ring, spot.point.1 + dy / d * ring);
+            let (start, target) = leader_line(spot.point, &b, ring);
             c.line(&[start, target], BLACK.to_rgba(), sizes.frame)?;
         }
         c.fill_rect(b, WHITE.mix(0.85))?;

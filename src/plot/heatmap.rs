@@ -57,6 +57,19 @@ pub struct HeatMap {
     pub categorical: Option<Vec<(f64, String)>>,
     /// Fixed colour-scale limits (lower, upper); `None` uses the range of the finite values.
     pub z_range: Option<(f64, f64)>,
+    /// Cells blended smoothly instead of drawn sharp: for fields that change from cell to
+    /// cell faster than a few screen pixels (e.g. a resolved seasonal cycle), where sharp
+    /// cells narrower than the pixel grid beat against it (moiré).
+    pub smooth: bool,
+    /// Logarithmic x axis (all x values and edges must be positive).
+    pub x_log: bool,
+    /// Logarithmic y axis (all y values and edges must be positive).
+    pub y_log: bool,
+    /// Colours of the classes of a categorical map, one per class; `None` takes evenly
+    /// spaced viridis colours.
+    pub class_colours: Option<Vec<RGBColor>>,
+    /// A note printed under the class list (e.g. what a class boundary means).
+    pub note: Option<String>,
     /// Picture width in pixels (64 ..= 10000).
     pub width_px: u32,
     /// Picture height in pixels (64 ..= 10000).
@@ -210,15 +223,15 @@ fn class_index(classes: &[(f64, String)], v: f64) -> Option<usize> {
 /// How z values become colours.
 enum Scale {
     Continuous { lo: f64, hi: f64 },
-    Classes(Vec<(f64, String)>),
+    Classes(Vec<(f64, String)>, Option<Vec<RGBColor>>),
 }
 
 impl Scale {
-    fn class_colour(k: usize, n: usize) -> RGBColor {
-        if n <= 1 {
-            style::viridis(0.5)
-        } else {
-            style::viridis(k as f64 / (n - 1) as f64)
+    fn class_colour(&self, k: usize) -> RGBColor {
+        match self {
+            Scale::Classes(_, Some(c)) if k < c.len() => c[k],
+            Scale::Classes(cl, _) if cl.len() > 1 => style::viridis(k as f64 / (cl.len() - 1) as f64),
+            _ => style::viridis(0.5),
         }
     }
 
@@ -230,7 +243,7 @@ impl Scale {
         }
         match self {
             Scale::Continuous { lo, hi } => Some(style::viridis((v - lo) / (hi - lo))),
-            Scale::Classes(cl) => class_index(cl, v).map(|k| Self::class_colour(k, cl.len())),
+            Scale::Classes(cl, _) => class_index(cl, v).map(|k| self.class_colour(k)),
         }
     }
 }
@@ -282,6 +295,7 @@ fn overlay_entries(m: &HeatMap) -> Vec<LegendEntry> {
 
 /// Geometry of a heat map picture.
 struct Layout {
+    title: Vec<String>,
     map: Mapping,
     xt: (Vec<f64>, Vec<String>),
     yt: (Vec<f64>, Vec<String>),
@@ -297,12 +311,8 @@ fn layout(m: &HeatMap, scale: &Scale, sizes: &Sizes) -> Result<Layout, PlotError
     let (w, h) = (f64::from(m.width_px), f64::from(m.height_px));
     let (xe, ye) = cell_edges(m);
     let (xr, yr) = ((xe[0], xe[xe.len() - 1]), (ye[0], ye[ye.len() - 1]));
-    let mut top = sizes.margin
-        + if m.title.is_empty() {
-            0.0
-        } else {
-            1.5 * em(sizes.title)
-        };
+    let title = canvas::wrap_text(&m.title, sizes.title, true, w - 2.0 * sizes.margin);
+    let mut top = sizes.margin + canvas::title_height(title.len(), sizes);
     let entries = overlay_entries(m);
     let legend_at = if entries.is_empty() {
         top += 0.6 * em(sizes.tick);
@@ -322,7 +332,11 @@ fn layout(m: &HeatMap, scale: &Scale, sizes: &Sizes) -> Result<Layout, PlotError
             plot_height: plot_h,
         });
     }
-    let yt = canvas::y_ticks(yr.0, yr.1, plot_h, sizes);
+    let yt = if m.y_log {
+        canvas::log_ticks(yr.0, yr.1, plot_h, sizes)
+    } else {
+        canvas::y_ticks(yr.0, yr.1, plot_h, sizes)
+    };
     let left = sizes.margin + canvas::y_axis_width(&yt.1, true, sizes);
     // Right-hand side: colour bar with ticks and name, or the class list.
     let bar_w = 1.3 * em(sizes.axis_label);
@@ -337,7 +351,7 @@ fn layout(m: &HeatMap, scale: &Scale, sizes: &Sizes) -> Result<Layout, PlotError
                 bar_w + sizes.tick_len + 0.5 * sizes.gap + widest + sizes.gap + 1.25 * em(sizes.axis_label);
             (zt, side)
         }
-        Scale::Classes(cl) => {
+        Scale::Classes(cl, _) => {
             let widest = cl
                 .iter()
                 .map(|(_, n)| style::text_width(n, sizes.legend, false))
@@ -359,12 +373,17 @@ fn layout(m: &HeatMap, scale: &Scale, sizes: &Sizes) -> Result<Layout, PlotError
         });
     }
     let area = Rect::at(left, top, right - left, plot_h);
-    let xt = canvas::x_ticks(xr.0, xr.1, area.w(), sizes);
+    let xt = if m.x_log {
+        canvas::log_ticks(xr.0, xr.1, area.w(), sizes)
+    } else {
+        canvas::x_ticks(xr.0, xr.1, area.w(), sizes)
+    };
     let side = match scale {
         Scale::Continuous { .. } => Rect::at(right + gap_to_side, top, bar_w, plot_h),
-        Scale::Classes(_) => Rect::at(right + gap_to_side, top, side_w, plot_h),
+        Scale::Classes(..) => Rect::at(right + gap_to_side, top, side_w, plot_h),
     };
     Ok(Layout {
+        title,
         map: Mapping { area, x: xr, y: yr },
         xt,
         yt,
@@ -419,11 +438,57 @@ fn length(l: &[(f64, f64)]) -> f64 {
 
 /// Draws a heat map and returns its SVG text (see the module doc).
 pub fn heatmap_svg(m: &HeatMap) -> Result<String, PlotError> {
+    heatmap_layout(m).map(|(svg, _)| svg)
+}
+
+/// The map with x and/or y (centres, edges, overlays) replaced by log10 for logarithmic axes.
+fn to_log(m: &HeatMap) -> Result<HeatMap, PlotError> {
+    let mut out = m.clone();
+    let l = |v: f64| if v > 0.0 { v.log10() } else { f64::NAN };
+    let (xe, ye) = cell_edges(m);
+    for (on, what, e) in [
+        (m.x_log, "heat map x (log axis)", &xe),
+        (m.y_log, "heat map y (log axis)", &ye),
+    ] {
+        if on && e[0] <= 0.0 {
+            return Err(PlotError::BadRange {
+                what: what.into(),
+                lo: e[0],
+                hi: e[e.len() - 1],
+            });
+        }
+    }
+    if m.x_log {
+        out.x = m.x.iter().map(|&v| l(v)).collect();
+        out.x_edges = Some(xe.iter().map(|&v| l(v)).collect());
+        for s in &mut out.overlay {
+            s.x.iter_mut().for_each(|v| *v = l(*v));
+        }
+    }
+    if m.y_log {
+        out.y = m.y.iter().map(|&v| l(v)).collect();
+        out.y_edges = Some(ye.iter().map(|&v| l(v)).collect());
+        for s in &mut out.overlay {
+            s.y.iter_mut().for_each(|v| *v = l(*v));
+        }
+    }
+    Ok(out)
+}
+
+/// Draws a heat map and returns its SVG text and where every text, legend and line went.
+pub fn heatmap_layout(m: &HeatMap) -> Result<(String, canvas::LayoutReport), PlotError> {
     validate(m)?;
     style::ensure_fonts()?;
+    let logged;
+    let m = if m.x_log || m.y_log {
+        logged = to_log(m)?;
+        &logged
+    } else {
+        m
+    };
     let sizes = Sizes::for_picture(m.width_px, m.height_px);
     let scale = match &m.categorical {
-        Some(cl) => Scale::Classes(cl.clone()),
+        Some(cl) => Scale::Classes(cl.clone(), m.class_colours.clone()),
         None => {
             let (lo, hi) = m
                 .z_range
@@ -433,14 +498,20 @@ pub fn heatmap_svg(m: &HeatMap) -> Result<String, PlotError> {
     };
     let lay = layout(m, &scale, &sizes)?;
     let map = &lay.map;
+    // Smooth cells when asked and the cells are narrower than three screen pixels.
+    let (xe, ye) = cell_edges(m);
+    let smooth = m.smooth
+        && ((xe.len() - 1) as f64 > map.area.w() / 3.0 || (ye.len() - 1) as f64 > map.area.h() / 3.0);
     let mut bitmaps = vec![Bitmap {
         rect: map.area,
         png: field_png(m, &scale)?,
+        smooth: smooth && matches!(scale, Scale::Continuous { .. }),
     }];
     if matches!(scale, Scale::Continuous { .. }) {
         bitmaps.push(Bitmap {
             rect: lay.side,
             png: bar_png()?,
+            smooth: false,
         });
     }
 
@@ -504,17 +575,19 @@ pub fn heatmap_svg(m: &HeatMap) -> Result<String, PlotError> {
     }
 
     canvas::draw_svg(m.width_px, m.height_px, &bitmaps, |c| {
-        if !m.title.is_empty() {
-            c.text(
-                &m.title,
-                (0.5 * f64::from(m.width_px), sizes.margin),
-                sizes.title,
-                true,
-                Anchor::new(HPos::Center, VPos::Top),
-                false,
-                BLACK,
-            )?;
+        canvas::draw_title(c, &lay.title, 0.5 * f64::from(m.width_px), sizes.margin, &sizes)?;
+        let mut data = canvas::PlotData {
+            area: map.area,
+            lines: Vec::new(),
+        };
+        for (lines, dots) in &overlays {
+            data.lines.extend(lines.iter().cloned());
+            data.lines.extend(dots.iter().map(|&p| vec![p]));
         }
+        for (_, _, pieces) in &contours {
+            data.lines.extend(pieces.iter().cloned());
+        }
+        c.note_plot(data);
         // Contours: black with a thin white halo, visible on both ends of viridis.
         for (_, _, pieces) in &contours {
             for l in pieces {
@@ -556,7 +629,7 @@ pub fn heatmap_svg(m: &HeatMap) -> Result<String, PlotError> {
         }
         match &scale {
             Scale::Continuous { lo, hi } => draw_colour_bar(c, m, &lay, (*lo, *hi), &contours, &sizes),
-            Scale::Classes(cl) => draw_classes(c, m, &lay, cl, &sizes),
+            Scale::Classes(cl, _) => draw_classes(c, m, &lay, cl, &scale, &sizes),
         }
     })
 }
@@ -664,6 +737,7 @@ fn draw_classes(
     m: &HeatMap,
     lay: &Layout,
     classes: &[(f64, String)],
+    scale: &Scale,
     sizes: &Sizes,
 ) -> Result<(), PlotError> {
     let at = lay.side;
@@ -687,9 +761,12 @@ fn draw_classes(
         .iter()
         .enumerate()
         .rev()
-        .map(|(k, (_, name))| LegendEntry {
-            label: name.clone(),
-            swatch: Swatch::Fill(Scale::class_colour(k, classes.len()).to_rgba()),
+        .map(|(k, (_, name))| {
+            c.note_class(name, scale.class_colour(k));
+            LegendEntry {
+                label: name.clone(),
+                swatch: Swatch::Fill(scale.class_colour(k).to_rgba()),
+            }
         })
         .collect();
     let missing = m.z.iter().any(|v| !v.is_finite());
@@ -713,6 +790,21 @@ fn draw_classes(
             BLACK,
         )?;
         y += row;
+    }
+    if let Some(note) = &m.note {
+        y += 0.5 * row;
+        for line in canvas::wrap_text(note, sizes.annotation, false, at.w()) {
+            c.text(
+                &line,
+                (at.x0, y),
+                sizes.annotation,
+                false,
+                Anchor::new(HPos::Left, VPos::Top),
+                false,
+                BLACK,
+            )?;
+            y += 1.3 * em(sizes.annotation);
+        }
     }
     Ok(())
 }

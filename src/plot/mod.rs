@@ -25,9 +25,10 @@ pub mod style;
 
 use std::path::{Path, PathBuf};
 
-pub use chart::{figure_svg, Band, Figure, Marker, Panel, Series, Stroke};
+pub use canvas::{LayoutReport, PlotData, Rect, TextBox};
+pub use chart::{figure_layout, figure_svg, Arrow, Band, Figure, Marker, Panel, Series, Stroke};
 pub use contour::{contour_lines, Polyline};
-pub use heatmap::{heatmap_svg, HeatMap};
+pub use heatmap::{heatmap_layout, heatmap_svg, HeatMap};
 pub use render::svg_to_png;
 
 /// Licence of the embedded DejaVu Sans font (Bitstream Vera and Arev terms); it must ship

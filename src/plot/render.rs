@@ -61,11 +61,44 @@ pub fn svg_to_pixmap(svg: &str) -> Result<tiny_skia::Pixmap, PlotError> {
     Ok(pixmap)
 }
 
-/// PNG bytes of `svg`, rendered with the embedded font at the size the SVG states.
+/// PNG bytes of `svg`, rendered with the embedded font at the size the SVG states: 8-bit RGB
+/// when every pixel is opaque (all our pictures have a white background), else RGBA, with the
+/// png crate's strongest compression (the gallery must stay small).
 pub fn svg_to_png(svg: &str) -> Result<Vec<u8>, PlotError> {
-    svg_to_pixmap(svg)?
-        .encode_png()
-        .map_err(|e| PlotError::PngEncode(e.to_string()))
+    let pm = svg_to_pixmap(svg)?;
+    let opaque = pm.pixels().iter().all(|p| p.alpha() == 255);
+    let (colour, data): (png::ColorType, Vec<u8>) = if opaque {
+        let rgb = pm
+            .pixels()
+            .iter()
+            .flat_map(|p| [p.red(), p.green(), p.blue()])
+            .collect();
+        (png::ColorType::Rgb, rgb)
+    } else {
+        let rgba = pm
+            .pixels()
+            .iter()
+            .flat_map(|p| {
+                let c = p.demultiply();
+                [c.red(), c.green(), c.blue(), c.alpha()]
+            })
+            .collect();
+        (png::ColorType::Rgba, rgba)
+    };
+    let mut out = Vec::new();
+    {
+        let mut enc = png::Encoder::new(&mut out, pm.width(), pm.height());
+        enc.set_color(colour);
+        enc.set_depth(png::BitDepth::Eight);
+        enc.set_compression(png::Compression::High);
+        let mut w = enc
+            .write_header()
+            .map_err(|e| PlotError::PngEncode(e.to_string()))?;
+        w.write_image_data(&data)
+            .map_err(|e| PlotError::PngEncode(e.to_string()))?;
+        w.finish().map_err(|e| PlotError::PngEncode(e.to_string()))?;
+    }
+    Ok(out)
 }
 
 #[cfg(test)]

@@ -55,6 +55,8 @@ pub const WHITE: RGBColor = RGBColor(255, 255, 255);
 pub const BLACK: RGBColor = RGBColor(20, 20, 20);
 /// Light grey of grid lines.
 pub const GRID: RGBColor = RGBColor(221, 221, 221);
+/// Light grey of shaded x spans (e.g. ice-covered latitudes).
+pub const SHADE: RGBColor = RGBColor(228, 232, 238);
 /// Mid grey of legend frames.
 pub const FRAME_GREY: RGBColor = RGBColor(140, 140, 140);
 
