@@ -320,7 +320,11 @@ fn control_summary(r: &NcReader, kind: &str, s: &mut String) -> Result<(), Error
         for (b, &c) in counts.iter().enumerate() {
             let c = c as usize;
             for (k, side) in ["first", "last"].iter().enumerate() {
-                let at = if k == 0 { first } else { (first + c).saturating_sub(1) };
+                let at = if k == 0 {
+                    first
+                } else {
+                    (first + c).saturating_sub(1)
+                };
                 if ends[k].get(b) == Some(&3.0) {
                     let _ = writeln!(
                         s,

@@ -871,9 +871,13 @@ impl<'a> Tracer<'a> {
             }
             if nd.p < pmin || nd.p > pmax {
                 let edge = if nd.p < pmin { pmin } else { pmax };
+                // A leg that starts on the range end leaves it at once: landing again would
+                // repeat the start.
                 if let Some(mut end) = self.land(&cur, &nd, edge)? {
-                    self.stabilise(&mut end)?;
-                    nodes.push(end);
+                    if self.metric.dist(&end.t, end.p, &cur.t, cur.p) > 1e-12 {
+                        self.stabilise(&mut end)?;
+                        nodes.push(end);
+                    }
                 }
                 return Ok(LegEnd::LeftRange);
             }
@@ -1080,6 +1084,7 @@ impl Tracer<'_> {
         let Some((p, _)) = self.correct(guess, guess_p, Constraint::Edge(k, th), 1.0)? else {
             return Ok(None);
         };
+
         // Round-off of the ice measure is ~1e-15; a different edge means other crossings.
         if (self.edge_x(&self.xt) - x).abs() > 1e-9 {
             return Ok(None);
@@ -1106,6 +1111,31 @@ impl Tracer<'_> {
             t: self.xt.clone(),
             slope,
         }))
+    }
+
+    /// [`at_edge`](Self::at_edge) at `x` from `from`, through intermediate edges (halving the
+    /// move, up to 2^10 substeps) where Newton does not converge in one move (near the pole
+    /// the curve turns sharply).
+    fn march(&mut self, from: &EdgePoint, x: f64) -> Result<Option<EdgePoint>, ConfigError> {
+        let mut cur = from.clone();
+        let mut h = x - from.x;
+        let mut halvings = 0;
+        while cur.x != x {
+            let target = if (x - cur.x).abs() <= h.abs() {
+                x
+            } else {
+                cur.x + h
+            };
+            match self.at_edge(target, &cur.t, cur.p)? {
+                Some(q) => cur = q,
+                None if halvings < 10 => {
+                    h *= 0.5;
+                    halvings += 1;
+                }
+                None => return Ok(None),
+            }
+        }
+        Ok(Some(cur))
     }
 
     /// The extreme control (the least when `minimum`) of the curve over ice edges in
@@ -1146,7 +1176,7 @@ impl Tracer<'_> {
         let mut pts: Vec<Option<EdgePoint>> = vec![None; xs.len()];
         let mut prev = start.clone();
         for i in c..xs.len() {
-            let Some(q) = self.at_edge(xs[i].0, &prev.t, prev.p)? else {
+            let Some(q) = self.march(&prev, xs[i].0)? else {
                 return Ok(None);
             };
             prev = q.clone();
@@ -1156,7 +1186,7 @@ impl Tracer<'_> {
             prev = q.clone();
         }
         for i in (0..c).rev() {
-            let Some(q) = self.at_edge(xs[i].0, &prev.t, prev.p)? else {
+            let Some(q) = self.march(&prev, xs[i].0)? else {
                 return Ok(None);
             };
             prev = q.clone();

@@ -177,7 +177,14 @@ fn compute(
         (None, Some(sig)) if rows.len() < values.len() => Outcome::Stopped(sig),
         _ => Outcome::Finished,
     };
-    let lines = fold_lines(&rows, spec.to - spec.from);
+    // A fold may jitter within its cluster of sub-band wiggles: about a band of ice edge.
+    let widest = crate::jobs::run::build_model(cfg)?
+        .grid
+        .dx
+        .iter()
+        .copied()
+        .fold(0.0, f64::max);
+    let lines = fold_lines(&rows, spec.to - spec.from, 2.0 * widest);
     Ok((RegimeMap { columns, rows, lines }, outcome, saved))
 }
 
@@ -292,7 +299,12 @@ fn save_rows(
     );
     r.put_u64(
         "folds.corner",
-        &u(&|x| x.folds.iter().map(|f| u64::from(f.corner)).collect()),
+        &u(&|x| {
+            x.folds
+                .iter()
+                .map(|f| u64::from(f.corner) | (u64::from(f.minimum) << 1))
+                .collect()
+        }),
     );
     r.save(&checkpoint::restart_path(path))
 }
@@ -351,7 +363,8 @@ fn restore_rows(
                 .map(|m| RowFold {
                     control: fc[m],
                     ice_edge: fe[m],
-                    corner: fk[m] != 0,
+                    corner: fk[m] & 1 != 0,
+                    minimum: fk[m] & 2 != 0,
                 })
                 .collect(),
             branches: branches[j] as usize,
