@@ -618,3 +618,43 @@ fn folds_sit_at_the_discrete_curves_extreme_control_at_720_bands() {
     check_folds_at_the_extremum(720, &[]);
     check_folds_at_the_extremum(720, SECOND_SET);
 }
+
+#[test]
+fn a_globe_has_the_hemispheres_folds() {
+    // Symmetric states of a globe of 2n bands are those of a hemisphere of n bands (the
+    // equations and the edge rule coincide for them; common practice). Before the fix the
+    // globe's snowball branch ended stuck at 1750.7616 W m-2 (the equator bands lost their ice
+    // at once) and the deglaciation fold 1750.7044 of the hemisphere was missing.
+    let hemi = load(&config_text("branches-solar.toml"), &["grid.bands=60"]);
+    let globe = load(
+        &config_text("branches-solar.toml"),
+        &["grid.bands=120", "grid.domain=globe"],
+    );
+    let folds = |cfg: &Loaded| {
+        let fam = Controlled::new(cfg, "insolation.solar_constant").unwrap();
+        let set = all_branches(&fam, options(1100.0, 1800.0, 0.01)).unwrap();
+        for b in &set.branches {
+            assert!(
+                !b.ends.iter().any(|e| matches!(e, LegEnd::Stuck { .. })),
+                "{:?}",
+                b.ends
+            );
+        }
+        let mut f: Vec<(f64, f64)> = set
+            .branches
+            .iter()
+            .flat_map(|b| b.folds.iter())
+            .map(|f| (f.control, edge_x(fam.base_model(), &f.state)))
+            .collect();
+        f.sort_by(|a, b| a.0.total_cmp(&b.0));
+        f
+    };
+    let (h, g) = (folds(&hemi), folds(&globe));
+    assert_eq!(h.len(), 4, "{h:?}");
+    assert_eq!(h.len(), g.len(), "hemisphere {h:?}, globe {g:?}");
+    for (a, b) in h.iter().zip(&g) {
+        // Round-off of Newton at 1e-9 W m-2 on states of ~300 K.
+        assert!((a.0 - b.0).abs() < 1e-6 * a.0, "{h:?} vs {g:?}");
+        assert!((a.1 - b.1).abs() < 1e-6, "{h:?} vs {g:?}");
+    }
+}
