@@ -54,3 +54,30 @@ pub fn stuck_warnings(branches: &[crate::equilibrium::continuation::Branch]) -> 
     }
     out
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::equilibrium::continuation::{Branch, LegEnd};
+
+    #[test]
+    fn a_stuck_branch_end_gives_a_warning() {
+        // Before, a stuck end was written to the file with no word on the console.
+        let b = |ends| Branch {
+            points: vec![],
+            folds: vec![],
+            ends,
+        };
+        let set = [
+            b([LegEnd::LeftRange, LegEnd::Closed]),
+            b([LegEnd::Stuck { control: 1750.5 }, LegEnd::LeftRange]),
+        ];
+        let w = stuck_warnings(&set);
+        assert_eq!(w.len(), 1, "{w:?}");
+        assert!(
+            w[0].contains("branch 1") && w[0].contains("first") && w[0].contains("1750.5"),
+            "{}",
+            w[0]
+        );
+    }
+}

@@ -206,6 +206,17 @@ pub fn regime_row(
     row_value: f64,
 ) -> Result<RegimeRow, ContinuationError> {
     let set = all_branches(fam, opts)?;
+    // A branch that ends stuck leaves this row's map incomplete beyond that control: say so.
+    for b in &set.branches {
+        for e in b.ends {
+            if let super::continuation::LegEnd::Stuck { control } = e {
+                eprintln!(
+                    "icefold: warning: in the map row at {row_value}, a branch continued in {} ends stuck at {control} (the corrector failed at ever smaller steps); its equilibria and folds beyond are missing from the map",
+                    fam.key
+                );
+            }
+        }
+    }
     // The ice edge depends on the control only through the albedo keys (the freezing
     // temperature moves the edge); otherwise the base model serves every point.
     let varies = fam.key.starts_with("albedo.");
