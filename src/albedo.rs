@@ -5,7 +5,13 @@
 //!   the area-weighted mix of ice and ice-free albedo, with the edge placed by an [`EdgeRule`]:
 //!   by interpolating T linearly between band centres (diffusive transport), or by the edge
 //!   balance (relaxation transport, where T jumps at the edge). Absorbed sunlight is then
-//!   continuous in T and equilibria converge at second order in band width.
+//!   continuous in T and equilibria converge at second order in band width. On a globe with a
+//!   face at the equator the two half bands next to it extend the line through their own
+//!   hemisphere's two nearest centres (as the hemisphere's equator half band does) instead of
+//!   interpolating across the equator: for a symmetric state that line is flat, so both equator
+//!   bands would lose their ice at once (a jump in absorbed sunlight, and no fold where the last
+//!   ice leaves the equator). Symmetric states of a globe of `2n` bands are then exactly those
+//!   of a hemisphere of `n`.
 //! - `Smooth`: `ice + (ice_free(x) - ice) (1 + tanh((T - T_freeze)/width)) / 2`.
 //! - `Ramp`: ice albedo below `T_freeze - width/2`, ice-free above `T_freeze + width/2`, linear between.
 //!
@@ -114,34 +120,60 @@ pub struct Albedo {
     /// Per band: whether the nearer pole lies toward the upper face (the edge-balance rule's
     /// side for the ice when the absorbed sunlight is level across the band).
     pole_upper: Vec<bool>,
+    /// On a globe with a face at the equator: the first band north of it (the equator seam).
+    seam: Option<usize>,
+}
+
+/// The first band north of the equator on a globe whose grid has a face at the equator.
+fn equator_seam(grid: &Grid) -> Option<usize> {
+    let n = grid.len();
+    (grid.domain == crate::grid::Domain::Globe && n >= 2 && n % 2 == 0 && grid.x_faces[n / 2].abs() < 1e-12)
+        .then_some(n / 2)
 }
 
 /// Sub-band geometry of a grid: the two half bands of each band.
-fn half_bands(grid: &Grid) -> (Vec<(f64, f64)>, Vec<(f64, f64)>) {
+fn half_bands(grid: &Grid, seam: Option<usize>) -> (Vec<(f64, f64)>, Vec<(f64, f64)>) {
     let n = grid.len();
     let xc = &grid.x_centres;
     let xf = &grid.x_faces;
-    // Outer half bands extend the line through the nearest two centres (so the ice fraction
-    // stays continuous when the outermost band crosses freezing).
-    let gap = |i: usize| if n > 1 { xc[i + 1] - xc[i] } else { 0.0 };
+    // Outer half bands (and those next to the equator seam) extend the line through the
+    // nearest two centres on their side (so the ice fraction stays continuous when such a
+    // band crosses freezing alone); `line_lo` / `line_hi` say which two.
+    let gap = |k: Option<usize>| k.map_or(0.0, |k| xc[k + 1] - xc[k]);
     let lo = (0..n)
-        .map(|i| (xc[i] - xf[i], if i > 0 { gap(i - 1) } else { gap(0) }))
+        .map(|i| (xc[i] - xf[i], gap(line_lo(n, seam, i))))
         .collect();
     let hi = (0..n)
-        .map(|i| {
-            (
-                xf[i + 1] - xc[i],
-                if i + 1 < n {
-                    gap(i)
-                } else if n > 1 {
-                    gap(n - 2)
-                } else {
-                    0.0
-                },
-            )
-        })
+        .map(|i| (xf[i + 1] - xc[i], gap(line_hi(n, seam, i))))
         .collect();
     (lo, hi)
+}
+
+/// The line that gives T in the lower half of band `i`: through centres `k` and `k + 1`
+/// (`None`: T is constant there, a lone band).
+fn line_lo(n: usize, seam: Option<usize>, i: usize) -> Option<usize> {
+    let first = seam.filter(|&s| i >= s).unwrap_or(0);
+    let last = seam.filter(|&s| i < s).unwrap_or(n);
+    if last - first < 2 {
+        None
+    } else if i > first {
+        Some(i - 1)
+    } else {
+        Some(i)
+    }
+}
+
+/// The line that gives T in the upper half of band `i` (see [`line_lo`]).
+fn line_hi(n: usize, seam: Option<usize>, i: usize) -> Option<usize> {
+    let first = seam.filter(|&s| i >= s).unwrap_or(0);
+    let last = seam.filter(|&s| i < s).unwrap_or(n);
+    if last - first < 2 {
+        None
+    } else if i + 1 < last {
+        Some(i)
+    } else {
+        Some(i - 1)
+    }
 }
 
 /// Cold length (where T < `tf`) of the half band of length `h` that starts at a band centre with
@@ -194,7 +226,8 @@ pub fn for_each_crossing(t: &[f64], tf: f64, f: impl FnMut(usize)) {
 impl Albedo {
     /// Build from the band ice-free albedo, ice albedo and freezing temperature (K).
     pub fn new(grid: &Grid, form: AlbedoForm, ice_free: Vec<f64>, ice: f64, freeze: f64) -> Albedo {
-        let (half_lo, half_hi) = half_bands(grid);
+        let seam = equator_seam(grid);
+        let (half_lo, half_hi) = half_bands(grid, seam);
         Albedo {
             form,
             edge_rule: EdgeRule::Interpolated,
@@ -203,6 +236,7 @@ impl Albedo {
             freeze,
             half_lo,
             half_hi,
+            seam,
             pole_upper: grid.x_centres.iter().map(|x| *x >= 0.0).collect(),
         }
     }
@@ -293,6 +327,27 @@ impl Albedo {
         }
     }
 
+    /// On a globe with a face at the equator, the two bands next to it (`[south, north]`):
+    /// like the outer bands, they always take the full edge rule.
+    pub fn seam_bands(&self) -> Option<[usize; 2]> {
+        self.seam.map(|s| [s - 1, s])
+    }
+
+    /// Where the interpolated temperature profile at `x` comes from: `(k, theta)` with
+    /// `T(x) = (1 - theta) T_k + theta T_{k+1}` under the edge rule (`theta` outside `[0, 1]`
+    /// on an extended line at an outer face or the equator seam). `None` for a lone band.
+    pub fn line_at(&self, grid: &Grid, x: f64) -> Option<(usize, f64)> {
+        let n = grid.len();
+        let i = grid.x_faces[1..n].partition_point(|&f| f <= x);
+        let k = if x < grid.x_centres[i] {
+            line_lo(n, self.seam, i)
+        } else {
+            line_hi(n, self.seam, i)
+        }?;
+        let (a, b) = (grid.x_centres[k], grid.x_centres[k + 1]);
+        Some((k, (x - a) / (b - a)))
+    }
+
     /// Ice fraction of band `i` (0..1) under the sub-band interpolation rule, with its
     /// derivatives by `T_{i-1}`, `T_i`, `T_{i+1}` (per K).
     #[inline(always)]
@@ -305,21 +360,25 @@ impl Albedo {
             let f = if ti < self.freeze { 1.0 } else { 0.0 };
             return (f, [0.0; 3]);
         }
-        // At an outer face the half band sees a virtual neighbour 2 T_i - T_other on the line
-        // through the two nearest centres.
-        let (tl, th) = match (i > 0, i + 1 < n) {
+        // At an outer face (or the equator seam) the half band sees a virtual neighbour
+        // 2 T_i - T_other on the line through the two nearest centres on its side.
+        let has_lo = i > 0 && self.seam != Some(i);
+        let has_hi = i + 1 < n && self.seam != Some(i + 1);
+        let (tl, th) = match (has_lo, has_hi) {
             (true, true) => (temps[i - 1], temps[i + 1]),
-            (false, _) => (2.0 * ti - temps[1], temps[1]),
+            (false, true) => (2.0 * ti - temps[i + 1], temps[i + 1]),
             (true, false) => (temps[i - 1], 2.0 * ti - temps[i - 1]),
+            (false, false) => (ti, ti),
         };
         let (ml, dl_i, dl_j) = half_cold(ti, tl, hl, ll, self.freeze);
         let (mh, dh_i, dh_j) = half_cold(ti, th, hh, lh, self.freeze);
         let w = hl + hh;
         // Chain rule through the virtual neighbour.
-        let (d_lo, d_mid, d_hi) = match (i > 0, i + 1 < n) {
+        let (d_lo, d_mid, d_hi) = match (has_lo, has_hi) {
             (true, true) => (dl_j, dl_i + dh_i, dh_j),
-            (false, _) => (0.0, dl_i + dh_i + 2.0 * dl_j, dh_j - dl_j),
+            (false, true) => (0.0, dl_i + dh_i + 2.0 * dl_j, dh_j - dl_j),
             (true, false) => (dl_j - dh_j, dl_i + dh_i + 2.0 * dh_j, 0.0),
+            (false, false) => (0.0, dl_i + dh_i, 0.0),
         };
         ((ml + mh) / w, [d_lo / w, d_mid / w, d_hi / w])
     }
@@ -343,7 +402,7 @@ impl Albedo {
         // Only the bands next to a crossing (and the two outer bands, whose virtual neighbour
         // can cross alone) take the full rule.
         let n = temps.len();
-        if i > 0 && i + 1 < n {
+        if i > 0 && i + 1 < n && self.seam.is_none_or(|s| i + 1 != s && i != s) {
             let tf = self.freeze;
             let cold = t < tf;
             if (temps[i - 1] < tf) == cold && (temps[i + 1] < tf) == cold {
@@ -394,12 +453,12 @@ impl Albedo {
         for i in 0..n {
             let xc = grid.x_centres[i];
             // The two half bands as (start x, end x, T at start, slope).
-            let seg = |k: usize| (temps[k + 1] - temps[k]) / (grid.x_centres[k + 1] - grid.x_centres[k]);
-            let (slope_lo, slope_hi) = if n == 1 {
-                (0.0, 0.0)
-            } else {
-                (seg(i.max(1) - 1), seg(i.min(n - 2)))
+            let seg = |k: Option<usize>| {
+                k.map_or(0.0, |k| {
+                    (temps[k + 1] - temps[k]) / (grid.x_centres[k + 1] - grid.x_centres[k])
+                })
             };
+            let (slope_lo, slope_hi) = (seg(line_lo(n, self.seam, i)), seg(line_hi(n, self.seam, i)));
             for (a, b, slope) in [
                 (grid.x_faces[i], xc, slope_lo),
                 (xc, grid.x_faces[i + 1], slope_hi),

@@ -367,6 +367,9 @@ impl Model {
                     fix(k + 1);
                 });
                 fix(n - 1);
+                for i in self.albedo.seam_bands().into_iter().flatten() {
+                    fix(i);
+                }
             });
             return;
         }
@@ -572,6 +575,10 @@ impl Model {
                     band(0, a0, d0);
                     let (a1, d1) = self.albedo.step_band(t, n - 1);
                     band(n - 1, a1, d1);
+                    for i in self.albedo.seam_bands().into_iter().flatten() {
+                        let (a, da) = self.albedo.step_band(t, i);
+                        band(i, a, da);
+                    }
                     crate::albedo::for_each_crossing(t, tf, |k| {
                         for i in [k, k + 1] {
                             let (a, da) = self.albedo.step_band(t, i);

@@ -213,3 +213,65 @@ fn keys_must_differ_and_act() {
     let e = run_regimes(&cfg, serial()).unwrap_err();
     assert!(e.to_string().contains("no effect"), "{e}");
 }
+
+/// configs/regimes-classic.toml with `--set` values.
+fn regimes_classic(sets: &[&str]) -> Loaded {
+    let text = std::fs::read_to_string("configs/regimes-classic.toml").unwrap();
+    let sets: Vec<String> = sets.iter().map(|s| s.to_string()).collect();
+    load_str(&text, "regimes-classic", Path::new("configs"), &sets).unwrap()
+}
+
+#[test]
+fn a_finer_map_has_the_coarse_maps_fold_lines_sampled_finely() {
+    // Before the fix an 81-row map of this config had 6 fold lines (the large-cap line broke
+    // where a sub-band wiggle turned up) against the 21-row map's 4, and a 300-row map at 90
+    // bands 90 lines, mostly of 1 or 2 vertices. Rows 0, 4, 8, ... of the 81-row map are the
+    // 21-row map's rows (the same D), so their folds are the same numbers: each coarse line's
+    // vertices must be vertices of one fine line, which has a vertex in every fine row.
+    let coarse = run_regimes(&regimes_classic(&[]), serial()).unwrap();
+    let fine = run_regimes(&regimes_classic(&["regimes.rows=81"]), serial()).unwrap();
+    assert_eq!(
+        coarse.lines.len(),
+        4,
+        "{:?}",
+        coarse.lines.iter().map(|l| l.len()).collect::<Vec<_>>()
+    );
+    assert_eq!(
+        fine.lines.len(),
+        coarse.lines.len(),
+        "fine lines: {:?}",
+        fine.lines
+            .iter()
+            .map(|l| (l.len(), l[0].p1, l[0].ice_edge))
+            .collect::<Vec<_>>()
+    );
+    for cl in &coarse.lines {
+        let matches: Vec<&Vec<_>> = fine
+            .lines
+            .iter()
+            .filter(|fl| {
+                cl.iter().all(|v| {
+                    fl.iter().any(|w| {
+                        // Same row value up to the round-off of the two row grids.
+                        (w.p2 - v.p2).abs() < 1e-12 && w.p1 == v.p1 && w.ice_edge == v.ice_edge
+                    })
+                })
+            })
+            .collect();
+        assert_eq!(
+            matches.len(),
+            1,
+            "coarse line from p1 {} at edge {}",
+            cl[0].p1,
+            cl[0].ice_edge
+        );
+        // Sampled finely: one vertex per fine row over the coarse line's rows.
+        let (lo, hi) = (cl[0].p2, cl[cl.len() - 1].p2);
+        let rows = fine
+            .rows
+            .iter()
+            .filter(|r| r.row_value >= lo - 1e-12 && r.row_value <= hi + 1e-12)
+            .count();
+        assert_eq!(matches[0].len(), rows);
+    }
+}

@@ -348,6 +348,29 @@ fn control_summary(r: &NcReader, kind: &str, s: &mut String) -> Result<(), Error
             }
         );
         let _ = writeln!(s, "branches:   {}", r.dim_len("branches")?);
+        // A branch that ends stuck: its end point is where the corrector gave up.
+        let counts = r.read_f64("branch_points")?;
+        let ends = [r.read_f64("branch_end_first")?, r.read_f64("branch_end_last")?];
+        let control = r.read_f64("control")?;
+        let mut first = 0usize;
+        for (b, &c) in counts.iter().enumerate() {
+            let c = c as usize;
+            for (k, side) in ["first", "last"].iter().enumerate() {
+                let at = if k == 0 {
+                    first
+                } else {
+                    (first + c).saturating_sub(1)
+                };
+                if ends[k].get(b) == Some(&3.0) {
+                    let _ = writeln!(
+                        s,
+                        "warning:    branch {b} ends stuck at its {side} point (control {:.6} {units}): the corrector failed there, the branch beyond it is missing",
+                        control.get(at).copied().unwrap_or(f64::NAN)
+                    );
+                }
+            }
+            first += c;
+        }
     }
     Ok(())
 }

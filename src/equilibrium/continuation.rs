@@ -49,6 +49,13 @@ const MAX_CORRECTOR_ITERATIONS: usize = 12;
 const MIN_TANGENT_COSINE: f64 = 0.9;
 /// Steps below this fraction of the first step trigger the corner crossing.
 const CORNER_FRACTION: f64 = 1e-3;
+/// Turning points of a branch closer than this many band widths in ice edge form one cluster
+/// (the sub-band wiggles of the `step` albedo's edge rule span about one band: measured 0.6
+/// to 0.9 band at 90 and 720 bands).
+const CLUSTER_BANDS: f64 = 2.0;
+/// The ice-edge window scanned for a cluster's extreme control reaches this many band widths
+/// beyond its outermost turning points (and is widened while the extreme sits on its end).
+const SCAN_BANDS: f64 = 2.0;
 
 /// Options.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -118,6 +125,13 @@ pub struct FoldPoint {
     pub corner: bool,
     /// Whether the search converged to `fold_tolerance` (otherwise the best point found).
     pub converged: bool,
+    /// Whether the control has a local minimum here (the branch lies at larger control on
+    /// both sides), rather than a maximum; independent of the direction of travel.
+    pub minimum: bool,
+    /// How many turning points of the discrete curve this fold stands for: 1, or an odd number
+    /// when sub-band wiggles of the `step` albedo's edge rule made a cluster of them (the fold
+    /// is then the cluster's extreme control).
+    pub turns: usize,
 }
 
 /// An equilibrium at a fixed control value, with its stability and sensitivity.
@@ -209,6 +223,9 @@ enum Constraint<'c> {
     Control(f64),
     /// `T_k = value` (a local parametrisation by one band).
     Band(usize, f64),
+    /// `(1 - theta) T_k + theta T_{k+1} = T_freeze(p)`: the interpolated profile freezes at
+    /// one position, i.e. the ice edge is held there (the ice-edge parametrisation).
+    Edge(usize, f64),
 }
 
 /// The metric weights.
@@ -383,6 +400,20 @@ impl<'a> Tracer<'a> {
         let (lo, hi) = self.model.valid_range();
         let m = self.metric;
         let mut prev_step = f64::INFINITY;
+        // d(T_freeze)/dp for the ice-edge constraint: nonzero only for albedo controls.
+        let dfreeze = match c {
+            Constraint::Edge(..) if self.fam.key.starts_with("albedo.") => {
+                let h = 1e-6 * p.abs().max(1e-3 / m.wp.sqrt());
+                let ok = self.fam.apply(&mut self.scratch, p + h).is_ok();
+                let up = self.scratch.albedo.freeze;
+                let ok = ok && self.fam.apply(&mut self.scratch, p - h).is_ok();
+                if !ok {
+                    return Ok(None);
+                }
+                (up - self.scratch.albedo.freeze) / (2.0 * h)
+            }
+            _ => 0.0,
+        };
         for it in 0..=MAX_CORRECTOR_ITERATIONS {
             // A control value the family refuses (e.g. CO2 <= 0) ends this correction.
             match self.linearise(xt, p) {
@@ -397,6 +428,10 @@ impl<'a> Tracer<'a> {
                 Constraint::Along(v, level) => (level - m.inner(&v.dt, v.dp, xt, p), 1.0 + level.abs()),
                 Constraint::Control(value) => (value - p, value.abs().max(1.0 / m.wp.sqrt())),
                 Constraint::Band(k, value) => (value - xt[k], value.abs().max(1.0)),
+                Constraint::Edge(k, th) => {
+                    let tf = self.model.albedo.freeze;
+                    (tf - ((1.0 - th) * xt[k] + th * xt[k + 1]), tf.abs().max(1.0))
+                }
             };
             // Round-off floor of G: the transport terms cancel to about eps |G_T| |T|.
             let jmax = self.jac.diag.iter().fold(0.0_f64, |a, v| a.max(v.abs()));
@@ -423,6 +458,11 @@ impl<'a> Tracer<'a> {
                 Constraint::Control(_) => cres,
                 // dT_k = a_k + b_k dp must close the gap.
                 Constraint::Band(k, _) => (cres - self.a[k]) / self.b[k],
+                Constraint::Edge(k, th) => {
+                    let ca = (1.0 - th) * self.a[k] + th * self.a[k + 1];
+                    let cb = (1.0 - th) * self.b[k] + th * self.b[k + 1];
+                    (cres - ca) / (cb - dfreeze)
+                }
             };
             if !dp.is_finite() {
                 return Ok(None);
@@ -727,6 +767,8 @@ impl<'a> Tracer<'a> {
             after_point: 0,
             corner,
             converged,
+            minimum: sign > 0.0,
+            turns: 1,
         })
     }
 
@@ -827,9 +869,13 @@ impl<'a> Tracer<'a> {
             }
             if nd.p < pmin || nd.p > pmax {
                 let edge = if nd.p < pmin { pmin } else { pmax };
+                // A leg that starts on the range end leaves it at once: landing again would
+                // repeat the start.
                 if let Some(mut end) = self.land(&cur, &nd, edge)? {
-                    self.stabilise(&mut end)?;
-                    nodes.push(end);
+                    if self.metric.dist(&end.t, end.p, &cur.t, cur.p) > 1e-12 {
+                        self.stabilise(&mut end)?;
+                        nodes.push(end);
+                    }
                 }
                 return Ok(LegEnd::LeftRange);
             }
@@ -882,6 +928,7 @@ impl<'a> Tracer<'a> {
             f.after_point += nb;
             f
         }));
+        let folds = self.resolve_folds(&nodes, folds)?;
         let mut arclength = 0.0;
         let mut points: Vec<BranchPoint> = Vec::with_capacity(nodes.len());
         for (k, nd) in nodes.iter().enumerate() {
@@ -970,5 +1017,354 @@ impl Tracer<'_> {
     /// Restore a warm start saved with [`eigen_guess`](Self::eigen_guess).
     pub fn set_eigen_guess(&mut self, guess: f64) {
         self.stab.set_warm_start(guess);
+    }
+}
+
+/// A state on the curve with its northern ice edge held at `x`.
+#[derive(Debug, Clone)]
+struct EdgePoint {
+    /// Ice edge, `x = sin(latitude)`.
+    x: f64,
+    /// Control value.
+    p: f64,
+    /// Temperatures, K.
+    t: Vec<f64>,
+    /// `dp/dx` along the curve (within one smooth piece).
+    slope: f64,
+}
+
+/// Fold clusters: the sub-band wiggles of the discrete curve.
+///
+/// With the `step` albedo the curve is smooth only between the ice-edge positions where the
+/// edge crosses a band centre or face (the edge rule switches pieces there). Near a fold, where
+/// `dp/ds` is small, these kinks make the discrete curve wiggle: a cluster of turning points
+/// within about one band of ice edge, which ordinary steps may step over. Each cluster found
+/// along a branch (turning points closer than `CLUSTER_BANDS` bands, none at the ice-free or
+/// snowball end) is one fold of the model when it holds an odd number of turning points, and
+/// none when even (a wiggle with no net turn). An odd cluster is reported at the discrete
+/// curve's extreme control: on partly ice-covered branches the control is a function of the
+/// northern ice edge (North 1975, J. Atmos. Sci. 32), so the curve is followed by the ice-edge
+/// parametrisation (`Constraint::Edge`), scanned piece by piece over a window around the
+/// cluster (every kink, and the zero of `dp/dx` inside any piece whose end slopes bracket one,
+/// by regula falsi). Where that parametrisation does not hold (no single polar cap), the
+/// turning points located along the curve are kept as they are.
+impl Tracer<'_> {
+    /// Northern ice-edge position `x = sin(latitude)` of a state, read as one polar cap.
+    fn edge_x(&self, t: &[f64]) -> f64 {
+        1.0 - self.model.albedo.ice_measure_in(&self.model.grid, t, 0.0, 1.0)
+    }
+
+    /// Width in `x` of the band holding `x`.
+    fn band_width_at(&self, x: f64) -> f64 {
+        let g = &self.model.grid;
+        let n = g.len();
+        g.dx[g.x_faces[1..n].partition_point(|&f| f <= x)]
+    }
+
+    /// `d(T_freeze)/dp` at `p` (nonzero only for albedo controls).
+    fn freeze_slope(&mut self, p: f64) -> Option<f64> {
+        if !self.fam.key.starts_with("albedo.") {
+            return Some(0.0);
+        }
+        let h = 1e-6 * p.abs().max(1e-3 / self.metric.wp.sqrt());
+        self.fam.apply(&mut self.scratch, p + h).ok()?;
+        let up = self.scratch.albedo.freeze;
+        self.fam.apply(&mut self.scratch, p - h).ok()?;
+        Some((up - self.scratch.albedo.freeze) / (2.0 * h))
+    }
+
+    /// The equilibrium with its northern ice edge at `x`, by Newton from `(guess, guess_p)`;
+    /// `None` when it does not converge or its ice is not one polar cap with that edge.
+    fn at_edge(&mut self, x: f64, guess: &[f64], guess_p: f64) -> Result<Option<EdgePoint>, ConfigError> {
+        let Some((k, th)) = self.model.albedo.line_at(&self.model.grid, x) else {
+            return Ok(None);
+        };
+        let Some((p, _)) = self.correct(guess, guess_p, Constraint::Edge(k, th), 1.0)? else {
+            return Ok(None);
+        };
+
+        // Round-off of the ice measure is ~1e-15; a different edge means other crossings.
+        if (self.edge_x(&self.xt) - x).abs() > 1e-9 {
+            return Ok(None);
+        }
+        // Along the pinned family G_T dT = -G_p dp, and (1 - theta) dT_k + theta dT_{k+1}
+        // + (T_{k+1} - T_k) dtheta = T_freeze' dp.
+        for i in 0..self.n {
+            self.b[i] = -self.gp[i];
+        }
+        self.lu.solve(&mut self.b);
+        let Some(df) = self.freeze_slope(p) else {
+            return Ok(None);
+        };
+        let cb = (1.0 - th) * self.b[k] + th * self.b[k + 1];
+        let g = &self.model.grid;
+        let dtheta_dx = 1.0 / (g.x_centres[k + 1] - g.x_centres[k]);
+        let slope = -(self.xt[k + 1] - self.xt[k]) * dtheta_dx / (cb - df);
+        if !slope.is_finite() {
+            return Ok(None);
+        }
+        Ok(Some(EdgePoint {
+            x,
+            p,
+            t: self.xt.clone(),
+            slope,
+        }))
+    }
+
+    /// [`at_edge`](Self::at_edge) at `x` from `from`, through intermediate edges (halving the
+    /// move, up to 2^10 substeps) where Newton does not converge in one move (near the pole
+    /// the curve turns sharply).
+    fn march(&mut self, from: &EdgePoint, x: f64) -> Result<Option<EdgePoint>, ConfigError> {
+        let mut cur = from.clone();
+        let mut h = x - from.x;
+        let mut halvings = 0;
+        while cur.x != x {
+            let target = if (x - cur.x).abs() <= h.abs() {
+                x
+            } else {
+                cur.x + h
+            };
+            match self.at_edge(target, &cur.t, cur.p)? {
+                Some(q) => cur = q,
+                None if halvings < 10 => {
+                    h *= 0.5;
+                    halvings += 1;
+                }
+                None => return Ok(None),
+            }
+        }
+        Ok(Some(cur))
+    }
+
+    /// The extreme control (the least when `minimum`) of the curve over ice edges in
+    /// `[lo, hi]`, scanned piece by piece from `start`: `(point, at a kink, converged)`.
+    fn edge_extremum(
+        &mut self,
+        lo: f64,
+        hi: f64,
+        minimum: bool,
+        start: &EdgePoint,
+    ) -> Result<Option<(EdgePoint, bool, bool)>, ConfigError> {
+        let sign = if minimum { 1.0 } else { -1.0 };
+        let g = &self.model.grid;
+        // Breakpoints: the window's ends and every band centre and face inside it.
+        let mut breaks: Vec<f64> = vec![lo, hi];
+        breaks.extend(
+            g.x_centres
+                .iter()
+                .chain(&g.x_faces)
+                .filter(|&&x| x > lo && x < hi),
+        );
+        breaks.sort_by(f64::total_cmp);
+        breaks.dedup();
+        // Sample points: each breakpoint, and each piece's ends from inside (their slopes are
+        // the piece's own).
+        let mut xs: Vec<(f64, bool)> = Vec::with_capacity(3 * breaks.len());
+        for w in breaks.windows(2) {
+            let d = 1e-7 * (w[1] - w[0]);
+            xs.extend([(w[0], true), (w[0] + d, false), (w[1] - d, false)]);
+        }
+        xs.push((hi, true));
+        // Solve outward from the sample nearest the start, each from its neighbour.
+        let c = xs
+            .iter()
+            .enumerate()
+            .min_by(|a, b| (a.1 .0 - start.x).abs().total_cmp(&(b.1 .0 - start.x).abs()))
+            .map_or(0, |(i, _)| i);
+        let mut pts: Vec<Option<EdgePoint>> = vec![None; xs.len()];
+        let mut prev = start.clone();
+        for i in c..xs.len() {
+            let Some(q) = self.march(&prev, xs[i].0)? else {
+                return Ok(None);
+            };
+            prev = q.clone();
+            pts[i] = Some(q);
+        }
+        if let Some(Some(q)) = pts.get(c) {
+            prev = q.clone();
+        }
+        for i in (0..c).rev() {
+            let Some(q) = self.march(&prev, xs[i].0)? else {
+                return Ok(None);
+            };
+            prev = q.clone();
+            pts[i] = Some(q);
+        }
+        let pts: Vec<EdgePoint> = pts.into_iter().map(|q| q.expect("every sample solved")).collect();
+        // Candidates: the breakpoints, and a zero of dp/dx of the right sense inside a piece.
+        let mut best: Option<(EdgePoint, bool, bool)> = None;
+        let mut consider = |q: EdgePoint, kink: bool, conv: bool| {
+            if best.as_ref().is_none_or(|b| sign * q.p < sign * b.0.p) {
+                best = Some((q, kink, conv));
+            }
+        };
+        for (i, q) in pts.iter().enumerate() {
+            if xs[i].1 {
+                consider(q.clone(), true, true);
+            }
+        }
+        for j in 0..breaks.len() - 1 {
+            let (a, b) = (&pts[3 * j + 1], &pts[3 * j + 2]);
+            if !(sign * a.slope < 0.0 && sign * b.slope > 0.0) {
+                continue;
+            }
+            if let Some((q, conv)) = self.piece_root(a.clone(), b.clone())? {
+                consider(q, false, conv);
+            }
+        }
+        Ok(best)
+    }
+
+    /// The zero of `dp/dx` between `a` and `b` (one smooth piece, slopes of opposite sign) by
+    /// regula falsi (Illinois), to 1e-12 in `x`.
+    fn piece_root(
+        &mut self,
+        mut a: EdgePoint,
+        mut b: EdgePoint,
+    ) -> Result<Option<(EdgePoint, bool)>, ConfigError> {
+        let (mut ga, mut gb) = (a.slope, b.slope);
+        let mut side = 0;
+        for _ in 0..60 {
+            let x = a.x - ga * (b.x - a.x) / (gb - ga);
+            let x = if x > a.x && x < b.x { x } else { 0.5 * (a.x + b.x) };
+            let near = if x - a.x < b.x - x { &a } else { &b };
+            let (gt, gp) = (near.t.clone(), near.p);
+            let Some(q) = self.at_edge(x, &gt, gp)? else {
+                return Ok(None);
+            };
+            if b.x - a.x <= 1e-12 || q.slope == 0.0 {
+                return Ok(Some((q, true)));
+            }
+            if (q.slope < 0.0) == (a.slope < 0.0) {
+                ga = q.slope;
+                a = q;
+                if side == -1 {
+                    gb *= 0.5;
+                }
+                side = -1;
+            } else {
+                gb = q.slope;
+                b = q;
+                if side == 1 {
+                    ga *= 0.5;
+                }
+                side = 1;
+            }
+        }
+        let q = if a.slope.abs() < b.slope.abs() { a } else { b };
+        Ok(Some((q, false)))
+    }
+
+    /// Replace each cluster of turning points along the branch `nodes` by the fold it stands
+    /// for (see the section comment above).
+    fn resolve_folds(&mut self, nodes: &[Node], raw: Vec<FoldPoint>) -> Result<Vec<FoldPoint>, ConfigError> {
+        let last = nodes.len().saturating_sub(1);
+        let partial = |tr: &Self, i: usize| tr.ice_end(tr.ice_measure(&nodes[i.min(last)].t)) == 0;
+        let end: Vec<bool> = raw
+            .iter()
+            .map(|f| !(partial(self, f.after_point) && partial(self, f.after_point + 1)))
+            .collect();
+        let xf: Vec<f64> = raw.iter().map(|f| self.edge_x(&f.state)).collect();
+        let mut out = Vec::with_capacity(raw.len());
+        let mut i = 0;
+        while i < raw.len() {
+            if end[i] {
+                out.push(raw[i].clone());
+                i += 1;
+                continue;
+            }
+            let mut j = i;
+            while j + 1 < raw.len()
+                && !end[j + 1]
+                && (xf[j + 1] - xf[j]).abs() <= CLUSTER_BANDS * self.band_width_at(xf[j])
+            {
+                j += 1;
+            }
+            let count = j - i + 1;
+            if count % 2 == 0 {
+                // A wiggle with no net turn: no fold of the model.
+                i = j + 1;
+                continue;
+            }
+            match self.cluster_fold(nodes, &raw, &xf, i, j)? {
+                Some(f) => out.push(f),
+                None => out.extend(raw[i..=j].iter().cloned()),
+            }
+            i = j + 1;
+        }
+        Ok(out)
+    }
+
+    /// The fold of the odd cluster `raw[i..=j]` at the discrete curve's extreme control.
+    fn cluster_fold(
+        &mut self,
+        nodes: &[Node],
+        raw: &[FoldPoint],
+        xf: &[f64],
+        i: usize,
+        j: usize,
+    ) -> Result<Option<FoldPoint>, ConfigError> {
+        let minimum = raw[i].minimum;
+        let (cmin, cmax) = xf[i..=j]
+            .iter()
+            .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &x| {
+                (a.min(x), b.max(x))
+            });
+        // The window may not reach a neighbouring fold nor leave [0, 1].
+        let (mut stop_lo, mut stop_hi) = (0.0_f64, 1.0_f64);
+        for k in [i.wrapping_sub(1), j + 1] {
+            if let Some(&x) = xf.get(k) {
+                if x < cmin {
+                    stop_lo = stop_lo.max(x);
+                } else if x > cmax {
+                    stop_hi = stop_hi.min(x);
+                }
+            }
+        }
+        let centre = &raw[i + (j - i) / 2];
+        let Some(start) = self.at_edge(xf[i + (j - i) / 2], &centre.state, centre.control)? else {
+            return Ok(None);
+        };
+        let (mut wlo, mut whi) = (cmin, cmax);
+        let mut found = None;
+        for _ in 0..6 {
+            wlo = (wlo - SCAN_BANDS * self.band_width_at(wlo)).max(stop_lo);
+            whi = (whi + SCAN_BANDS * self.band_width_at(whi)).min(stop_hi);
+            let Some(best) = self.edge_extremum(wlo, whi, minimum, &start)? else {
+                return Ok(None);
+            };
+            let x = best.0.x;
+            let open_end = (x == wlo && wlo > stop_lo) || (x == whi && whi < stop_hi);
+            found = Some(best);
+            if !open_end {
+                break;
+            }
+        }
+        let Some((q, kink, converged)) = found else {
+            return Ok(None);
+        };
+        // The fold goes between the two nodes whose edges bracket it (else by the nearest
+        // turning point of the cluster).
+        let (a0, a1) = (raw[i].after_point, (raw[j].after_point + 1).min(nodes.len() - 1));
+        let mut after = raw[(i..=j)
+            .min_by(|&a, &b| (xf[a] - q.x).abs().total_cmp(&(xf[b] - q.x).abs()))
+            .unwrap_or(i)]
+        .after_point;
+        for k in a0..a1 {
+            let (u, v) = (self.edge_x(&nodes[k].t), self.edge_x(&nodes[k + 1].t));
+            if (u - q.x) * (v - q.x) <= 0.0 {
+                after = k;
+                break;
+            }
+        }
+        Ok(Some(FoldPoint {
+            control: q.p,
+            state: q.t,
+            after_point: after,
+            corner: kink,
+            converged,
+            minimum,
+            turns: j - i + 1,
+        }))
     }
 }

@@ -19,10 +19,12 @@ pub const SMALL_CAP_MIN_LATITUDE: f64 = 60.0;
 /// Edge latitudes within this of 90 (or 0) degrees count as ice free (or snowball), degrees.
 const EDGE_END_TOLERANCE: f64 = 1e-6;
 
-/// Largest link distance between folds of neighbouring rows on the same fold line: the change
-/// in the first parameter as a fraction of its range plus the change in edge latitude over
-/// 90 degrees.
-const LINK_MAX: f64 = 0.25;
+/// Steepest fold line followed: between neighbouring rows a fold line may move, in the first
+/// parameter as a fraction of its range and in ice edge `x = sin(latitude)`, at most this many
+/// times the rows' step as a fraction of the rows' range (a line that crosses the whole map
+/// within a fifth of the rows' range is not followed); with 21 rows that is a quarter of the
+/// range per row.
+const LINK_SLOPE: f64 = 5.0;
 
 /// The kinds of climate, by northern ice-edge latitude `phi` (degrees north).
 #[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord)]
@@ -93,6 +95,8 @@ pub struct RowFold {
     pub ice_edge: f64,
     /// Whether the fold sits at a corner of the piecewise-smooth curve.
     pub corner: bool,
+    /// Whether the first parameter has a minimum at the fold (the branch exists above it).
+    pub minimum: bool,
 }
 
 /// One row of the map (one value of the second parameter).
@@ -202,6 +206,17 @@ pub fn regime_row(
     row_value: f64,
 ) -> Result<RegimeRow, ContinuationError> {
     let set = all_branches(fam, opts)?;
+    // A branch that ends stuck leaves this row's map incomplete beyond that control: say so.
+    for b in &set.branches {
+        for e in b.ends {
+            if let super::continuation::LegEnd::Stuck { control } = e {
+                eprintln!(
+                    "icefold: warning: in the map row at {row_value}, a branch continued in {} ends stuck at {control} (the corrector failed at ever smaller steps); its equilibria and folds beyond are missing from the map",
+                    fam.key
+                );
+            }
+        }
+    }
     // The ice edge depends on the control only through the albedo keys (the freezing
     // temperature moves the edge) or, with the edge-balance rule of relaxation transport,
     // through the insolation, OLR and rate too; otherwise the base model serves every point.
@@ -224,6 +239,7 @@ pub fn regime_row(
             control: f.control,
             ice_edge: edge(&f.state, f.control),
             corner: f.corner,
+            minimum: f.minimum,
         })
         .collect();
     folds.sort_by(|a, b| {
@@ -255,34 +271,70 @@ pub struct FoldVertex {
     pub corner: bool,
 }
 
-/// Join the folds of successive rows into lines: between neighbouring rows, the closest pairs
-/// (change in the first parameter over `p1_span` plus change in edge latitude over 90
-/// degrees, corner folds only with corner folds) are linked first, up to `LINK_MAX`; a fold
-/// left over starts a new line. Deterministic for a given input.
-pub fn fold_lines(rows: &[RegimeRow], p1_span: f64) -> Vec<Vec<FoldVertex>> {
+/// Which fold a fold line follows: a minimum or a maximum of the first parameter, at the
+/// snowball end (edge 0), the ice-free end (edge 90) or in between.
+fn fold_type(f: &FoldVertex, minimum: bool) -> (bool, i8) {
+    // In x = sin(latitude): a corner fold sits within round-off of 0 or 1 in x, which is
+    // up to a few 0.001 degrees of latitude at the pole.
+    let x = f.ice_edge.to_radians().sin();
+    let end = if x <= 1e-6 {
+        -1
+    } else if x >= 1.0 - 1e-6 {
+        1
+    } else {
+        0
+    };
+    (minimum, end)
+}
+
+/// Join the folds of successive rows into lines. Between neighbouring rows a fold is linked to
+/// a line only when it is of the line's type ([`fold_type`]) and moved by at most
+/// `LINK_SLOPE` times the rows' relative step in the first parameter (over `p1_span`) and in
+/// ice edge `x` (plus `edge_slack`, the jitter of a fold within its cluster of sub-band
+/// wiggles: give two band widths); the closest pairs are linked first. A fold left over starts
+/// a new line. Deterministic for a given input.
+pub fn fold_lines(rows: &[RegimeRow], p1_span: f64, edge_slack: f64) -> Vec<Vec<FoldVertex>> {
     let mut lines: Vec<Vec<FoldVertex>> = Vec::new();
+    let mut types: Vec<(bool, i8)> = Vec::new();
     let mut open: Vec<usize> = Vec::new();
+    let p2_span = match (rows.first(), rows.last()) {
+        (Some(a), Some(b)) => (b.row_value - a.row_value).abs(),
+        _ => 0.0,
+    };
+    let sin = |lat: f64| lat.to_radians().sin();
+    let mut prev_value = f64::NAN;
     for row in rows {
-        let verts: Vec<FoldVertex> = row
+        let verts: Vec<(FoldVertex, (bool, i8))> = row
             .folds
             .iter()
-            .map(|f| FoldVertex {
-                p1: f.control,
-                p2: row.row_value,
-                ice_edge: f.ice_edge,
-                corner: f.corner,
+            .map(|f| {
+                let v = FoldVertex {
+                    p1: f.control,
+                    p2: row.row_value,
+                    ice_edge: f.ice_edge,
+                    corner: f.corner,
+                };
+                (v, fold_type(&v, f.minimum))
             })
             .collect();
+        let step = if p2_span > 0.0 {
+            (row.row_value - prev_value).abs() / p2_span
+        } else {
+            0.0
+        };
+        prev_value = row.row_value;
+        let reach = LINK_SLOPE * step;
         let mut pairs: Vec<(f64, usize, usize)> = Vec::new();
         for (li, &l) in open.iter().enumerate() {
             let Some(last) = lines[l].last() else { continue };
-            for (fi, v) in verts.iter().enumerate() {
-                if v.corner != last.corner {
+            for (fi, (v, ty)) in verts.iter().enumerate() {
+                if *ty != types[l] {
                     continue;
                 }
-                let d = (v.p1 - last.p1).abs() / p1_span + (v.ice_edge - last.ice_edge).abs() / 90.0;
-                if d <= LINK_MAX {
-                    pairs.push((d, li, fi));
+                let dp = (v.p1 - last.p1).abs() / p1_span;
+                let dx = (sin(v.ice_edge) - sin(last.ice_edge)).abs();
+                if dp <= reach && dx <= reach + edge_slack {
+                    pairs.push((dp + dx, li, fi));
                 }
             }
         }
@@ -293,13 +345,14 @@ pub fn fold_lines(rows: &[RegimeRow], p1_span: f64) -> Vec<Vec<FoldVertex>> {
             if !line_used[li] && !fold_used[fi] {
                 line_used[li] = true;
                 fold_used[fi] = true;
-                lines[open[li]].push(verts[fi]);
+                lines[open[li]].push(verts[fi].0);
                 next_open.push(open[li]);
             }
         }
-        for (fi, v) in verts.iter().enumerate() {
+        for (fi, (v, ty)) in verts.iter().enumerate() {
             if !fold_used[fi] {
                 lines.push(vec![*v]);
+                types.push(*ty);
                 next_open.push(lines.len() - 1);
             }
         }
@@ -347,6 +400,7 @@ mod tests {
                     control: c,
                     ice_edge: e,
                     corner: false,
+                    minimum: false,
                 })
                 .collect(),
             branches: 0,
@@ -357,12 +411,14 @@ mod tests {
     #[test]
     fn folds_of_neighbouring_rows_join_by_nearness() {
         // Two lines drifting apart, then one ends and a new one appears far away.
-        let rows = vec![
+        // Rows 3 to 20 hold no folds: they set the rows' range (a step is 1/20 of it).
+        let mut rows = vec![
             row(0.0, &[(10.0, 30.0), (20.0, 80.0)]),
             row(1.0, &[(11.0, 31.0), (21.0, 81.0)]),
             row(2.0, &[(12.0, 32.0), (90.0, 5.0)]),
         ];
-        let lines = fold_lines(&rows, 100.0);
+        rows.extend((3..=20).map(|v| row(v as f64, &[])));
+        let lines = fold_lines(&rows, 100.0, 0.01);
         assert_eq!(lines.len(), 3);
         assert_eq!(
             lines[0].iter().map(|v| v.p1).collect::<Vec<_>>(),

@@ -229,7 +229,7 @@ fn end_of(c: u64, control: f64) -> Option<LegEnd> {
 
 /// The restart content of a branch search: per branch its point and fold counts, then the
 /// points `[control, dpds, leading, arclength]` + method + state, folds `[control]` +
-/// `[after_point, corner, converged]` + state, and the two leg ends.
+/// `[after_point, corner, converged, minimum, turns]` + state, and the two leg ends.
 fn save_progress(p: &BranchesProgress, config_text: &str) -> Restart {
     let mut r = Restart::new("branches", config_text);
     let (mut counts, mut pf, mut pi, mut ps, mut ff, mut fi, mut fs, mut ei, mut ef) = (
@@ -252,7 +252,13 @@ fn save_progress(p: &BranchesProgress, config_text: &str) -> Restart {
         }
         for f in &b.folds {
             ff.push(f.control);
-            fi.extend([f.after_point as u64, u64::from(f.corner), u64::from(f.converged)]);
+            fi.extend([
+                f.after_point as u64,
+                u64::from(f.corner),
+                u64::from(f.converged),
+                u64::from(f.minimum),
+                f.turns as u64,
+            ]);
             fs.extend_from_slice(&f.state);
         }
         for e in b.ends {
@@ -301,7 +307,7 @@ fn restore_progress(r: &Restart, n: usize) -> Result<BranchesProgress, RestartEr
         || pi.len() != np
         || ps.len() != n * np
         || ff.len() != nf
-        || fi.len() != 3 * nf
+        || fi.len() != 5 * nf
         || fs.len() != n * nf
         || ei.len() != 2 * nb
         || ef.len() != 2 * nb
@@ -328,9 +334,11 @@ fn restore_progress(r: &Restart, n: usize) -> Result<BranchesProgress, RestartEr
             folds.push(FoldPoint {
                 control: ff[k],
                 state: fs[n * k..n * (k + 1)].to_vec(),
-                after_point: fi[3 * k] as usize,
-                corner: fi[3 * k + 1] != 0,
-                converged: fi[3 * k + 2] != 0,
+                after_point: fi[5 * k] as usize,
+                corner: fi[5 * k + 1] != 0,
+                converged: fi[5 * k + 2] != 0,
+                minimum: fi[5 * k + 3] != 0,
+                turns: fi[5 * k + 4] as usize,
             });
         }
         at_p += cp;

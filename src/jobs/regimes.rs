@@ -193,19 +193,27 @@ fn compute(
         (None, Some(sig)) if rows.len() < values.len() => Outcome::Stopped(sig),
         _ => Outcome::Finished,
     };
+    // A fold may jitter within its cluster of sub-band wiggles: about a band of ice edge.
+    let slack = 2.0
+        * crate::jobs::run::build_model(cfg)?
+        .grid
+        .dx
+        .iter()
+        .copied()
+        .fold(0.0, f64::max);
     let lines = if log {
         // Link folds of neighbouring rows by their distance in ln(control).
         let mut in_q = rows.clone();
         for f in in_q.iter_mut().flat_map(|r| r.folds.iter_mut()) {
             f.control = f.control.ln();
         }
-        let mut lines = fold_lines(&in_q, spec.to.ln() - spec.from.ln());
+        let mut lines = fold_lines(&in_q, spec.to.ln() - spec.from.ln(), slack);
         for v in lines.iter_mut().flatten() {
             v.p1 = v.p1.exp();
         }
         lines
     } else {
-        fold_lines(&rows, spec.to - spec.from)
+        fold_lines(&rows, spec.to - spec.from, slack)
     };
     Ok((RegimeMap { columns, rows, lines }, outcome, saved))
 }
@@ -321,7 +329,12 @@ fn save_rows(
     );
     r.put_u64(
         "folds.corner",
-        &u(&|x| x.folds.iter().map(|f| u64::from(f.corner)).collect()),
+        &u(&|x| {
+            x.folds
+                .iter()
+                .map(|f| u64::from(f.corner) | (u64::from(f.minimum) << 1))
+                .collect()
+        }),
     );
     r.save(&checkpoint::restart_path(path))
 }
@@ -380,7 +393,8 @@ fn restore_rows(
                 .map(|m| RowFold {
                     control: fc[m],
                     ice_edge: fe[m],
-                    corner: fk[m] != 0,
+                    corner: fk[m] & 1 != 0,
+                    minimum: fk[m] & 2 != 0,
                 })
                 .collect(),
             branches: branches[j] as usize,

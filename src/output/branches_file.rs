@@ -259,6 +259,24 @@ pub fn write_branches_with(
             attrs("1", "1 if the fold was located to the requested precision", None),
             folds.iter().map(|(_, f)| i32::from(f.converged)).collect(),
         ),
+        (
+            "fold_minimum",
+            attrs(
+                "1",
+                "1 if the control has a local minimum at the fold (the branch lies above it), 0 at a maximum",
+                None,
+            ),
+            folds.iter().map(|(_, f)| i32::from(f.minimum)).collect(),
+        ),
+        (
+            "fold_turns",
+            attrs(
+                "1",
+                "turning points of the discrete curve the fold stands for (more than 1: a cluster of sub-band wiggles of the step albedo's edge rule, reported at its extreme control)",
+                None,
+            ),
+            folds.iter().map(|(_, f)| f.turns as i32).collect(),
+        ),
     ];
     for (name, a, values) in &fold_i32 {
         w.add_variable_i32(name, &["fold"], a)?;

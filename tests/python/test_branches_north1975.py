@@ -117,9 +117,12 @@ def test_small_ice_cap_branch_is_present(curve):
     assert abs(fq[cand][k] / exact.q - 1.0) < 2e-3, f"{name}: {fq[cand][k]} vs {exact.q}"
     assert abs(fx[cand][k] - exact.xs) < 0.01, f"{name}: x_s {fx[cand][k]} vs {exact.xs}"
     # Between the small-cap fold and the pole the caps are unstable (dQ/dx_s < 0 there;
-    # Cahalan and North 1979).
+    # Cahalan and North 1979). The fold is the extreme of a cluster of sub-band wiggles of the
+    # discrete curve up to two bands wide (README, folds and their accuracy), whose short
+    # stretches of dQ/dx_s > 0 are stable: skip two bands past it.
     xs = edge_x(ds["ice_edge_latitude_north"].values)
-    small = (xs > fx[cand][k] + 0.002) & (xs < 1.0 - 1e-4)
+    band = 1.0 / ds.sizes["lat"]
+    small = (xs > fx[cand][k] + 2.0 * band) & (xs < 1.0 - 1e-4)
     assert small.sum() >= 3, f"{name}: {small.sum()} points on the small-cap branch"
     assert (ds["stable"].values[small] == 0).all()
 

@@ -312,6 +312,16 @@ def _half_bands(grid: Grid, t: np.ndarray):
         # (docs/discrete-model.md).
         left_face[0] = t[0] + slope[0] * (xf[0] - xc[0])
         right_face[-1] = t[-1] + slope[-1] * (xf[-1] - xc[-1])
+        # On a globe with a face at the equator the two half bands next to it do the same
+        # with their own hemisphere's two nearest centres (docs/discrete-model.md).
+        s = n // 2
+        if grid.domain == "globe" and n % 2 == 0 and abs(xf[s]) < 1e-12:
+            if s >= 2:
+                left_face[s] = t[s] + slope[s] * (xf[s] - xc[s])
+                right_face[s - 1] = t[s - 1] + slope[s - 2] * (xf[s] - xc[s - 1])
+            else:
+                left_face[s] = t[s]
+                right_face[s - 1] = t[s - 1]
     p = np.empty(2 * n)
     q = np.empty(2 * n)
     a = np.empty(2 * n)
