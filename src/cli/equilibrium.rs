@@ -7,7 +7,7 @@ use crate::jobs::equilibrium::{equilibrium_to_file, StartClimate};
 /// Starting climate for Newton.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
 pub enum Start {
-    /// The config's `[initial]` state.
+    /// The config's `[initial]` state (an asymmetric start on a globe: `initial.temperature_p1_k`).
     Config,
     /// Present-day-like: warm equator, cold poles.
     Warm,
@@ -17,6 +17,10 @@ pub enum Start {
     IceFree,
     /// Far below freezing everywhere.
     Snowball,
+    /// Asymmetric (globe): a polar cap in the north only, the south warmer.
+    NorthCap,
+    /// Asymmetric (globe): a polar cap in the south only, the north warmer.
+    SouthCap,
 }
 
 impl From<Start> for StartClimate {
@@ -27,6 +31,8 @@ impl From<Start> for StartClimate {
             Start::Cold => StartClimate::Cold,
             Start::IceFree => StartClimate::IceFree,
             Start::Snowball => StartClimate::Snowball,
+            Start::NorthCap => StartClimate::NorthCap,
+            Start::SouthCap => StartClimate::SouthCap,
         }
     }
 }
