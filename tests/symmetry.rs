@@ -72,9 +72,18 @@ fn asymmetric_stable_states_lie_on_a_traced_asymmetric_branch() {
                 continue;
             }
             let f = (s0 - a.control) / (z.control - a.control);
-            let mid: Vec<f64> = a.state.iter().zip(&z.state).map(|(x, y)| x + f * (y - x)).collect();
+            let mid: Vec<f64> = a
+                .state
+                .iter()
+                .zip(&z.state)
+                .map(|(x, y)| x + f * (y - x))
+                .collect();
             for cand in [t.clone(), mirror(&t)] {
-                let d = mid.iter().zip(&cand).map(|(x, y)| (x - y).abs()).fold(0.0, f64::max);
+                let d = mid
+                    .iter()
+                    .zip(&cand)
+                    .map(|(x, y)| (x - y).abs())
+                    .fold(0.0, f64::max);
                 best = best.min(d);
             }
         }
@@ -95,7 +104,12 @@ fn branch_point_is_where_the_antisymmetric_eigenvalue_vanishes() {
         .iter()
         .filter(|b| b.converged && !b.corner && fam.base_model().ice_edges(&b.state).0 > 60.0)
         .collect();
-    assert_eq!(smooth.len(), 1, "{:?}", set.breaks.iter().map(|b| b.control).collect::<Vec<_>>());
+    assert_eq!(
+        smooth.len(),
+        1,
+        "{:?}",
+        set.breaks.iter().map(|b| b.control).collect::<Vec<_>>()
+    );
     let bp = smooth[0];
     assert!(asymmetry(&bp.state) < 1e-9);
     let sign_at = |dp: f64| {

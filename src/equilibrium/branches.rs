@@ -94,7 +94,12 @@ pub fn max_diff(a: &[f64], b: &[f64]) -> f64 {
 }
 
 /// Whether the equilibrium `s` at control `p` lies on `branch`.
-pub(crate) fn on_branch(tr: &mut Tracer<'_>, branch: &Branch, s: &[f64], p: f64) -> Result<bool, ContinuationError> {
+pub(crate) fn on_branch(
+    tr: &mut Tracer<'_>,
+    branch: &Branch,
+    s: &[f64],
+    p: f64,
+) -> Result<bool, ContinuationError> {
     let pts = &branch.points;
     for pt in pts {
         if pt.control == p && max_diff(&pt.state, s) < SAME_STATE_K {

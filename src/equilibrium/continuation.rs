@@ -148,7 +148,8 @@ pub enum LegEnd {
     Stuck {
         /// Control value of the last point.
         control: f64,
-    },    /// It meets the symmetric states at a branch point (asymmetric branches on a globe; set by
+    },
+    /// It meets the symmetric states at a branch point (asymmetric branches on a globe; set by
     /// `symmetry`, never by the tracer).
     BranchPoint {
         /// Control value of the last point.

@@ -8,7 +8,7 @@ pub mod newton;
 pub mod regimes;
 pub mod settle;
 pub mod stability;
-pub mod symmetry;
 pub mod sweep;
+pub mod symmetry;
 
 pub use newton::{newton, NewtonOptions, NewtonResult};

@@ -82,7 +82,9 @@ pub fn mirror(t: &[f64]) -> Vec<f64> {
 /// Largest difference between a state and its mirror image, K.
 pub fn asymmetry(t: &[f64]) -> f64 {
     let n = t.len();
-    (0..n / 2).map(|i| (t[i] - t[n - 1 - i]).abs()).fold(0.0, f64::max)
+    (0..n / 2)
+        .map(|i| (t[i] - t[n - 1 - i]).abs())
+        .fold(0.0, f64::max)
 }
 
 /// Whether `model` is a globe whose steady heating commutes with the mirror: `G(R T) = R G(T)`
@@ -273,7 +275,9 @@ fn antisymmetric_mode(model: &Model, t: &[f64]) -> Option<Vec<f64>> {
         .enumerate()
         .min_by(|a, b| a.1.total_cmp(b.1))?;
     let half: Vec<f64> = vt.row(k).iter().copied().collect();
-    let big = half.iter().fold(0.0_f64, |a, v| if v.abs() > a.abs() { *v } else { a });
+    let big = half
+        .iter()
+        .fold(0.0_f64, |a, v| if v.abs() > a.abs() { *v } else { a });
     if big == 0.0 || !big.is_finite() {
         return None;
     }
@@ -367,7 +371,11 @@ fn locate(
     }
     let interp = |p: f64| -> Vec<f64> {
         let f = (p - pa.control) / (pb.control - pa.control);
-        pa.state.iter().zip(&pb.state).map(|(x, y)| x + f * (y - x)).collect()
+        pa.state
+            .iter()
+            .zip(&pb.state)
+            .map(|(x, y)| x + f * (y - x))
+            .collect()
     };
     let (mut lo, mut hi) = (pa.control, pb.control);
     let (mut mlo, mut mhi) = mu;
@@ -489,7 +497,9 @@ fn switch(
         return Ok(None);
     };
     let n = phi.len();
-    let k = (n / 2..n).max_by(|&i, &j| phi[i].abs().total_cmp(&phi[j].abs())).unwrap_or(n - 1);
+    let k = (n / 2..n)
+        .max_by(|&i, &j| phi[i].abs().total_cmp(&phi[j].abs()))
+        .unwrap_or(n - 1);
     for eps in SWITCH_AMPLITUDES {
         let guess: Vec<f64> = brk.state.iter().zip(&phi).map(|(t, f)| t + eps * f).collect();
         let Some((s, p)) = tr.pinned(k, guess[k], &guess, brk.control)? else {
@@ -525,7 +535,8 @@ fn asymmetric_piece(b: Branch, start: &[f64]) -> Branch {
     let amp = |t: &[f64]| -> f64 { (0..n).map(|i| (t[i] - t[n - 1 - i]) * dir[i]).sum() };
     let keep = |t: &[f64]| amp(t) > 0.0 && asymmetry(t) > SYMMETRIC_K;
     let pts = &b.points;
-    let Some(i0) = (0..pts.len()).min_by(|&i, &j| max_diff(&pts[i].state, start).total_cmp(&max_diff(&pts[j].state, start)))
+    let Some(i0) = (0..pts.len())
+        .min_by(|&i, &j| max_diff(&pts[i].state, start).total_cmp(&max_diff(&pts[j].state, start)))
     else {
         return b;
     };
@@ -538,12 +549,16 @@ fn asymmetric_piece(b: Branch, start: &[f64]) -> Branch {
     }
     let ends = [
         if first > 0 {
-            LegEnd::BranchPoint { control: pts[first - 1].control }
+            LegEnd::BranchPoint {
+                control: pts[first - 1].control,
+            }
         } else {
             b.ends[0]
         },
         if last + 1 < pts.len() {
-            LegEnd::BranchPoint { control: pts[last + 1].control }
+            LegEnd::BranchPoint {
+                control: pts[last + 1].control,
+            }
         } else {
             b.ends[1]
         },
@@ -603,7 +618,12 @@ mod tests {
         // spectra of the symmetric and antisymmetric blocks is the full spectrum.
         for bands in [20, 21] {
             let model = globe(bands);
-            let t: Vec<f64> = model.grid.x_centres.iter().map(|x| 300.0 - 50.0 * x * x).collect();
+            let t: Vec<f64> = model
+                .grid
+                .x_centres
+                .iter()
+                .map(|x| 300.0 - 50.0 * x * x)
+                .collect();
             let n = model.len();
             let mut ws = Workspace::new(n);
             let mut jac = Tridiag::zeros(n);
@@ -613,12 +633,20 @@ mod tests {
             let fm = DMatrix::from_fn(n, n, |r, c| full[r * n + c] * scale[r]);
             let mut all: Vec<f64> = fm.complex_eigenvalues().iter().map(|c| c.re).collect();
             let (d, lo, up) = antisymmetric_block(&jac, &scale);
-            let mut anti: Vec<f64> = dense(&d, &lo, &up).complex_eigenvalues().iter().map(|c| c.re).collect();
+            let mut anti: Vec<f64> = dense(&d, &lo, &up)
+                .complex_eigenvalues()
+                .iter()
+                .map(|c| c.re)
+                .collect();
             let (sb, _) = symmetric_block(&jac, &model.grid.weights);
             let sd: Vec<f64> = (0..sb.len()).map(|k| sb.diag[k] * scale[n / 2 + k]).collect();
             let sl: Vec<f64> = (0..sb.len()).map(|k| sb.lower[k] * scale[n / 2 + k]).collect();
             let su: Vec<f64> = (0..sb.len()).map(|k| sb.upper[k] * scale[n / 2 + k]).collect();
-            let sym: Vec<f64> = dense(&sd, &sl, &su).complex_eigenvalues().iter().map(|c| c.re).collect();
+            let sym: Vec<f64> = dense(&sd, &sl, &su)
+                .complex_eigenvalues()
+                .iter()
+                .map(|c| c.re)
+                .collect();
             let lead_anti = leading_tridiagonal(&d, &lo, &up);
             anti.extend(sym);
             all.sort_by(f64::total_cmp);

@@ -405,7 +405,11 @@ fn write_breaks(
     w.add_variable_f64(
         "branch_point_surface_temperature",
         &["branch_point", "lat"],
-        &attrs("K", "surface temperature at the branch point", Some("surface_temperature")),
+        &attrs(
+            "K",
+            "surface temperature at the branch point",
+            Some("surface_temperature"),
+        ),
     )?;
     let all: Vec<f64> = bp.iter().flat_map(|b| b.state.iter().copied()).collect();
     w.write_f64("branch_point_surface_temperature", &all)?;

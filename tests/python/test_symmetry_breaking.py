@@ -147,6 +147,7 @@ def test_pitchfork_on_the_small_cap_branch_matches_the_reference(icefold_bin, tm
     p_ref = brentq(mu, p_star - 0.004, p_star + 0.004, xtol=1e-9)
     # The reference eigenvalue carries the central-difference error (~1e-9 relative); its
     # slope in S0 puts the zero to about 1e-6 W m-2.
+    print(f"pitchfork: icefold {p_star!r}, reference {p_ref!r}")
     assert abs(p_ref - p_star) < 1e-5, (p_ref, p_star)
 
 
@@ -156,6 +157,7 @@ def test_asymmetric_equilibrium_matches_the_reference(icefold_bin, tmp_path):
     start = 273.15 + 15.0 - 15.0 * x - 30.0 * 0.5 * (3 * x * x - 1)
     t_ref = discrete.equilibrium(model, start)
     north, south = model.ice_edge_north(t_ref), model.ice_edge_south(t_ref)
+    print(f"reference asymmetric state at 1340: edges {north!r} N, {south!r} S")
     assert north < 80.0 and south == -90.0, (north, south)
 
     _icefold(icefold_bin, tmp_path, "equilibrium", "--start", "north-cap", "-o", "e1.nc")
