@@ -44,12 +44,15 @@ pub fn main(args: &ConfigArgs, out: &OutputArgs, start: Start) -> Result<(), Err
     let r = equilibrium_to_file(&cfg, &path, &super::command_line(), start.into())?;
     let lead = r.spectrum.real.first().copied().unwrap_or(f64::NAN);
     eprintln!(
-        "icefold: wrote {} ({}; residual {:.2e} W m-2); global mean {:.3} K, ice edge {:.2} degrees N, leading eigenvalue {:.4} per year ({}, {} spectrum)",
+        "icefold: wrote {} ({}; residual {:.2e} W m-2); global mean {:.3} K, ice edge {:.2} degrees N{}, leading eigenvalue {:.4} per year ({}, {} spectrum)",
         path.display(),
         r.solved.solver,
         r.solved.residual_wm2,
         r.global_mean,
         r.ice_edge_north,
+        r.ice_edge_south
+            .map(|s| format!(" and {:.2} degrees S", -s))
+            .unwrap_or_default(),
         lead,
         if lead < 0.0 { "stable" } else { "unstable" },
         r.spectrum.method.name()

@@ -209,6 +209,8 @@ pub struct EquilibriumReport {
     pub global_mean: f64,
     /// Ice edge north, degrees.
     pub ice_edge_north: f64,
+    /// Ice edge south (globe only), degrees north.
+    pub ice_edge_south: Option<f64>,
 }
 
 /// Solve and write the file at `path`.
@@ -245,6 +247,7 @@ pub fn equilibrium_to_file(
     Ok(EquilibriumReport {
         global_mean: model.global_mean(&solved.state),
         ice_edge_north: model.ice_edges(&solved.state).0,
+        ice_edge_south: model.ice_edges(&solved.state).1,
         solved,
         spectrum: sp,
     })

@@ -284,21 +284,24 @@ pub fn write_branches_with(
         w.add_variable_i32(name, &["branches"], a)?;
         w.write_i32(name, values)?;
     }
-    let mut asym_attrs = attrs(
-        "1",
-        "1 if the branch is asymmetric about the equator (it leaves a symmetric branch at a branch point, or is the mirror image of one that does), 0 if symmetric or on a hemisphere",
-        None,
-    );
-    asym_attrs.push(("flag_values", Attr::from("0 1")));
-    asym_attrs.push(("flag_meanings", Attr::from("symmetric asymmetric")));
-    w.add_variable_i32("branch_asymmetric", &["branches"], &asym_attrs)?;
-    w.write_i32(
-        "branch_asymmetric",
-        &(0..branches.len())
-            .map(|b| i32::from(b >= info.asymmetric_from))
-            .collect::<Vec<_>>(),
-    )?;
-    write_breaks(&mut w, model, info, branches, units)?;
+    // Globe files only: which branches are asymmetric, and the branch points.
+    if globe {
+        let mut asym_attrs = attrs(
+            "1",
+            "1 if the branch is asymmetric about the equator (it leaves a symmetric branch at a branch point, or is the mirror image of one that does), 0 if symmetric or on a hemisphere",
+            None,
+        );
+        asym_attrs.push(("flag_values", Attr::from("0 1")));
+        asym_attrs.push(("flag_meanings", Attr::from("symmetric asymmetric")));
+        w.add_variable_i32("branch_asymmetric", &["branches"], &asym_attrs)?;
+        w.write_i32(
+            "branch_asymmetric",
+            &(0..branches.len())
+                .map(|b| i32::from(b >= info.asymmetric_from))
+                .collect::<Vec<_>>(),
+        )?;
+        write_breaks(&mut w, model, info, branches, units)?;
+    }
 
     w.set_attr_str("control_key", info.control_key)?;
     w.set_attr_str("control_units", units)?;
