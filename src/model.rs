@@ -928,12 +928,12 @@ impl Model {
         }
     }
 
-    /// The initial state a spec describes: uniform plus a P2 shape, K.
+    /// The initial state a spec describes: uniform plus P1 and P2 shapes, K.
     pub fn initial_state(&self, init: &crate::config::spec::InitialSpec) -> Vec<f64> {
         self.grid
             .x_centres
             .iter()
-            .map(|&x| init.temperature_k + init.p2_k * crate::grid::p2(x))
+            .map(|&x| init.temperature_k + init.p1_k * x + init.p2_k * crate::grid::p2(x))
             .collect()
     }
 }

@@ -7,7 +7,7 @@ use crate::jobs::equilibrium::{equilibrium_to_file, StartClimate};
 /// Starting climate for Newton.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
 pub enum Start {
-    /// The config's `[initial]` state.
+    /// The config's `[initial]` state (an asymmetric start on a globe: `initial.temperature_p1_k`).
     Config,
     /// Present-day-like: warm equator, cold poles.
     Warm,
@@ -17,6 +17,10 @@ pub enum Start {
     IceFree,
     /// Far below freezing everywhere.
     Snowball,
+    /// Asymmetric (globe): a polar cap in the north only, the south warmer.
+    NorthCap,
+    /// Asymmetric (globe): a polar cap in the south only, the north warmer.
+    SouthCap,
 }
 
 impl From<Start> for StartClimate {
@@ -27,6 +31,8 @@ impl From<Start> for StartClimate {
             Start::Cold => StartClimate::Cold,
             Start::IceFree => StartClimate::IceFree,
             Start::Snowball => StartClimate::Snowball,
+            Start::NorthCap => StartClimate::NorthCap,
+            Start::SouthCap => StartClimate::SouthCap,
         }
     }
 }
@@ -38,12 +44,15 @@ pub fn main(args: &ConfigArgs, out: &OutputArgs, start: Start) -> Result<(), Err
     let r = equilibrium_to_file(&cfg, &path, &super::command_line(), start.into())?;
     let lead = r.spectrum.real.first().copied().unwrap_or(f64::NAN);
     eprintln!(
-        "icefold: wrote {} ({}; residual {:.2e} W m-2); global mean {:.3} K, ice edge {:.2} degrees N, leading eigenvalue {:.4} per year ({}, {} spectrum)",
+        "icefold: wrote {} ({}; residual {:.2e} W m-2); global mean {:.3} K, ice edge {:.2} degrees N{}, leading eigenvalue {:.4} per year ({}, {} spectrum)",
         path.display(),
         r.solved.solver,
         r.solved.residual_wm2,
         r.global_mean,
         r.ice_edge_north,
+        r.ice_edge_south
+            .map(|s| format!(" and {:.2} degrees S", -s))
+            .unwrap_or_default(),
         lead,
         if lead < 0.0 { "stable" } else { "unstable" },
         r.spectrum.method.name()

@@ -371,6 +371,41 @@ fn control_summary(r: &NcReader, kind: &str, s: &mut String) -> Result<(), Error
             }
             first += c;
         }
+        // Globe files: branch points (pitchforks) and the asymmetric branches leaving them.
+        if r.var_names()?.iter().any(|v| v == "branch_point_control") {
+            let bc = r.read_f64("branch_point_control")?;
+            let be = r.read_f64("branch_point_ice_edge_latitude_north")?;
+            let corner = r.read_f64("branch_point_corner")?;
+            let conv = r.read_f64("branch_point_converged")?;
+            let list: Vec<String> = bc
+                .iter()
+                .zip(&be)
+                .zip(corner.iter().zip(&conv))
+                .map(|((c, e), (k, v))| {
+                    let note = match (*k != 0.0, *v != 0.0) {
+                        (_, false) => ", unresolved: nearest traced point",
+                        (true, true) => ", corner",
+                        (false, true) => "",
+                    };
+                    format!("{c:.6} (ice edge {e:.2} degrees{note})")
+                })
+                .collect();
+            let _ = writeln!(
+                s,
+                "branch points: {}",
+                if list.is_empty() {
+                    "none".into()
+                } else {
+                    list.join(", ")
+                }
+            );
+            let asym = r.read_f64("branch_asymmetric")?;
+            let _ = writeln!(
+                s,
+                "asymmetric: {} branches (mirror images included)",
+                asym.iter().filter(|v| **v != 0.0).count()
+            );
+        }
     }
     Ok(())
 }

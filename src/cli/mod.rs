@@ -102,7 +102,9 @@ pub enum Command {
         config: ConfigArgs,
         #[command(flatten)]
         output: OutputArgs,
-        /// Starting climate: the config's initial state, or a named one.
+        /// Starting climate: the config's initial state (with `initial.temperature_p1_k` an
+        /// asymmetric one), or a named one (`north-cap`, `south-cap`: a globe with ice in one
+        /// hemisphere only).
         #[arg(long, value_enum, default_value = "config")]
         start: equilibrium::Start,
     },

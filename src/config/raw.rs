@@ -202,6 +202,8 @@ pub struct RawInitial {
     pub temperature_c: Option<f64>,
     /// Added `P2(x)` shape, K (negative: colder poles).
     pub temperature_p2_k: Option<f64>,
+    /// Added `P1(x) = x` part, K (positive: warmer north; an asymmetric start on a globe).
+    pub temperature_p1_k: Option<f64>,
 }
 
 /// `[time]`.

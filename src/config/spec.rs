@@ -161,6 +161,8 @@ pub struct InitialSpec {
     pub temperature_k: f64,
     /// P2 part, K.
     pub p2_k: f64,
+    /// P1 part (`x`), K: antisymmetric about the equator.
+    pub p1_k: f64,
 }
 
 /// `[equilibrium]`, validated.

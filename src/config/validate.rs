@@ -479,9 +479,16 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
         0.0,
         Range::Closed(-500.0, 500.0),
     )?;
+    let p1k = c.num(
+        "initial.temperature_p1_k",
+        &mut i.temperature_p1_k,
+        0.0,
+        Range::Closed(-500.0, 500.0),
+    )?;
     let initial = InitialSpec {
         temperature_k: t0 + ZERO_CELSIUS,
         p2_k: p2k,
+        p1_k: p1k,
     };
 
     // [time]

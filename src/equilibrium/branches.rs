@@ -12,6 +12,7 @@
 
 use super::continuation::{Branch, ContinuationError, ContinuationOptions, Tracer};
 use super::control::Controlled;
+use super::symmetry::{break_symmetry, BranchBreak};
 use super::{newton, NewtonOptions};
 use crate::model::Model;
 
@@ -93,7 +94,12 @@ pub fn max_diff(a: &[f64], b: &[f64]) -> f64 {
 }
 
 /// Whether the equilibrium `s` at control `p` lies on `branch`.
-fn on_branch(tr: &mut Tracer<'_>, branch: &Branch, s: &[f64], p: f64) -> Result<bool, ContinuationError> {
+pub(crate) fn on_branch(
+    tr: &mut Tracer<'_>,
+    branch: &Branch,
+    s: &[f64],
+    p: f64,
+) -> Result<bool, ContinuationError> {
     let pts = &branch.points;
     for pt in pts {
         if pt.control == p && max_diff(&pt.state, s) < SAME_STATE_K {
@@ -167,6 +173,11 @@ pub struct BranchSet {
     pub branches: Vec<Branch>,
     /// Linearisations used (each one evaluation of G, G_T, G_p and a factorisation).
     pub linearisations: u64,
+    /// Branches from this index on are asymmetric (globe only: they leave the symmetric
+    /// branches at `breaks`); the ones before are the traced branches.
+    pub asymmetric_from: usize,
+    /// Branch points (pitchforks) on the symmetric branches of a mirror-symmetric globe.
+    pub breaks: Vec<BranchBreak>,
 }
 
 /// Trace every branch met by the seeds at both ends and the middle of the range.
@@ -264,11 +275,26 @@ pub fn all_branches_from(
         Ok(s) => (s, None),
         Err(e) => (false, Some(e)),
     };
-    let branches = distinct(&tr, progress.branches.clone());
+    let mut branches = distinct(&tr, progress.branches.clone());
+    let asymmetric_from = branches.len();
+    let mut breaks = Vec::new();
+    let mut error = error;
+    // Symmetry breaking once every seed is traced (a resumed search repeats it).
+    if !stopped && error.is_none() {
+        match break_symmetry(fam, &mut tr, &branches, &opts) {
+            Ok(sb) => {
+                branches.extend(sb.branches);
+                breaks = sb.breaks;
+            }
+            Err(e) => error = Some(e),
+        }
+    }
     BranchesRun {
         set: BranchSet {
             branches,
             linearisations: tr.linearisations,
+            asymmetric_from,
+            breaks,
         },
         seeds_total,
         progress,

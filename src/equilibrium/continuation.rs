@@ -163,6 +163,12 @@ pub enum LegEnd {
         /// Control value of the last point.
         control: f64,
     },
+    /// It meets the symmetric states at a branch point (asymmetric branches on a globe; set by
+    /// `symmetry`, never by the tracer).
+    BranchPoint {
+        /// Control value of the last point.
+        control: f64,
+    },
 }
 
 /// A traced branch.

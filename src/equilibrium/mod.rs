@@ -9,5 +9,6 @@ pub mod regimes;
 pub mod settle;
 pub mod stability;
 pub mod sweep;
+pub mod symmetry;
 
 pub use newton::{newton, NewtonOptions, NewtonResult};

@@ -37,11 +37,20 @@ pub enum Kind {
     LargeCap,
     /// Ice everywhere: `phi` = 0.
     Snowball,
+    /// Not symmetric about the equator (globe): on a branch that left a symmetric one at a
+    /// branch point, whatever its edges (e.g. one hemisphere ice free, the other capped).
+    Asymmetric,
 }
 
 impl Kind {
     /// Every kind, in the order of their flag bits.
-    pub const ALL: [Kind; 4] = [Kind::IceFree, Kind::SmallCap, Kind::LargeCap, Kind::Snowball];
+    pub const ALL: [Kind; 5] = [
+        Kind::IceFree,
+        Kind::SmallCap,
+        Kind::LargeCap,
+        Kind::Snowball,
+        Kind::Asymmetric,
+    ];
 
     /// The kind of an equilibrium with northern ice edge at `phi` degrees north.
     pub fn of_edge(phi: f64) -> Kind {
@@ -56,7 +65,7 @@ impl Kind {
         }
     }
 
-    /// Flag bit of the kind (1, 2, 4, 8).
+    /// Flag bit of the kind (1, 2, 4, 8, 16).
     pub fn bit(self) -> u8 {
         1 << (self as u8)
     }
@@ -68,6 +77,7 @@ impl Kind {
             Kind::SmallCap => "small_cap",
             Kind::LargeCap => "large_cap",
             Kind::Snowball => "snowball",
+            Kind::Asymmetric => "asymmetric",
         }
     }
 
@@ -82,6 +92,10 @@ impl Kind {
                 format!("large_cap: ice edge equatorward of {SMALL_CAP_MIN_LATITUDE} degrees north, above 0")
             }
             Kind::Snowball => "snowball: ice edge at 0 degrees (ice everywhere)".into(),
+            Kind::Asymmetric => {
+                "asymmetric: not symmetric about the equator (globe; an asymmetric branch or its mirror image, each counted)"
+                    .into()
+            }
         }
     }
 }
@@ -230,7 +244,17 @@ pub fn regime_row(
         }
         base.ice_edges(state).0
     };
-    let (stable, equilibria, kinds) = classify(&set.branches, columns, &edge);
+    let (sym, asym) = set.branches.split_at(set.asymmetric_from);
+    let (mut stable, mut equilibria, mut kinds) = classify(sym, columns, &edge);
+    // Asymmetric equilibria are a kind of their own whatever their edges.
+    let (s2, e2, k2) = classify(asym, columns, &edge);
+    for i in 0..columns.len() {
+        stable[i] += s2[i];
+        equilibria[i] += e2[i];
+        if k2[i] != 0 {
+            kinds[i] |= Kind::Asymmetric.bit();
+        }
+    }
     let mut folds: Vec<RowFold> = set
         .branches
         .iter()
@@ -385,7 +409,7 @@ mod tests {
         assert_eq!(Kind::of_edge(59.9), Kind::LargeCap);
         assert_eq!(Kind::of_edge(0.0), Kind::Snowball);
         let bits: Vec<u8> = Kind::ALL.iter().map(|k| k.bit()).collect();
-        assert_eq!(bits, [1, 2, 4, 8]);
+        assert_eq!(bits, [1, 2, 4, 8, 16]);
     }
 
     fn row(v: f64, folds: &[(f64, f64)]) -> RegimeRow {

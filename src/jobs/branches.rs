@@ -150,6 +150,8 @@ pub fn branches_job(
         spacing: spec.spacing.name(),
         linearisations: run.set.linearisations,
         family: family.as_ref(),
+        asymmetric_from: run.set.asymmetric_from,
+        breaks: &run.set.breaks,
     };
     let prov = provenance(cfg, command_line);
     let reached = vec![
@@ -207,13 +209,15 @@ fn method_of(c: u64) -> Option<SpectrumMethod> {
     })
 }
 
-/// `(code, control)` of a leg end: 0 left range, 1 point limit, 2 closed, 3 stuck.
+/// `(code, control)` of a leg end: 0 left range, 1 point limit, 2 closed, 3 stuck, 4
+/// branch point.
 fn end_code(e: LegEnd) -> (u64, f64) {
     match e {
         LegEnd::LeftRange => (0, f64::NAN),
         LegEnd::PointLimit => (1, f64::NAN),
         LegEnd::Closed => (2, f64::NAN),
         LegEnd::Stuck { control } => (3, control),
+        LegEnd::BranchPoint { control } => (4, control),
     }
 }
 
@@ -223,6 +227,7 @@ fn end_of(c: u64, control: f64) -> Option<LegEnd> {
         1 => LegEnd::PointLimit,
         2 => LegEnd::Closed,
         3 => LegEnd::Stuck { control },
+        4 => LegEnd::BranchPoint { control },
         _ => return None,
     })
 }

@@ -34,6 +34,11 @@ pub enum StartClimate {
     IceFree,
     /// -80 C everywhere.
     Snowball,
+    /// The warm start with a P1 part of -15 K: colder north (a cap in the north only on a
+    /// globe near the small-cap range).
+    NorthCap,
+    /// Its mirror image: +15 K P1 part.
+    SouthCap,
 }
 
 impl StartClimate {
@@ -45,23 +50,27 @@ impl StartClimate {
             StartClimate::Cold => "cold",
             StartClimate::IceFree => "ice-free",
             StartClimate::Snowball => "snowball",
+            StartClimate::NorthCap => "north-cap",
+            StartClimate::SouthCap => "south-cap",
         }
     }
 
     /// The starting temperatures, K.
     pub fn state(self, model: &Model, cfg: &Loaded) -> Vec<f64> {
-        let (mean_c, p2k) = match self {
+        let (mean_c, p2k, p1k) = match self {
             StartClimate::Config => return model.initial_state(&cfg.spec.initial),
-            StartClimate::Warm => (15.0, -30.0),
-            StartClimate::Cold => (-15.0, -40.0),
-            StartClimate::IceFree => (60.0, 0.0),
-            StartClimate::Snowball => (-80.0, 0.0),
+            StartClimate::Warm => (15.0, -30.0, 0.0),
+            StartClimate::Cold => (-15.0, -40.0, 0.0),
+            StartClimate::IceFree => (60.0, 0.0, 0.0),
+            StartClimate::Snowball => (-80.0, 0.0, 0.0),
+            StartClimate::NorthCap => (15.0, -30.0, -15.0),
+            StartClimate::SouthCap => (15.0, -30.0, 15.0),
         };
         model
             .grid
             .x_centres
             .iter()
-            .map(|&x| mean_c + crate::longwave::ZERO_CELSIUS + p2k * crate::grid::p2(x))
+            .map(|&x| mean_c + crate::longwave::ZERO_CELSIUS + p1k * x + p2k * crate::grid::p2(x))
             .collect()
     }
 }
@@ -200,6 +209,8 @@ pub struct EquilibriumReport {
     pub global_mean: f64,
     /// Ice edge north, degrees.
     pub ice_edge_north: f64,
+    /// Ice edge south (globe only), degrees north.
+    pub ice_edge_south: Option<f64>,
 }
 
 /// Solve and write the file at `path`.
@@ -236,6 +247,7 @@ pub fn equilibrium_to_file(
     Ok(EquilibriumReport {
         global_mean: model.global_mean(&solved.state),
         ice_edge_north: model.ice_edges(&solved.state).0,
+        ice_edge_south: model.ice_edges(&solved.state).1,
         solved,
         spectrum: sp,
     })

@@ -9,6 +9,7 @@ use super::Attr;
 use super::OutputError;
 use crate::equilibrium::continuation::{Branch, LegEnd};
 use crate::equilibrium::control::control_units;
+use crate::equilibrium::symmetry::BranchBreak;
 use crate::model::Model;
 use std::path::Path;
 
@@ -32,6 +33,10 @@ pub struct BranchesInfo<'a> {
     /// (the edge-balance rule of relaxation transport): each state's edge is then taken with
     /// the model at its own control value.
     pub family: Option<&'a crate::equilibrium::control::Controlled>,
+    /// Branches from this index on are asymmetric (globe; `branches.len()` when none).
+    pub asymmetric_from: usize,
+    /// Branch points (pitchforks) on the symmetric branches.
+    pub breaks: &'a [BranchBreak],
 }
 
 /// Ice edges of `state` at control `p`: with the model at `p` when the edge rule depends on
@@ -52,6 +57,7 @@ fn end_code(e: LegEnd) -> i32 {
         LegEnd::PointLimit => 1,
         LegEnd::Closed => 2,
         LegEnd::Stuck { .. } => 3,
+        LegEnd::BranchPoint { .. } => 4,
     }
 }
 
@@ -297,10 +303,10 @@ pub fn write_branches_with(
     w.add_dimension("branches", branches.len())?;
     let end_attrs = |long: &str| {
         let mut a = attrs("1", long, None);
-        a.push(("flag_values", Attr::from("0 1 2 3")));
+        a.push(("flag_values", Attr::from("0 1 2 3 4")));
         a.push((
             "flag_meanings",
-            Attr::from("left_range point_limit closed_loop stuck"),
+            Attr::from("left_range point_limit closed_loop stuck branch_point"),
         ));
         a
     };
@@ -325,6 +331,24 @@ pub fn write_branches_with(
         w.add_variable_i32(name, &["branches"], a)?;
         w.write_i32(name, values)?;
     }
+    // Globe files only: which branches are asymmetric, and the branch points.
+    if globe {
+        let mut asym_attrs = attrs(
+            "1",
+            "1 if the branch is asymmetric about the equator (it leaves a symmetric branch at a branch point, or is the mirror image of one that does), 0 if symmetric or on a hemisphere",
+            None,
+        );
+        asym_attrs.push(("flag_values", Attr::from("0 1")));
+        asym_attrs.push(("flag_meanings", Attr::from("symmetric asymmetric")));
+        w.add_variable_i32("branch_asymmetric", &["branches"], &asym_attrs)?;
+        w.write_i32(
+            "branch_asymmetric",
+            &(0..branches.len())
+                .map(|b| i32::from(b >= info.asymmetric_from))
+                .collect::<Vec<_>>(),
+        )?;
+        write_breaks(&mut w, model, info, branches, units)?;
+    }
 
     w.set_attr_str("control_key", info.control_key)?;
     w.set_attr_str("control_units", units)?;
@@ -334,4 +358,111 @@ pub fn write_branches_with(
     w.set_attr_i64("linearisations", info.linearisations as i64)?;
     apply_completion(&mut w, completion)?;
     w.finish()
+}
+
+/// The branch points (dimension `branch_point`): where an antisymmetric eigenvalue of a
+/// symmetric branch crosses zero and an asymmetric branch leaves it.
+fn write_breaks(
+    w: &mut super::writer::NcWriter,
+    model: &Model,
+    info: &BranchesInfo<'_>,
+    branches: &[Branch],
+    units: &str,
+) -> Result<(), OutputError> {
+    let bp = info.breaks;
+    w.add_dimension("branch_point", bp.len())?;
+    let edges: Vec<(f64, Option<f64>)> = bp.iter().map(|b| model.ice_edges(&b.state)).collect();
+    let f64_vars: [(&str, &str, String, Vec<f64>); 3] = [
+        (
+            "branch_point_control",
+            units,
+            format!(
+                "control value at the branch point (pitchfork: an eigenvalue of the antisymmetric part crosses zero; {})",
+                info.control_key
+            ),
+            bp.iter().map(|b| b.control).collect(),
+        ),
+        (
+            "branch_point_ice_edge_latitude_north",
+            "degrees_north",
+            "northern ice-edge latitude at the branch point (the state is symmetric)".into(),
+            edges.iter().map(|e| e.0).collect(),
+        ),
+        (
+            "branch_point_global_mean_temperature",
+            "K",
+            "global-mean temperature at the branch point".into(),
+            bp.iter().map(|b| model.grid.mean(&b.state)).collect(),
+        ),
+    ];
+    for (name, u, long, values) in &f64_vars {
+        w.add_variable_f64(name, &["branch_point"], &attrs(u, long, None))?;
+        w.write_f64(name, values)?;
+    }
+    let offset = |b: usize| branches[..b].iter().map(|x| x.points.len()).sum::<usize>();
+    let flag = |long: &str, meanings: &str| {
+        let mut a = attrs("1", long, None);
+        a.push(("flag_values", Attr::from("0 1")));
+        a.push(("flag_meanings", Attr::from(meanings)));
+        a
+    };
+    let i32_vars: Vec<IntColumn<'_>> = vec![
+        (
+            "branch_point_branch",
+            attrs("1", "index of the symmetric branch holding the branch point", None),
+            bp.iter().map(|b| b.branch as i32).collect(),
+        ),
+        (
+            "branch_point_after_point",
+            attrs(
+                "1",
+                "index (into dimension point) of the point just before the branch point",
+                None,
+            ),
+            bp.iter().map(|b| (offset(b.branch) + b.after_point) as i32).collect(),
+        ),
+        (
+            "branch_point_asymmetric_branch",
+            attrs(
+                "1",
+                "index of the asymmetric branch leaving the branch point (-1: the switch failed)",
+                None,
+            ),
+            bp.iter()
+                .map(|b| b.asymmetric_branch.map_or(-1, |k| (info.asymmetric_from + k) as i32))
+                .collect(),
+        ),
+        (
+            "branch_point_corner",
+            flag(
+                "1 if the antisymmetric eigenvalue jumps across zero (a corner of the step-albedo curve), 0 for a smooth crossing",
+                "smooth corner",
+            ),
+            bp.iter().map(|b| i32::from(b.corner)).collect(),
+        ),
+        (
+            "branch_point_converged",
+            flag(
+                "1 if the branch point was located to the requested precision",
+                "unresolved converged",
+            ),
+            bp.iter().map(|b| i32::from(b.converged)).collect(),
+        ),
+    ];
+    for (name, a, values) in &i32_vars {
+        w.add_variable_i32(name, &["branch_point"], a)?;
+        w.write_i32(name, values)?;
+    }
+    w.add_variable_f64(
+        "branch_point_surface_temperature",
+        &["branch_point", "lat"],
+        &attrs(
+            "K",
+            "surface temperature at the branch point",
+            Some("surface_temperature"),
+        ),
+    )?;
+    let all: Vec<f64> = bp.iter().flat_map(|b| b.state.iter().copied()).collect();
+    w.write_f64("branch_point_surface_temperature", &all)?;
+    Ok(())
 }

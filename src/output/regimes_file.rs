@@ -97,7 +97,8 @@ pub fn write_regimes_with(
         "kinds of climate among the stable equilibria (sum of flag masks)",
         None,
     );
-    kind_attrs.push(("flag_masks", Attr::from("1 2 4 8")));
+    let masks: Vec<String> = Kind::ALL.iter().map(|k| k.bit().to_string()).collect();
+    kind_attrs.push(("flag_masks", Attr::from(masks.join(" "))));
     kind_attrs.push(("flag_meanings", Attr::from(names.join(" "))));
     w.add_variable_i32("stable_kinds", &["p2", "p1"], &kind_attrs)?;
     w.write_i32("stable_kinds", &cells(&|r, i| i32::from(r.kinds[i])))?;
