@@ -532,13 +532,13 @@ fn auto_log(v: &[f64]) -> bool {
 /// A positive control spanning more than this factor is drawn on a logarithmic axis.
 const LOG_SPAN: f64 = 30.0;
 
-/// Whether the axis of `var` is logarithmic: its `spacing` attribute when present
-/// (`"log"` or `"linear"`), else [`auto_log`] of its values.
+/// Whether the axis of `var` is logarithmic: when its `spacing` attribute says `"log"`, else
+/// (linear steps, or no attribute) by [`auto_log`] of its values, so a linearly stepped control
+/// spanning decades is still drawn on a log axis.
 fn axis_log(r: &NcReader, var: &str, values: &[f64]) -> Result<bool, Error> {
     Ok(match r.var_attr_str(var, "spacing")?.as_deref() {
         Some("log") => values.iter().all(|v| !v.is_finite() || *v > 0.0),
-        Some(_) => false,
-        None => auto_log(values),
+        _ => auto_log(values),
     })
 }
 

@@ -196,11 +196,11 @@ fn compute(
     // A fold may jitter within its cluster of sub-band wiggles: about a band of ice edge.
     let slack = 2.0
         * crate::jobs::run::build_model(cfg)?
-        .grid
-        .dx
-        .iter()
-        .copied()
-        .fold(0.0, f64::max);
+            .grid
+            .dx
+            .iter()
+            .copied()
+            .fold(0.0, f64::max);
     let lines = if log {
         // Link folds of neighbouring rows by their distance in ln(control).
         let mut in_q = rows.clone();
