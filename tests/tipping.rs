@@ -119,12 +119,16 @@ const BUDYKO: (f64, f64, f64, f64, f64, f64, f64) = (202.0, 1.9, 3.04, -0.482, 0
 
 /// The Budyko relaxation case at `bands` bands.
 fn budyko_config(bands: usize) -> Loaded {
-    let text = format!(
+    load(&budyko_text(bands), &[])
+}
+
+/// The config text of the Budyko relaxation case at `bands` bands.
+fn budyko_text(bands: usize) -> String {
+    format!(
         "[grid]\nbands = {bands}\n[insolation]\nsolar_constant = 1370\ns2 = -0.482\n\
          [albedo]\nice_free = 0.32\nice = 0.62\nfreeze_temperature_c = -10\n\
          [longwave]\na = 202\nb = 1.9\n[transport]\nkind = \"relaxation\"\nrelaxation_rate = 3.04\n"
-    );
-    load(&text, &[])
+    )
 }
 
 /// Closed-form Q(x_s) of the Budyko case with the mean coalbedo at the edge (theta = 1/2).
@@ -928,4 +932,44 @@ fn a_globe_has_the_hemispheres_folds() {
         assert!((a.0 - b.0).abs() < 1e-6 * a.0, "{h:?} vs {g:?}");
         assert!((a.1 - b.1).abs() < 1e-6, "{h:?} vs {g:?}");
     }
+}
+
+#[test]
+fn a_fold_on_a_retraced_branch_is_listed_once() {
+    // Before, a branch stopped at the point limit was traced again from a seed beyond its end,
+    // the new trace ran back over the fold near S0 = 1303.35, and the fold was listed twice.
+    // 1500 points at 90 bands stop the first trace between the two folds (as 5000 points did
+    // at 360 bands), which the default 5000 points do not.
+    let text = format!(
+        "{}[branches]\ncontrol = \"insolation.solar_constant\"\nfrom = 1000\nto = 2000\nmax_points = 1500\n",
+        budyko_text(90)
+    );
+    let cfg = load(&text, &[]);
+    let spec = cfg.spec.branches.as_ref().unwrap();
+    let fam = Controlled::new(&cfg, "insolation.solar_constant").unwrap();
+    let opts = ContinuationOptions::from_spec(spec, cfg.spec.equilibrium.tolerance_wm2);
+    let set = all_branches(&fam, opts).unwrap();
+    assert!(
+        set.branches.iter().any(|b| b.ends.contains(&LegEnd::PointLimit)),
+        "the case must hit the point limit to test a re-trace"
+    );
+    let folds: Vec<_> = set.branches.iter().flat_map(|b| &b.folds).collect();
+    // Two distinct folds of this case lie 200 W m-2 apart; the same fold found twice agrees
+    // to round-off (it is the discrete curve's extremum), so 1e-3 W m-2 separates the two.
+    for (i, f) in folds.iter().enumerate() {
+        for g in &folds[i + 1..] {
+            assert!(
+                (f.control - g.control).abs() > 1e-3 || f.minimum != g.minimum,
+                "fold at S0 = {} listed twice",
+                f.control
+            );
+        }
+    }
+    // Both folds of the closed form's curve are still there (ice free and ice cap).
+    assert_eq!(
+        folds.len(),
+        2,
+        "{:?}",
+        folds.iter().map(|f| f.control).collect::<Vec<_>>()
+    );
 }

@@ -38,17 +38,24 @@ pub fn main(
     Ok(())
 }
 
-/// One line per branch end where the corrector failed at ever smaller steps: the branch
-/// beyond that control is missing from the file (also shown by `icefold inspect`).
+/// One line per branch end where the corrector failed at ever smaller steps, or where the
+/// point limit stopped the trace: the branch beyond that control is missing from the file, or
+/// traced again from another seed (also shown by `icefold inspect`).
 pub fn stuck_warnings(branches: &[crate::equilibrium::continuation::Branch]) -> Vec<String> {
     use crate::equilibrium::continuation::LegEnd;
     let mut out = Vec::new();
     for (b, br) in branches.iter().enumerate() {
         for (side, end) in ["first", "last"].iter().zip(br.ends) {
-            if let LegEnd::Stuck { control } = end {
-                out.push(format!(
+            match end {
+                LegEnd::Stuck { control } => out.push(format!(
                     "branch {b} ends stuck at its {side} point (control {control}): the corrector failed at ever smaller steps there, so the branch beyond it (and any fold on it) is missing"
-                ));
+                )),
+                LegEnd::PointLimit => out.push(format!(
+                    "branch {b} ends at the point limit at its {side} point (control {}): raise branches.max_points to trace it further",
+                    if side == &"first" { br.points.first() } else { br.points.last() }
+                        .map_or(f64::NAN, |p| p.control)
+                )),
+                _ => {}
             }
         }
     }
@@ -76,6 +83,32 @@ mod tests {
         assert_eq!(w.len(), 1, "{w:?}");
         assert!(
             w[0].contains("branch 1") && w[0].contains("first") && w[0].contains("1750.5"),
+            "{}",
+            w[0]
+        );
+    }
+
+    #[test]
+    fn a_branch_stopped_at_the_point_limit_gives_a_warning() {
+        // Before, a point-limit end was written to the file with no word on the console.
+        use crate::equilibrium::continuation::BranchPoint;
+        let pt = |control| BranchPoint {
+            control,
+            state: vec![],
+            dpds: 0.0,
+            leading: -1.0,
+            method: crate::equilibrium::stability::SpectrumMethod::SymmetricTridiagonal,
+            arclength: 0.0,
+        };
+        let set = [Branch {
+            points: vec![pt(1000.0), pt(1620.25)],
+            folds: vec![],
+            ends: [LegEnd::LeftRange, LegEnd::PointLimit],
+        }];
+        let w = stuck_warnings(&set);
+        assert_eq!(w.len(), 1, "{w:?}");
+        assert!(
+            w[0].contains("branch 0") && w[0].contains("point limit") && w[0].contains("1620.25"),
             "{}",
             w[0]
         );

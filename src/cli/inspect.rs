@@ -348,7 +348,8 @@ fn control_summary(r: &NcReader, kind: &str, s: &mut String) -> Result<(), Error
             }
         );
         let _ = writeln!(s, "branches:   {}", r.dim_len("branches")?);
-        // A branch that ends stuck: its end point is where the corrector gave up.
+        // A branch that ends stuck (its end point is where the corrector gave up) or at the
+        // point limit.
         let counts = r.read_f64("branch_points")?;
         let ends = [r.read_f64("branch_end_first")?, r.read_f64("branch_end_last")?];
         let control = r.read_f64("control")?;
@@ -361,11 +362,16 @@ fn control_summary(r: &NcReader, kind: &str, s: &mut String) -> Result<(), Error
                 } else {
                     (first + c).saturating_sub(1)
                 };
+                let at_control = control.get(at).copied().unwrap_or(f64::NAN);
                 if ends[k].get(b) == Some(&3.0) {
                     let _ = writeln!(
                         s,
-                        "warning:    branch {b} ends stuck at its {side} point (control {:.6} {units}): the corrector failed there, the branch beyond it is missing",
-                        control.get(at).copied().unwrap_or(f64::NAN)
+                        "warning:    branch {b} ends stuck at its {side} point (control {at_control:.6} {units}): the corrector failed there, the branch beyond it is missing",
+                    );
+                } else if ends[k].get(b) == Some(&1.0) {
+                    let _ = writeln!(
+                        s,
+                        "warning:    branch {b} ends at the point limit at its {side} point (control {at_control:.6} {units}): raise branches.max_points to trace it further",
                     );
                 }
             }

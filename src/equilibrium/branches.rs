@@ -8,7 +8,10 @@
 //!
 //! A seed is skipped when it lies on a branch already traced: when Newton at the seed's control,
 //! started from the branch interpolated there, lands on the seed. A branch whose every point
-//! lies on another, longer branch (it can happen when a first trace ended early) is dropped.
+//! lies on another, longer branch (it can happen when a first trace ended early) is dropped, and
+//! a fold already listed on an earlier branch is dropped from a later, partly overlapping one (a
+//! trace that stopped at the point limit, traced again from a seed beyond its end), so each fold
+//! is listed once.
 
 use super::continuation::{Branch, ContinuationError, ContinuationOptions, Tracer};
 use super::control::Controlled;
@@ -318,11 +321,29 @@ fn distinct(tr: &Tracer<'_>, branches: Vec<Branch>) -> Vec<Branch> {
             }
         }
     }
-    branches
+    let mut out: Vec<Branch> = branches
         .into_iter()
         .zip(keep)
         .filter_map(|(b, k)| k.then_some(b))
-        .collect()
+        .collect();
+    drop_repeated_folds(tr, &mut out);
+    out
+}
+
+/// Remove from each branch the folds already listed on an earlier branch (same kind, within
+/// the `distinct` tolerance in the scaled metric). Two kept branches can still overlap in part:
+/// a trace that stopped at the point limit is traced again from a seed beyond its end, and the
+/// new trace runs back over the old one's folds. A fold is the discrete curve's extremum,
+/// found to round-off from either trace, so the tolerance only has to exceed round-off.
+fn drop_repeated_folds(tr: &Tracer<'_>, branches: &mut [Branch]) {
+    for j in 1..branches.len() {
+        let (before, rest) = branches.split_at_mut(j);
+        rest[0].folds.retain(|f| {
+            !before.iter().flat_map(|b| &b.folds).any(|g| {
+                g.minimum == f.minimum && tr.distance(&g.state, g.control, &f.state, f.control) <= 2e-3
+            })
+        });
+    }
 }
 
 fn length(b: &Branch) -> f64 {
