@@ -973,3 +973,18 @@ fn a_fold_on_a_retraced_branch_is_listed_once() {
         folds.iter().map(|f| f.control).collect::<Vec<_>>()
     );
 }
+
+#[test]
+fn the_default_point_limit_grows_with_the_bands() {
+    // At 360 bands the edge-balance branch of the Budyko case needs about 14 points per band,
+    // more than the old fixed 5000: the trace stopped and was traced again.
+    let spec = |bands: usize| {
+        let text = format!(
+            "{}[branches]\ncontrol = \"insolation.solar_constant\"\nfrom = 1000\nto = 2000\n",
+            budyko_text(bands)
+        );
+        load(&text, &[]).spec.branches.unwrap().max_points
+    };
+    assert_eq!(spec(90), 5000);
+    assert_eq!(spec(360), 7200);
+}

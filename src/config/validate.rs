@@ -789,7 +789,9 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
             }
             let step = c.num("branches.step", &mut b.step, 0.02, Range::Above(0.0))?;
             let max_step = c.num("branches.max_step", &mut b.max_step, 0.1, Range::Above(0.0))?;
-            let mp = b.max_points.unwrap_or(5000);
+            // A branch needs about 14 points per band with the step albedo's edge-balance
+            // rule, so the default grows with the band count (5000 up to 250 bands).
+            let mp = b.max_points.unwrap_or((5000).max(20 * bands as i64));
             if !(10..=1_000_000).contains(&mp) {
                 return Err(c.range_err(
                     "branches.max_points",
