@@ -4,7 +4,9 @@
 use icefold::config::{load_str, Loaded};
 use icefold::equilibrium::regimes::Kind;
 use icefold::jobs::branches::run_branches;
-use icefold::jobs::regimes::{regimes_to_file, run_regimes, RegimesOptions};
+use icefold::jobs::regimes::{regimes_spec, regimes_to_file, run_regimes, RegimesOptions};
+use icefold::jobs::run::{build_model, provenance};
+use icefold::output::regimes_file::write_regimes;
 use icefold::output::NcReader;
 use std::path::Path;
 
@@ -195,6 +197,7 @@ fn the_file_holds_the_map_and_the_fold_lines() {
         "{text}"
     );
     assert_eq!(text.matches("  line ").count(), map.lines.len(), "{text}");
+    assert!(text.contains("stuck ends: none"), "{text}");
     std::fs::remove_dir_all(&dir).unwrap();
 }
 
@@ -274,4 +277,50 @@ fn a_finer_map_has_the_coarse_maps_fold_lines_sampled_finely() {
             .count();
         assert_eq!(matches[0].len(), rows);
     }
+}
+
+#[test]
+fn rows_with_stuck_branch_ends_are_recorded_and_inspected() {
+    // Before, a row whose branch ended stuck gave only a console warning: the file and
+    // `icefold inspect` showed an incomplete row as complete. No cheap config gets stuck, so
+    // the count of a real map's row is set here and the writer and inspect path are checked.
+    let cfg = classic();
+    let mut map = run_regimes(&cfg, serial()).unwrap();
+    assert!(map.rows.iter().all(|r| r.stuck_ends == 0));
+    map.rows[1].stuck_ends = 2;
+    let dir = std::env::temp_dir().join(format!("icefold-regimes-stuck-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let path = dir.join("map.nc");
+    write_regimes(
+        &path,
+        &build_model(&cfg).unwrap(),
+        &provenance(&cfg, "test"),
+        regimes_spec(&cfg).unwrap(),
+        &map,
+    )
+    .unwrap();
+    let r = NcReader::open(&path).unwrap();
+    let want: Vec<f64> = map.rows.iter().map(|r| r.stuck_ends as f64).collect();
+    assert_eq!(r.read_f64("stuck_ends").unwrap(), want);
+    assert_eq!(
+        r.var_attr_str("stuck_ends", "units").unwrap().as_deref(),
+        Some("1")
+    );
+    assert!(r
+        .var_attr_str("stuck_ends", "long_name")
+        .unwrap()
+        .unwrap()
+        .contains("corrector failed"));
+    let o = std::process::Command::new(env!("CARGO_BIN_EXE_icefold"))
+        .arg("inspect")
+        .arg(&path)
+        .output()
+        .unwrap();
+    let text = String::from_utf8(o.stdout).unwrap();
+    let row = format!("p2 = {} (2 ends)", map.rows[1].row_value);
+    assert!(
+        text.contains("branches end stuck") && text.contains(&row),
+        "{text}"
+    );
+    std::fs::remove_dir_all(&dir).unwrap();
 }

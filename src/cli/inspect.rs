@@ -473,6 +473,26 @@ fn regimes_summary(r: &NcReader, s: &mut String) -> Result<(), Error> {
     if let Some(d) = r.attr_str("kind_definitions")? {
         let _ = writeln!(s, "            ({d})");
     }
+    // Rows with a branch that ends stuck: their map is incomplete beyond that control.
+    if r.var_names()?.iter().any(|v| v == "stuck_ends") {
+        let stuck = r.read_f64("stuck_ends")?;
+        let p2 = r.read_f64("p2")?;
+        let rows: Vec<String> = stuck
+            .iter()
+            .zip(&p2)
+            .filter(|(n, _)| **n > 0.0)
+            .map(|(n, v)| format!("{v} ({n} ends)"))
+            .collect();
+        if rows.is_empty() {
+            let _ = writeln!(s, "stuck ends: none");
+        } else {
+            let _ = writeln!(
+                s,
+                "warning:    branches end stuck in the rows at p2 = {}: the corrector failed there, so those rows' equilibria and folds beyond the stuck ends are missing",
+                rows.join(", ")
+            );
+        }
+    }
     let line = r.read_f64("fold_line")?;
     let p1 = r.read_f64("fold_p1")?;
     let p2 = r.read_f64("fold_p2")?;

@@ -128,6 +128,9 @@ pub struct RegimeRow {
     pub folds: Vec<RowFold>,
     /// Number of branches traced.
     pub branches: usize,
+    /// Branch ends where the corrector failed at ever smaller steps ("stuck"): the row's
+    /// equilibria and folds beyond them are missing (0 for a complete row).
+    pub stuck_ends: usize,
     /// Linearisations used by the continuation.
     pub linearisations: u64,
 }
@@ -220,10 +223,13 @@ pub fn regime_row(
     row_value: f64,
 ) -> Result<RegimeRow, ContinuationError> {
     let set = all_branches(fam, opts)?;
-    // A branch that ends stuck leaves this row's map incomplete beyond that control: say so.
+    // A branch that ends stuck leaves this row's map incomplete beyond that control: say so
+    // (and the row records how many ends did).
+    let mut stuck_ends = 0;
     for b in &set.branches {
         for e in b.ends {
             if let super::continuation::LegEnd::Stuck { control } = e {
+                stuck_ends += 1;
                 eprintln!(
                     "icefold: warning: in the map row at {row_value}, a branch continued in {} ends stuck at {control} (the corrector failed at ever smaller steps); its equilibria and folds beyond are missing from the map",
                     fam.key
@@ -278,6 +284,7 @@ pub fn regime_row(
         kinds,
         folds,
         branches: set.branches.len(),
+        stuck_ends,
         linearisations: set.linearisations,
     })
 }
@@ -428,6 +435,7 @@ mod tests {
                 })
                 .collect(),
             branches: 0,
+            stuck_ends: 0,
             linearisations: 0,
         }
     }

@@ -317,6 +317,7 @@ fn save_rows(
         &u(&|x| x.kinds.iter().map(|&v| u64::from(v)).collect()),
     );
     r.put_u64("rows.branches", &u(&|x| vec![x.branches as u64]));
+    r.put_u64("rows.stuck_ends", &u(&|x| vec![x.stuck_ends as u64]));
     r.put_u64("rows.linearisations", &u(&|x| vec![x.linearisations]));
     r.put_u64("rows.folds", &u(&|x| vec![x.folds.len() as u64]));
     r.put_f64(
@@ -359,8 +360,9 @@ fn restore_rows(
         r.u64s("rows.equilibria")?,
         r.u64s("rows.kinds")?,
     );
-    let (branches, lins, nfolds) = (
+    let (branches, stuck, lins, nfolds) = (
         r.u64s("rows.branches")?,
+        r.u64s("rows.stuck_ends")?,
         r.u64s("rows.linearisations")?,
         r.u64s("rows.folds")?,
     );
@@ -370,7 +372,7 @@ fn restore_rows(
         r.u64s("folds.corner")?,
     );
     let total_folds: u64 = nfolds.iter().sum();
-    if [value.len(), branches.len(), lins.len(), nfolds.len()] != [k; 4]
+    if [value.len(), branches.len(), stuck.len(), lins.len(), nfolds.len()] != [k; 5]
         || [stable.len(), equilibria.len(), kinds.len()] != [k * nc; 3]
         || [fc.len(), fe.len(), fk.len()] != [total_folds as usize; 3]
     {
@@ -398,6 +400,7 @@ fn restore_rows(
                 })
                 .collect(),
             branches: branches[j] as usize,
+            stuck_ends: stuck[j] as usize,
             linearisations: lins[j],
         });
         f0 += nf;

@@ -117,7 +117,7 @@ pub fn write_regimes_with(
         w.add_variable_i32(&name, &["p2", "p1"], &a)?;
         w.write_i32(&name, &cells(&|r, i| i32::from(r.kinds[i] & kind.bit() != 0)))?;
     }
-    let row_i32: [(&str, &str, Vec<i32>); 2] = [
+    let row_i32: [(&str, &str, Vec<i32>); 3] = [
         (
             "row_branches",
             "number of branches traced in the row",
@@ -127,6 +127,11 @@ pub fn write_regimes_with(
             "row_folds",
             "number of folds found in the row",
             map.rows.iter().map(|r| r.folds.len() as i32).collect(),
+        ),
+        (
+            "stuck_ends",
+            "number of branch ends in the row where the corrector failed at ever smaller steps: the row's equilibria and folds beyond them are missing",
+            map.rows.iter().map(|r| r.stuck_ends as i32).collect(),
         ),
     ];
     for (name, long, values) in &row_i32 {
