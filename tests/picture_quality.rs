@@ -477,3 +477,93 @@ fn legends_stay_inside_their_panels_when_room_can_be_made() {
         );
     }
 }
+
+/// Distance in pixels from `p` to the segment `a`-`b`.
+fn to_segment(p: (f64, f64), a: (f64, f64), b: (f64, f64)) -> f64 {
+    let (dx, dy) = (b.0 - a.0, b.1 - a.1);
+    let len2 = dx * dx + dy * dy;
+    let t = if len2 > 0.0 {
+        (((p.0 - a.0) * dx + (p.1 - a.1) * dy) / len2).clamp(0.0, 1.0)
+    } else {
+        0.0
+    };
+    (p.0 - a.0 - t * dx).hypot(p.1 - a.1 - t * dy)
+}
+
+/// Whether `p` lies inside the polygon (even-odd rule).
+fn inside(p: (f64, f64), poly: &[(f64, f64)]) -> bool {
+    let mut inn = false;
+    for k in 0..poly.len() {
+        let (a, b) = (poly[k], poly[(k + 1) % poly.len()]);
+        if (a.1 > p.1) != (b.1 > p.1) && p.0 < a.0 + (p.1 - a.1) / (b.1 - a.1) * (b.0 - a.0) {
+            inn = !inn;
+        }
+    }
+    inn
+}
+
+/// How far a line may run inside the area of a class, in pixels: half a pixel, the rounding
+/// of the drawn colour edge to the pixel grid (the geometry itself puts the edge on the line).
+const FOLD_LINE_TOLERANCE_PX: f64 = 0.5;
+
+/// Points of the drawn lines (two points or more: fold lines) that lie inside the area of a
+/// class by more than the tolerance: a class coloured on the far side of a line that bounds it.
+fn lines_through_classes(l: &LayoutReport) -> Vec<String> {
+    let mut bad = Vec::new();
+    for plot in &l.plots {
+        for line in plot.lines.iter().filter(|l| l.len() > 1) {
+            for p in samples(line, 0.5) {
+                for (class, poly) in &l.regions {
+                    if !inside(p, poly) {
+                        continue;
+                    }
+                    let d = (0..poly.len())
+                        .map(|k| to_segment(p, poly[k], poly[(k + 1) % poly.len()]))
+                        .fold(f64::INFINITY, f64::min);
+                    if d > FOLD_LINE_TOLERANCE_PX {
+                        bad.push(format!(
+                            "({:.1}, {:.1}) is {d:.1} px inside class {class}",
+                            p.0, p.1
+                        ));
+                    }
+                }
+            }
+        }
+    }
+    bad
+}
+
+#[test]
+fn regime_colours_change_at_the_fold_lines() {
+    for name in ["classic-regimes-map", "fine-regimes-map"] {
+        let l = &find(name).layout;
+        assert!(!l.regions.is_empty(), "{name}: no class areas reported");
+        let bad = lines_through_classes(l);
+        assert!(
+            bad.is_empty(),
+            "{name}: fold lines run through class areas at {} points, e.g.\n{}",
+            bad.len(),
+            bad[..bad.len().min(10)].join("\n")
+        );
+    }
+}
+
+#[test]
+fn fold_line_check_notices_a_cell_across_a_line() {
+    // A cell drawn as a square with a slanted line through it, as the map drew before.
+    let mut l = LayoutReport::default();
+    l.plots.push(icefold::plot::PlotData {
+        area: Rect::at(0.0, 0.0, 100.0, 100.0),
+        lines: vec![vec![(40.0, 0.0), (60.0, 20.0)]],
+    });
+    l.regions
+        .push((0, vec![(30.0, 0.0), (50.0, 0.0), (50.0, 20.0), (30.0, 20.0)]));
+    assert!(!lines_through_classes(&l).is_empty());
+    // Cut along the line, the same cell passes.
+    l.regions[0].1 = vec![(30.0, 0.0), (40.0, 0.0), (60.0, 20.0), (30.0, 20.0)];
+    assert!(
+        lines_through_classes(&l).is_empty(),
+        "{:?}",
+        lines_through_classes(&l)
+    );
+}

@@ -204,6 +204,9 @@ pub struct LayoutReport {
     pub plots: Vec<PlotData>,
     /// Classes of a categorical map: name and colour (sRGB).
     pub classes: Vec<(String, (u8, u8, u8))>,
+    /// Areas of a categorical map's classes: class index (as in `classes`) and polygon in
+    /// pixels.
+    pub regions: Vec<(usize, Vec<(f64, f64)>)>,
 }
 
 impl Default for Rect {
@@ -486,6 +489,11 @@ impl Canvas<'_> {
     /// Records a plot area and the data drawn in it.
     pub fn note_plot(&self, data: PlotData) {
         self.report.borrow_mut().plots.push(data);
+    }
+
+    /// Records the area of one class of a categorical map (a polygon in pixels).
+    pub fn note_region(&self, class: usize, polygon: Vec<(f64, f64)>) {
+        self.report.borrow_mut().regions.push((class, polygon));
     }
 
     /// Records the classes of a categorical map.
