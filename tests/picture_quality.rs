@@ -567,3 +567,36 @@ fn fold_line_check_notices_a_cell_across_a_line() {
         lines_through_classes(&l)
     );
 }
+
+/// Whether segments a-b and p-q cross (proper intersection: touching ends do not count).
+fn segments_cross(a: (f64, f64), b: (f64, f64), p: (f64, f64), q: (f64, f64)) -> bool {
+    let side =
+        |o: (f64, f64), u: (f64, f64), v: (f64, f64)| (u.0 - o.0) * (v.1 - o.1) - (u.1 - o.1) * (v.0 - o.0);
+    side(p, q, a) * side(p, q, b) < 0.0 && side(a, b, p) * side(a, b, q) < 0.0
+}
+
+/// Leaders are reported as (marked point, end at the label box).
+#[test]
+fn label_leaders_do_not_cross() {
+    let mut bad = Vec::new();
+    let mut leaders = 0;
+    for (name, p) in pictures() {
+        let l = &p.layout.leaders;
+        leaders += l.len();
+        for (i, a) in l.iter().enumerate() {
+            for b in &l[i + 1..] {
+                if segments_cross(a.0, a.1, b.0, b.1) {
+                    bad.push(format!("{name}: {a:?} crosses {b:?}"));
+                }
+                // Interleaved: a label nearer the other point than its own reads as the other
+                // point's label, and the two leaders run side by side across each other's lane.
+                let d = |p: (f64, f64), q: (f64, f64)| (p.0 - q.0).hypot(p.1 - q.1);
+                if a.0 != b.0 && (d(a.1, b.0) < d(a.1, a.0) || d(b.1, a.0) < d(b.1, b.0)) {
+                    bad.push(format!("{name}: {a:?} and {b:?} interleave"));
+                }
+            }
+        }
+    }
+    assert!(leaders > 0, "no leader lines reported");
+    assert!(bad.is_empty(), "crossing leaders:\n{}", bad.join("\n"));
+}

@@ -207,6 +207,9 @@ pub struct LayoutReport {
     /// Areas of a categorical map's classes: class index (as in `classes`) and polygon in
     /// pixels.
     pub regions: Vec<(usize, Vec<(f64, f64)>)>,
+    /// Leader lines: (marked point, end at its label) in pixels (the line drawn starts at the
+    /// ring around the point).
+    pub leaders: Vec<((f64, f64), (f64, f64))>,
 }
 
 impl Default for Rect {
@@ -494,6 +497,11 @@ impl Canvas<'_> {
     /// Records the area of one class of a categorical map (a polygon in pixels).
     pub fn note_region(&self, class: usize, polygon: Vec<(f64, f64)>) {
         self.report.borrow_mut().regions.push((class, polygon));
+    }
+
+    /// Records a leader line from a marked point to its label.
+    pub fn note_leader(&self, point: (f64, f64), end: (f64, f64)) {
+        self.report.borrow_mut().leaders.push((point, end));
     }
 
     /// Records the classes of a categorical map.
