@@ -600,3 +600,18 @@ fn label_leaders_do_not_cross() {
     assert!(leaders > 0, "no leader lines reported");
     assert!(bad.is_empty(), "crossing leaders:\n{}", bad.join("\n"));
 }
+
+#[test]
+fn log_axis_labels_take_one_form() {
+    for name in ["co2-branches-hysteresis", "co2-sweep-hysteresis"] {
+        let t = texts(find(name));
+        let powers = t.iter().any(|s| s.contains("10⁵") || s.contains("10⁶"));
+        // A plain number of five digits or more beside powers of ten mixes two forms.
+        let plain_big: Vec<&&str> = t
+            .iter()
+            .filter(|s| s.parse::<f64>().is_ok_and(|v| v >= 1e4))
+            .collect();
+        assert!(powers, "{name}: {t:?}");
+        assert!(plain_big.is_empty(), "{name}: {plain_big:?} beside powers of ten");
+    }
+}
