@@ -477,3 +477,141 @@ fn legends_stay_inside_their_panels_when_room_can_be_made() {
         );
     }
 }
+
+/// Distance in pixels from `p` to the segment `a`-`b`.
+fn to_segment(p: (f64, f64), a: (f64, f64), b: (f64, f64)) -> f64 {
+    let (dx, dy) = (b.0 - a.0, b.1 - a.1);
+    let len2 = dx * dx + dy * dy;
+    let t = if len2 > 0.0 {
+        (((p.0 - a.0) * dx + (p.1 - a.1) * dy) / len2).clamp(0.0, 1.0)
+    } else {
+        0.0
+    };
+    (p.0 - a.0 - t * dx).hypot(p.1 - a.1 - t * dy)
+}
+
+/// Whether `p` lies inside the polygon (even-odd rule).
+fn inside(p: (f64, f64), poly: &[(f64, f64)]) -> bool {
+    let mut inn = false;
+    for k in 0..poly.len() {
+        let (a, b) = (poly[k], poly[(k + 1) % poly.len()]);
+        if (a.1 > p.1) != (b.1 > p.1) && p.0 < a.0 + (p.1 - a.1) / (b.1 - a.1) * (b.0 - a.0) {
+            inn = !inn;
+        }
+    }
+    inn
+}
+
+/// How far a line may run inside the area of a class, in pixels: half a pixel, the rounding
+/// of the drawn colour edge to the pixel grid (the geometry itself puts the edge on the line).
+const FOLD_LINE_TOLERANCE_PX: f64 = 0.5;
+
+/// Points of the drawn lines (two points or more: fold lines) that lie inside the area of a
+/// class by more than the tolerance: a class coloured on the far side of a line that bounds it.
+fn lines_through_classes(l: &LayoutReport) -> Vec<String> {
+    let mut bad = Vec::new();
+    for plot in &l.plots {
+        for line in plot.lines.iter().filter(|l| l.len() > 1) {
+            for p in samples(line, 0.5) {
+                for (class, poly) in &l.regions {
+                    if !inside(p, poly) {
+                        continue;
+                    }
+                    let d = (0..poly.len())
+                        .map(|k| to_segment(p, poly[k], poly[(k + 1) % poly.len()]))
+                        .fold(f64::INFINITY, f64::min);
+                    if d > FOLD_LINE_TOLERANCE_PX {
+                        bad.push(format!(
+                            "({:.1}, {:.1}) is {d:.1} px inside class {class}",
+                            p.0, p.1
+                        ));
+                    }
+                }
+            }
+        }
+    }
+    bad
+}
+
+#[test]
+fn regime_colours_change_at_the_fold_lines() {
+    for name in ["classic-regimes-map", "fine-regimes-map"] {
+        let l = &find(name).layout;
+        assert!(!l.regions.is_empty(), "{name}: no class areas reported");
+        let bad = lines_through_classes(l);
+        assert!(
+            bad.is_empty(),
+            "{name}: fold lines run through class areas at {} points, e.g.\n{}",
+            bad.len(),
+            bad[..bad.len().min(10)].join("\n")
+        );
+    }
+}
+
+#[test]
+fn fold_line_check_notices_a_cell_across_a_line() {
+    // A cell drawn as a square with a slanted line through it, as the map drew before.
+    let mut l = LayoutReport::default();
+    l.plots.push(icefold::plot::PlotData {
+        area: Rect::at(0.0, 0.0, 100.0, 100.0),
+        lines: vec![vec![(40.0, 0.0), (60.0, 20.0)]],
+    });
+    l.regions
+        .push((0, vec![(30.0, 0.0), (50.0, 0.0), (50.0, 20.0), (30.0, 20.0)]));
+    assert!(!lines_through_classes(&l).is_empty());
+    // Cut along the line, the same cell passes.
+    l.regions[0].1 = vec![(30.0, 0.0), (40.0, 0.0), (60.0, 20.0), (30.0, 20.0)];
+    assert!(
+        lines_through_classes(&l).is_empty(),
+        "{:?}",
+        lines_through_classes(&l)
+    );
+}
+
+/// Whether segments a-b and p-q cross (proper intersection: touching ends do not count).
+fn segments_cross(a: (f64, f64), b: (f64, f64), p: (f64, f64), q: (f64, f64)) -> bool {
+    let side =
+        |o: (f64, f64), u: (f64, f64), v: (f64, f64)| (u.0 - o.0) * (v.1 - o.1) - (u.1 - o.1) * (v.0 - o.0);
+    side(p, q, a) * side(p, q, b) < 0.0 && side(a, b, p) * side(a, b, q) < 0.0
+}
+
+/// Leaders are reported as (marked point, end at the label box).
+#[test]
+fn label_leaders_do_not_cross() {
+    let mut bad = Vec::new();
+    let mut leaders = 0;
+    for (name, p) in pictures() {
+        let l = &p.layout.leaders;
+        leaders += l.len();
+        for (i, a) in l.iter().enumerate() {
+            for b in &l[i + 1..] {
+                if segments_cross(a.0, a.1, b.0, b.1) {
+                    bad.push(format!("{name}: {a:?} crosses {b:?}"));
+                }
+                // Interleaved: a label nearer the other point than its own reads as the other
+                // point's label, and the two leaders run side by side across each other's lane.
+                let d = |p: (f64, f64), q: (f64, f64)| (p.0 - q.0).hypot(p.1 - q.1);
+                if a.0 != b.0 && (d(a.1, b.0) < d(a.1, a.0) || d(b.1, a.0) < d(b.1, b.0)) {
+                    bad.push(format!("{name}: {a:?} and {b:?} interleave"));
+                }
+            }
+        }
+    }
+    assert!(leaders > 0, "no leader lines reported");
+    assert!(bad.is_empty(), "crossing leaders:\n{}", bad.join("\n"));
+}
+
+#[test]
+fn log_axis_labels_take_one_form() {
+    for name in ["co2-branches-hysteresis", "co2-sweep-hysteresis"] {
+        let t = texts(find(name));
+        let powers = t.iter().any(|s| s.contains("10⁵") || s.contains("10⁶"));
+        // A plain number of five digits or more beside powers of ten mixes two forms.
+        let plain_big: Vec<&&str> = t
+            .iter()
+            .filter(|s| s.parse::<f64>().is_ok_and(|v| v >= 1e4))
+            .collect();
+        assert!(powers, "{name}: {t:?}");
+        assert!(plain_big.is_empty(), "{name}: {plain_big:?} beside powers of ten");
+    }
+}

@@ -842,6 +842,12 @@ fn regimes_map(r: &NcReader, title: &str) -> Result<HeatMap, Error> {
         }
         overlay.push(s);
     }
+    // The classes change at the fold lines: the map's colours follow them across each row.
+    let class_lines: Vec<Vec<(f64, f64)>> = overlay
+        .iter()
+        .filter(|s| s.x.len() > 1)
+        .map(|s| s.x.iter().copied().zip(s.y.iter().copied()).collect())
+        .collect();
     let key1 = r.attr_str("control_key")?.unwrap_or_default();
     let key2 = r.attr_str("row_control_key")?.unwrap_or_default();
     let (x_log, y_log) = (axis_log(r, "p1", &p1)?, axis_log(r, "p2", &p2)?);
@@ -864,6 +870,7 @@ fn regimes_map(r: &NcReader, title: &str) -> Result<HeatMap, Error> {
         overlay,
         categorical: Some(categorical),
         class_colours,
+        class_lines,
         note,
         x_log,
         y_log,

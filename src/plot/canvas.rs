@@ -204,6 +204,12 @@ pub struct LayoutReport {
     pub plots: Vec<PlotData>,
     /// Classes of a categorical map: name and colour (sRGB).
     pub classes: Vec<(String, (u8, u8, u8))>,
+    /// Areas of a categorical map's classes: class index (as in `classes`) and polygon in
+    /// pixels.
+    pub regions: Vec<(usize, Vec<(f64, f64)>)>,
+    /// Leader lines: (marked point, end at its label) in pixels (the line drawn starts at the
+    /// ring around the point).
+    pub leaders: Vec<((f64, f64), (f64, f64))>,
 }
 
 impl Default for Rect {
@@ -488,6 +494,16 @@ impl Canvas<'_> {
         self.report.borrow_mut().plots.push(data);
     }
 
+    /// Records the area of one class of a categorical map (a polygon in pixels).
+    pub fn note_region(&self, class: usize, polygon: Vec<(f64, f64)>) {
+        self.report.borrow_mut().regions.push((class, polygon));
+    }
+
+    /// Records a leader line from a marked point to its label.
+    pub fn note_leader(&self, point: (f64, f64), end: (f64, f64)) {
+        self.report.borrow_mut().leaders.push((point, end));
+    }
+
     /// Records the classes of a categorical map.
     pub fn note_class(&self, name: &str, c: RGBColor) {
         self.report
@@ -719,14 +735,24 @@ pub fn x_ticks(lo: f64, hi: f64, len_px: f64, sizes: &Sizes) -> (Vec<f64>, Vec<S
     }
 }
 
-/// Label of the value `10^e` on a logarithmic axis: plain for 0.001 ..= 10000 (e.g. "0.01",
-/// "300"), otherwise a mantissa and a power of ten with superscript digits (e.g. "10⁶",
-/// "2×10⁵").
-pub fn log_label(e: f64) -> String {
+/// Labels of the ticks `t` (log10 units) of one logarithmic axis, in one form: plain numbers
+/// throughout when every tick lies in 0.001 ..< 100000 (e.g. "0.01", "300", "30000");
+/// otherwise plain only for 0.01 ..< 10000 and a mantissa with a power of ten from 10⁴ up and
+/// from 10⁻³ down (e.g. "3000", "10⁴", "3×10⁴", "10⁶"), never "10000" beside "10⁵".
+pub fn log_labels(t: &[f64]) -> Vec<String> {
+    let k = |e: f64| (e + 1e-9).floor();
+    let all_plain = t.iter().all(|&e| (-3.0..=4.0).contains(&k(e)));
+    let plain = if all_plain { -3.0..=4.0 } else { -2.0..=3.0 };
+    t.iter().map(|&e| log_label(e, plain.contains(&k(e)))).collect()
+}
+
+/// Label of the value `10^e`: plain (e.g. "0.01", "300") or a mantissa and a power of ten
+/// with superscript digits (e.g. "10⁶", "2×10⁵").
+fn log_label(e: f64, plain: bool) -> String {
     let v = 10f64.powf(e);
-    let k = e.floor();
+    let k = (e + 1e-9).floor();
     let mant = (v / 10f64.powf(k)).round();
-    if (-3.0..=4.0).contains(&k) {
+    if plain {
         let decimals = if k < 0.0 { (-k) as usize } else { 0 };
         return format!("{:.*}", decimals, mant * 10f64.powf(k));
     }
@@ -772,7 +798,7 @@ pub fn log_ticks(lo: f64, hi: f64, len_px: f64, sizes: &Sizes) -> (Vec<f64>, Vec
                 }
             }
         }
-        let l: Vec<String> = t.iter().map(|&e| log_label(e)).collect();
+        let l = log_labels(&t);
         if t.len() >= 3 && fits(&t, &l) {
             return (t, l);
         }
@@ -786,7 +812,7 @@ pub fn log_ticks(lo: f64, hi: f64, len_px: f64, sizes: &Sizes) -> (Vec<f64>, Vec
                 .filter(|k| k.rem_euclid(every) == 0)
                 .map(|k| k as f64)
                 .collect();
-            let l: Vec<String> = t.iter().map(|&e| log_label(e)).collect();
+            let l = log_labels(&t);
             if t.len() >= 2 && fits(&t, &l) {
                 return (t, l);
             }
@@ -794,7 +820,7 @@ pub fn log_ticks(lo: f64, hi: f64, len_px: f64, sizes: &Sizes) -> (Vec<f64>, Vec
     }
     best.unwrap_or_else(|| {
         let t = vec![lo, hi];
-        let l = t.iter().map(|&e| log_label(e)).collect();
+        let l = log_labels(&t);
         (t, l)
     })
 }

@@ -503,6 +503,14 @@ fn place_labels(p: &Panel, map: &Mapping, occ: &mut Occupancy, sizes: &Sizes) ->
     let ring = 1.7 * sizes.marker;
     let inner = map.area.inflate(-0.5 * sizes.gap);
     let mut spots = Vec::new();
+    // Every marked point in pixels: a label nearer another marked point than its own reads as
+    // that point's label (and two such leaders interleave).
+    let points: Vec<(f64, f64)> = p
+        .markers
+        .iter()
+        .filter(|m| m.x.is_finite() && m.y.is_finite())
+        .map(|m| map.px(m.x, m.y))
+        .collect();
     for m in &p.markers {
         if !(m.x.is_finite() && m.y.is_finite()) {
             continue;
@@ -544,20 +552,26 @@ fn place_labels(p: &Panel, map: &Mapping, occ: &mut Occupancy, sizes: &Sizes) ->
                 // Never over another label, nor with a leader crossing another label's
                 // leader or box.
                 let lead = leader.then(|| leader_line(c, &r, ring));
-                let clash = spots.iter().any(|s: &LabelSpot| {
-                    s.text_box.inflate(0.3 * sizes.gap).overlaps(&r)
-                        || lead.is_some_and(|(a, b)| {
-                            segment_hits_rect(a, b, &s.text_box)
-                                || s.leader && {
-                                    let (p, q) = leader_line(s.point, &s.text_box, ring);
-                                    segments_cross(a, b, p, q)
-                                }
-                        })
-                        || s.leader && {
-                            let (p, q) = leader_line(s.point, &s.text_box, ring);
-                            segment_hits_rect(p, q, &r)
-                        }
-                });
+                let dist = |a: (f64, f64), b: (f64, f64)| (a.0 - b.0).hypot(a.1 - b.1);
+                // The label's nearest point (where a leader would end) must be nearer its own
+                // point than any other, with or without a leader.
+                let t = (c.0.clamp(r.x0, r.x1), c.1.clamp(r.y0, r.y1));
+                let misleading = points.iter().any(|&q| q != c && dist(t, q) < dist(t, c));
+                let clash = misleading
+                    || spots.iter().any(|s: &LabelSpot| {
+                        s.text_box.inflate(0.3 * sizes.gap).overlaps(&r)
+                            || lead.is_some_and(|(a, b)| {
+                                segment_hits_rect(a, b, &s.text_box)
+                                    || s.leader && {
+                                        let (p, q) = leader_line(s.point, &s.text_box, ring);
+                                        segments_cross(a, b, p, q)
+                                    }
+                            })
+                            || s.leader && {
+                                let (p, q) = leader_line(s.point, &s.text_box, ring);
+                                segment_hits_rect(p, q, &r)
+                            }
+                    });
                 if clash {
                     continue;
                 }
@@ -997,6 +1011,7 @@ fn draw_panel(
         if spot.leader {
             let (start, target) = leader_line(spot.point, &b, ring);
             c.line(&[start, target], BLACK.to_rgba(), sizes.frame)?;
+            c.note_leader(spot.point, target);
         }
         c.fill_rect(b, WHITE.mix(0.85))?;
         c.text(

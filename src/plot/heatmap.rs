@@ -9,6 +9,8 @@
 //! the value of the cell it falls in, so every cell keeps its true extent. NaN cells are
 //! transparent. The continuous colour scale is viridis (perceptually uniform, lightness rising
 //! monotonically, so it reads in greyscale); classes take evenly spaced viridis colours.
+//! A categorical map with class lines (fold lines) is drawn one PNG pixel per screen pixel,
+//! its colours changing at the lines themselves (see `class_regions`).
 
 use plotters::style::text_anchor::{HPos, VPos};
 use plotters::style::{Color, RGBColor};
@@ -18,6 +20,7 @@ use super::canvas::{
     Mapping, Occupancy, Pieces, PointShape, Rect, Swatch,
 };
 use super::chart::{Series, Stroke};
+use super::class_regions;
 use super::contour::contour_lines;
 use super::style::{self, em, Sizes, BLACK, WHITE};
 use super::PlotError;
@@ -68,6 +71,10 @@ pub struct HeatMap {
     /// Colours of the classes of a categorical map, one per class; `None` takes evenly
     /// spaced viridis colours.
     pub class_colours: Option<Vec<RGBColor>>,
+    /// Lines (data units) along which the class of a categorical map changes, e.g. fold
+    /// lines. Where one crosses a row's centre between two cells of different classes, the
+    /// colours change at the line across the row instead of at the cell edge.
+    pub class_lines: Vec<Vec<(f64, f64)>>,
     /// A note printed under the class list (e.g. what a class boundary means).
     pub note: Option<String>,
     /// Picture width in pixels (64 ..= 10000).
@@ -272,6 +279,23 @@ fn field_png(m: &HeatMap, scale: &Scale) -> Result<Vec<u8>, PlotError> {
     encode_rgba_png(cols.len() as u32, rows.len() as u32, &px)
 }
 
+/// Classes cut along class lines, one PNG pixel per screen pixel of the plot area.
+fn runs_png(runs: &[class_regions::RowRuns], map: &Mapping, scale: &Scale) -> Result<Vec<u8>, PlotError> {
+    let (w, h) = (map.area.w().round().max(1.0), map.area.h().round().max(1.0));
+    let mut px = Vec::with_capacity((w * h) as usize);
+    let mut scratch = Vec::new();
+    for r in 0..h as usize {
+        let y = map.y.1 - (r as f64 + 0.5) / h * (map.y.1 - map.y.0);
+        let row = runs.iter().find(|q| y >= q.band.0 && y <= q.band.1);
+        for c in 0..w as usize {
+            let x = map.x.0 + (c as f64 + 0.5) / w * (map.x.1 - map.x.0);
+            let k = row.and_then(|q| q.class_at(x, y, &mut scratch));
+            px.push(k.map(|k| scale.class_colour(k)));
+        }
+    }
+    encode_rgba_png(w as u32, h as u32, &px)
+}
+
 /// The colour bar as a 1-pixel-wide PNG, top = upper limit.
 fn bar_png() -> Result<Vec<u8>, PlotError> {
     const N: u32 = 256;
@@ -464,12 +488,18 @@ fn to_log(m: &HeatMap) -> Result<HeatMap, PlotError> {
         for s in &mut out.overlay {
             s.x.iter_mut().for_each(|v| *v = l(*v));
         }
+        for line in &mut out.class_lines {
+            line.iter_mut().for_each(|p| p.0 = l(p.0));
+        }
     }
     if m.y_log {
         out.y = m.y.iter().map(|&v| l(v)).collect();
         out.y_edges = Some(ye.iter().map(|&v| l(v)).collect());
         for s in &mut out.overlay {
             s.y.iter_mut().for_each(|v| *v = l(*v));
+        }
+        for line in &mut out.class_lines {
+            line.iter_mut().for_each(|p| p.1 = l(p.1));
         }
     }
     Ok(out)
@@ -502,9 +532,26 @@ pub fn heatmap_layout(m: &HeatMap) -> Result<(String, canvas::LayoutReport), Plo
     let (xe, ye) = cell_edges(m);
     let smooth = m.smooth
         && ((xe.len() - 1) as f64 > map.area.w() / 3.0 || (ye.len() - 1) as f64 > map.area.h() / 3.0);
+    // Classes as runs per row, cut at the class lines (reported as polygons).
+    let runs = match &scale {
+        Scale::Classes(cl, _) => {
+            let class: Vec<Option<usize>> = m.z.iter().map(|&v| class_index(cl, v)).collect();
+            Some(class_regions::row_runs(
+                &class,
+                (&m.x, &m.y),
+                (&xe, &ye),
+                &m.class_lines,
+            ))
+        }
+        Scale::Continuous { .. } => None,
+    };
+    let png = match &runs {
+        Some(runs) if !m.class_lines.is_empty() => runs_png(runs, map, &scale)?,
+        _ => field_png(m, &scale)?,
+    };
     let mut bitmaps = vec![Bitmap {
         rect: map.area,
-        png: field_png(m, &scale)?,
+        png,
         smooth: smooth && matches!(scale, Scale::Continuous { .. }),
     }];
     if matches!(scale, Scale::Continuous { .. }) {
@@ -588,6 +635,11 @@ pub fn heatmap_layout(m: &HeatMap) -> Result<(String, canvas::LayoutReport), Plo
             data.lines.extend(pieces.iter().cloned());
         }
         c.note_plot(data);
+        for r in runs.iter().flatten() {
+            for (k, poly) in r.polygons() {
+                c.note_region(k, poly.iter().map(|&(x, y)| map.px(x, y)).collect());
+            }
+        }
         // Contours: black with a thin white halo, visible on both ends of viridis.
         for (_, _, pieces) in &contours {
             for l in pieces {

@@ -18,6 +18,7 @@
 
 mod canvas;
 pub mod chart;
+mod class_regions;
 pub mod contour;
 pub mod heatmap;
 pub mod render;
