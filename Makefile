@@ -7,9 +7,11 @@ BIN := target/release/icefold
 
 .PHONY: demo test test-rust test-python deps pyenv build bench bench-compare gallery clippy fmt clean
 
-## Install what is missing (HDF5 C library, pkg-config), build, run the built-in demo.
+## Install what is missing (HDF5 C library, pkg-config), build, run the built-in demo into
+## icefold-demo/ (ignored by git, so a fresh clone stays clean; `make gallery` regenerates the
+## tracked copies in outputs-demo/).
 demo: deps
-	$(CARGO) run --release -- demo --out-dir outputs-demo
+	$(CARGO) run --release -- demo --out-dir icefold-demo
 
 ## Every test: Rust unit and integration tests, then the Python reference checks.
 test: deps pyenv

@@ -24,7 +24,7 @@ pub fn main(
     for w in stuck_warnings(&set.branches) {
         eprintln!("icefold: warning: {w}");
     }
-    eprintln!(
+    info!(
         "icefold: wrote {} ({} branches, {} points); folds at {}",
         path.display(),
         set.branches.len(),

@@ -23,8 +23,8 @@ pub fn main(out_dir: &Path) -> Result<(), Error> {
     let cfg = config::load(&out_dir.join("demo-kessra.toml"), &[])?;
     let file = out_dir.join("kessra-run.nc");
     let _ = std::fs::remove_file(&file);
-    let report = jobs::run::run_to_file(&cfg, &file, &super::command_line(), true)?;
-    eprintln!(
+    let report = jobs::run::run_to_file(&cfg, &file, &super::command_line(), super::show_progress())?;
+    info!(
         "icefold demo: {} model years in {} steps; final global mean {:.1} K, ice edge {:.1} degrees N",
         report.summary.t_end,
         report.summary.stats.steps,
@@ -32,9 +32,9 @@ pub fn main(out_dir: &Path) -> Result<(), Error> {
         report.final_ice_edge_north
     );
     for p in jobs::pictures::pictures(&file, out_dir)? {
-        eprintln!("icefold demo: wrote {}", p.display());
+        info!("icefold demo: wrote {}", p.display());
     }
-    eprintln!(
+    info!(
         "icefold demo: wrote {} (open with xarray: xr.open_dataset(path, engine=\"h5netcdf\"))",
         file.display()
     );

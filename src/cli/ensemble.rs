@@ -34,11 +34,11 @@ pub fn main(
         EnsembleOptions {
             shard,
             threads,
-            progress: true,
+            progress: super::show_progress(),
         },
         &ck,
     )?;
-    eprintln!(
+    info!(
         "icefold: wrote {} (members {} to {}{}, {} failed) in {:.2} s",
         path.display(),
         report.first_member,

@@ -43,7 +43,7 @@ pub fn main(args: &ConfigArgs, out: &OutputArgs, start: Start) -> Result<(), Err
     let path = super::output_path(out, &args.config, "equilibrium")?;
     let r = equilibrium_to_file(&cfg, &path, &super::command_line(), start.into())?;
     let lead = r.spectrum.real.first().copied().unwrap_or(f64::NAN);
-    eprintln!(
+    info!(
         "icefold: wrote {} ({}; residual {:.2e} W m-2); global mean {:.3} K, ice edge {:.2} degrees N{}, leading eigenvalue {:.4} per year ({}, {} spectrum)",
         path.display(),
         r.solved.solver,

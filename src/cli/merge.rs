@@ -22,7 +22,7 @@ pub fn main(inputs: &[PathBuf], output: &PathBuf, overwrite: bool) -> Result<(),
         )));
     }
     let n = crate::jobs::ensemble::merge_files(inputs, output, &super::command_line())?;
-    eprintln!(
+    info!(
         "icefold: merged {} files into {} ({n} members)",
         inputs.len(),
         output.display()

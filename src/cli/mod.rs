@@ -1,11 +1,22 @@
 //! Command-line interface: clap definitions and one module per subcommand (DESIGN section 4).
 //! `main.rs` only calls `cli::main` and exits with its status.
 
+/// An informational line on stderr (`icefold: wrote ...`), left out under `--quiet`. Warnings
+/// and errors use `eprintln!` directly: they are printed whatever `--quiet` says.
+macro_rules! info {
+    ($($arg:tt)*) => {
+        if !$crate::cli::quiet() {
+            eprintln!($($arg)*);
+        }
+    };
+}
+
 mod branches;
 mod check;
 mod demo;
 mod ensemble;
 mod equilibrium;
+mod export;
 mod merge;
 mod regimes;
 mod sweep;
@@ -17,16 +28,54 @@ mod run;
 
 use crate::config::{self, Loaded};
 use crate::error::Error;
-use clap::{Parser, Subcommand};
+use clap::{CommandFactory, Parser, Subcommand};
 use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicBool, Ordering};
+
+/// The exit statuses, shown at the end of `--help` and in the man page (see `crate::error`).
+pub const EXIT_STATUS: &[(&str, &str)] = &[
+    ("0", "success"),
+    ("1", "other failure (e.g. a full disk while writing)"),
+    ("2", "bad input: command line, config, input file, or an output path that exists or cannot be written"),
+    ("3", "numerical failure (the message names the model time, latitude and value)"),
+    ("130", "interrupted by SIGINT (Ctrl-C); a run, sweep, branches, ensemble or regimes job keeps a file marked complete = 0"),
+    ("143", "interrupted by SIGTERM (likewise)"),
+];
+
+/// `--help`'s closing section: the exit statuses, one per line.
+fn exit_status_help() -> String {
+    let mut s = String::from("Exit status:\n");
+    for (code, what) in EXIT_STATUS {
+        s.push_str(&format!("  {code:>3}  {what}\n"));
+    }
+    s
+}
 
 /// icefold: an idealised latitude-resolved energy-balance climate model with ice-albedo feedback.
 #[derive(Debug, Parser)]
-#[command(name = "icefold", version, about, long_about = None, propagate_version = true)]
+#[command(name = "icefold", version, about, long_about = None, propagate_version = true,
+    after_help = exit_status_help())]
 pub struct Cli {
+    /// No progress bars and no informational lines on stderr; warnings and errors are still
+    /// printed, and a command's own output (stdout) is unchanged.
+    #[arg(short, long, global = true)]
+    pub quiet: bool,
     /// What to do.
     #[command(subcommand)]
     pub command: Command,
+}
+
+/// Set by `--quiet` before the command runs.
+static QUIET: AtomicBool = AtomicBool::new(false);
+
+/// Whether `--quiet` was given: no progress bars, no informational lines.
+pub fn quiet() -> bool {
+    QUIET.load(Ordering::Relaxed)
+}
+
+/// Whether to show a progress bar (still only on a terminal; see `progress`).
+pub fn show_progress() -> bool {
+    !quiet()
 }
 
 /// Options shared by commands that read a config.
@@ -202,6 +251,20 @@ pub enum Command {
         #[arg(long, default_value = "icefold-demo")]
         out_dir: PathBuf,
     },
+    /// Write variables of any icefold file as a CSV table (to stdout, or -o FILE).
+    Export(export::ExportArgs),
+    /// Print a shell completion script (e.g. `icefold completions bash > ~/.local/share/bash-completion/completions/icefold`).
+    Completions {
+        /// The shell.
+        #[arg(value_enum)]
+        shell: clap_complete::Shell,
+    },
+    /// Print the man page (roff) to stdout, or write one page per command into a directory.
+    Manpage {
+        /// Write icefold.1 and icefold-COMMAND.1 for every command into this directory.
+        #[arg(long, value_name = "DIR")]
+        out_dir: Option<PathBuf>,
+    },
 }
 
 /// Parse the command line, run the command, print any error; returns the exit status.
@@ -214,6 +277,7 @@ pub fn main() -> i32 {
             return code;
         }
     };
+    QUIET.store(cli.quiet, Ordering::Relaxed);
     match dispatch(cli) {
         Ok(()) => 0,
         Err(e) => {
@@ -232,6 +296,7 @@ pub fn command_line() -> String {
 }
 
 fn dispatch(cli: Cli) -> Result<(), Error> {
+    refuse_dash(&cli.command)?;
     if matches!(
         cli.command,
         Command::Run { .. }
@@ -301,6 +366,114 @@ fn dispatch(cli: Cli) -> Result<(), Error> {
         Command::Inspect { file } => inspect::main(&file),
         Command::Demo { out_dir } => demo::main(&out_dir),
         Command::Plot { file, out_dir } => plot::main(&file, out_dir.as_deref()),
+        Command::Export(args) => export::main(&args),
+        Command::Completions { shell } => {
+            clap_complete::generate(shell, &mut Cli::command(), "icefold", &mut std::io::stdout());
+            Ok(())
+        }
+        Command::Manpage { out_dir } => manpage(out_dir.as_deref()),
+    }
+}
+
+/// Refuse `-` as an output file or directory (it would create a file named `-`): only
+/// `export` writes to standard output, when `-o` is left out.
+fn refuse_dash(command: &Command) -> Result<(), Error> {
+    const NC: &str = "it writes a netCDF-4/HDF5 file, never to standard output";
+    let (option, path, allowed, noun) = match command {
+        Command::Run { output, .. }
+        | Command::Equilibrium { output, .. }
+        | Command::Sweep { output, .. }
+        | Command::Branches { output, .. }
+        | Command::Ensemble { output, .. }
+        | Command::Regimes { output, .. } => (
+            "-o/--output",
+            output.output.as_deref(),
+            format!(
+                "{NC}; give a file name (e.g. -o out.nc), or leave -o out for <config name>-<command>.nc"
+            ),
+            "file",
+        ),
+        Command::Merge { output, .. } => (
+            "-o/--output",
+            Some(output.as_path()),
+            format!("{NC}; give a file name (e.g. -o merged.nc)"),
+            "file",
+        ),
+        Command::Export(args) => (
+            "-o/--output",
+            args.output.as_deref(),
+            "leave -o out to write the table to standard output, or give a file name (e.g. -o table.csv)"
+                .to_string(),
+            "file",
+        ),
+        Command::Plot { out_dir, .. } | Command::Manpage { out_dir } => (
+            "--out-dir",
+            out_dir.as_deref(),
+            "give a directory name (e.g. --out-dir pictures)".to_string(),
+            "directory",
+        ),
+        Command::Demo { out_dir } => (
+            "--out-dir",
+            Some(out_dir.as_path()),
+            "give a directory name (e.g. --out-dir icefold-demo)".to_string(),
+            "directory",
+        ),
+        Command::Check { .. } | Command::Inspect { .. } | Command::Completions { .. } => return Ok(()),
+    };
+    if path.is_some_and(|p| p.as_os_str() == "-") {
+        return Err(Error::Usage(format!(
+            "{option} -: `-` does not stand for standard output here: {allowed} (./- names a {noun} called -)"
+        )));
+    }
+    Ok(())
+}
+
+/// The man page of `icefold` (with the exit statuses) on stdout, or every command's page in `dir`.
+fn manpage(dir: Option<&Path>) -> Result<(), Error> {
+    let mut cmd = Cli::command().disable_help_subcommand(true);
+    cmd.build();
+    let io = |what: String| move |e: std::io::Error| Error::Other(format!("{what}: {e}"));
+    let page = |c: clap::Command, w: &mut dyn std::io::Write| -> std::io::Result<()> {
+        let man = clap_mangen::Man::new(c.clone()).date(env!("CARGO_PKG_VERSION"));
+        man.render_title(w)?;
+        man.render_name_section(w)?;
+        man.render_synopsis_section(w)?;
+        man.render_description_section(w)?;
+        if c.get_arguments().any(|a| !a.is_hide_set()) {
+            man.render_options_section(w)?;
+        }
+        if c.has_subcommands() {
+            man.render_subcommands_section(w)?;
+        }
+        writeln!(w, ".SH \"EXIT STATUS\"")?;
+        for (code, what) in EXIT_STATUS {
+            writeln!(w, ".TP\n{code}\n{what}")?;
+        }
+        man.render_version_section(w)
+    };
+    match dir {
+        None => {
+            let mut out = std::io::stdout().lock();
+            match page(cmd, &mut out) {
+                Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => Ok(()),
+                r => r.map_err(io("cannot write the man page".into())),
+            }
+        }
+        Some(dir) => {
+            std::fs::create_dir_all(dir)
+                .map_err(|e| Error::Usage(format!("--out-dir {}: {e}", dir.display())))?;
+            let mut pages = vec![cmd.clone()];
+            pages.extend(cmd.get_subcommands().filter(|s| !s.is_hide_set()).cloned());
+            for c in pages {
+                let name = clap_mangen::Man::new(c.clone()).get_filename();
+                let path = dir.join(&name);
+                let mut f =
+                    std::fs::File::create(&path).map_err(io(format!("cannot write {}", path.display())))?;
+                page(c, &mut f).map_err(io(format!("cannot write {}", path.display())))?;
+                info!("icefold: wrote {}", path.display());
+            }
+            Ok(())
+        }
     }
 }
 

@@ -13,7 +13,7 @@ pub fn main(file: &Path, out_dir: Option<&Path>) -> Result<(), Error> {
             .unwrap_or_else(|| ".".into())
     });
     for p in pictures(file, &dir)? {
-        eprintln!("icefold: wrote {}", p.display());
+        info!("icefold: wrote {}", p.display());
     }
     Ok(())
 }

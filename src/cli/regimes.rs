@@ -17,7 +17,7 @@ pub fn main(
     let path = super::output_path_resuming(out, &args.config, "regimes", resume.resume.is_some())?;
     let opts = RegimesOptions {
         threads,
-        progress: true,
+        progress: super::show_progress(),
     };
     let ck = resume.checkpointing(checkpoint_every.map(|n| n as f64));
     let map = regimes_job(&cfg, &path, &super::command_line(), opts, &ck)?;
@@ -28,7 +28,7 @@ pub fn main(
         .flat_map(|r| r.stable.iter().copied())
         .max()
         .unwrap_or(0);
-    eprintln!(
+    info!(
         "icefold: wrote {} ({} rows x {} columns, {} folds on {} fold lines, up to {} stable states)",
         path.display(),
         map.rows.len(),
