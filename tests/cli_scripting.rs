@@ -4,7 +4,7 @@
 mod common_cli;
 
 use clap::CommandFactory;
-use common_cli::{config, icefold, ok, tempdir};
+use common_cli::{config, icefold, ok, tempdir, BIN};
 use icefold::output::NcReader;
 use std::path::Path;
 
@@ -366,4 +366,41 @@ fn man_pages_mention_every_subcommand_and_the_exit_statuses() {
         assert!(text.contains(".SH SYNOPSIS"), "{s}");
     }
     assert!(dir.join("man/icefold.1").exists());
+}
+
+#[test]
+fn a_progress_bar_shows_on_a_terminal_unless_quiet() {
+    // `script` (util-linux) runs the command on a pseudo-terminal; without it, nothing to check.
+    let has_script = std::process::Command::new("script")
+        .arg("--version")
+        .output()
+        .is_ok_and(|o| o.status.success());
+    if !has_script {
+        eprintln!("skipped: no `script` to give the command a terminal");
+        return;
+    }
+    let dir = tempdir("tty");
+    let run = |quiet: &str, out: &str| {
+        let line = format!(
+            "{BIN} {quiet} run {} -o {out} --set time.years=50",
+            config("classic-step-albedo.toml")
+        );
+        let o = std::process::Command::new("script")
+            .args(["-qec", &line, "/dev/null"])
+            .current_dir(&dir)
+            .output()
+            .unwrap();
+        ok(&o);
+        String::from_utf8_lossy(&o.stdout).into_owned()
+    };
+    let shown = run("", "a.nc");
+    assert!(shown.contains("model years ["), "{shown}");
+    assert!(shown.contains("icefold: wrote a.nc"), "{shown}");
+    let quiet = run("--quiet", "b.nc");
+    assert!(quiet.trim().is_empty(), "{quiet}");
+    assert!(dir.join("b.nc").exists());
+    // Piped (not a terminal): no bar, the summary only.
+    let piped = icefold(&dir, &["run", &config("classic-step-albedo.toml"), "-o", "c.nc"]);
+    ok(&piped);
+    assert!(!String::from_utf8_lossy(&piped.stderr).contains('['));
 }
