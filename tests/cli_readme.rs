@@ -1,7 +1,8 @@
-//! README.md's shell examples run as written: every ```sh (or bash, shell) block, in order, in
-//! one fresh directory holding a copy of configs/, with the built `icefold` first on PATH, must
-//! exit 0. A block is left out only when the line before it says why:
-//! `<!-- readme-test: skip (REASON) -->` (set-up commands, a job that must be interrupted).
+//! README.md's (and configs/slurm/README.md's) shell examples run as written: every ```sh (or
+//! bash, shell) block, in order, in one fresh directory holding a copy of configs/, with the
+//! built `icefold` first on PATH, must exit 0. A block is left out only when the line before it
+//! says why: `<!-- readme-test: skip (REASON) -->` (set-up commands, a job that must be
+//! interrupted, a cluster).
 
 mod common_cli;
 
@@ -69,8 +70,6 @@ fn copy_dir(from: &Path, to: &Path) {
 #[test]
 fn readme_shell_examples_run_as_written() {
     let root = Path::new(env!("CARGO_MANIFEST_DIR"));
-    let readme = std::fs::read_to_string(root.join("README.md")).unwrap();
-    let blocks = shell_blocks(&readme);
     let dir = tempdir("readme");
     copy_dir(&root.join("configs"), &dir.join("configs"));
     let bin_dir = Path::new(BIN).parent().unwrap();
@@ -80,30 +79,33 @@ fn readme_shell_examples_run_as_written() {
         std::env::var("PATH").unwrap_or_default()
     );
     let mut ran = 0;
-    for b in &blocks {
-        if let Some(reason) = &b.skip {
+    for readme in ["README.md", "configs/slurm/README.md"] {
+        let text = std::fs::read_to_string(root.join(readme)).unwrap();
+        for b in shell_blocks(&text) {
+            if let Some(reason) = &b.skip {
+                assert!(
+                    reason.starts_with('(') && reason.len() > 3,
+                    "{readme} line {}: a skipped block says why: `<!-- readme-test: skip (REASON) -->`",
+                    b.line
+                );
+                continue;
+            }
+            let out = Command::new("bash")
+                .args(["-euo", "pipefail", "-c", &b.text])
+                .current_dir(&dir)
+                .env("PATH", &path)
+                .output()
+                .unwrap();
             assert!(
-                reason.starts_with('(') && reason.len() > 3,
-                "README line {}: a skipped block says why: `<!-- readme-test: skip (REASON) -->`",
-                b.line
+                out.status.success(),
+                "{readme}: the block at line {} failed (exit {:?}):\n{}\nstderr:\n{}",
+                b.line,
+                out.status.code(),
+                b.text,
+                String::from_utf8_lossy(&out.stderr)
             );
-            continue;
+            ran += 1;
         }
-        let out = Command::new("bash")
-            .args(["-euo", "pipefail", "-c", &b.text])
-            .current_dir(&dir)
-            .env("PATH", &path)
-            .output()
-            .unwrap();
-        assert!(
-            out.status.success(),
-            "README block at line {} failed (exit {:?}):\n{}\nstderr:\n{}",
-            b.line,
-            out.status.code(),
-            b.text,
-            String::from_utf8_lossy(&out.stderr)
-        );
-        ran += 1;
     }
     assert!(ran >= 1, "no README shell block ran");
 }
