@@ -404,3 +404,38 @@ fn a_progress_bar_shows_on_a_terminal_unless_quiet() {
     ok(&piped);
     assert!(!String::from_utf8_lossy(&piped.stderr).contains('['));
 }
+
+#[test]
+fn export_of_an_incomplete_file_warns_even_when_quiet() {
+    let dir = tempdir("export-incomplete");
+    // Interrupted through the real signal path right after the first checkpoint.
+    let out = std::process::Command::new(BIN)
+        .args([
+            "run",
+            &config("classic-step-albedo.toml"),
+            "-o",
+            "cut.nc",
+            "--checkpoint-every",
+            "10",
+        ])
+        .env(icefold::interrupt::FAULT_ENV, "1")
+        .current_dir(&dir)
+        .output()
+        .unwrap();
+    assert_eq!(
+        out.status.code(),
+        Some(130),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let r = NcReader::open(&dir.join("cut.nc")).unwrap();
+    assert_eq!(r.attr_i64("complete").unwrap(), Some(0));
+    let records = r.dim_len("time").unwrap();
+    let e = icefold(&dir, &["--quiet", "export", "cut.nc"]);
+    ok(&e);
+    let err = String::from_utf8_lossy(&e.stderr);
+    assert!(err.contains("warning") && err.contains("incomplete"), "{err}");
+    let csv = parse_csv(&String::from_utf8(e.stdout).unwrap());
+    assert_eq!(csv.rows.len(), records);
+    assert!(same(&column(&csv, "time"), &r.read_f64("time").unwrap()));
+}

@@ -70,7 +70,15 @@ pub fn main(args: &ExportArgs) -> Result<(), Error> {
     }
     let r = NcReader::open(&args.file)?;
     let kind = crate::output::damage::icefold_kind(&r)?;
+    // A damaged file is refused (exit 2) rather than exported as if it were whole.
+    crate::output::damage::check(&r, &kind)?;
     let table = table(&r, &kind, &args.vars, &args.dims)?;
+    if r.attr_i64("complete")? == Some(0) {
+        eprintln!(
+            "icefold: warning: {} is incomplete (complete = 0: interrupted or failed); the table holds what the job finished",
+            args.file.display()
+        );
+    }
     match &args.output {
         None => {
             let stdout = std::io::stdout();
