@@ -253,7 +253,7 @@ pub enum Command {
     },
     /// Write variables of any icefold file as a CSV table (to stdout, or -o FILE).
     Export(export::ExportArgs),
-    /// Print a shell completion script (e.g. `icefold completions bash > ~/.local/share/bash-completion/completions/icefold`).
+    /// Print a shell completion script (bash, zsh, fish, elvish, powershell) to stdout.
     Completions {
         /// The shell.
         #[arg(value_enum)]
