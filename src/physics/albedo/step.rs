@@ -110,6 +110,18 @@ fn half_cold(ti: f64, tj: f64, h: f64, l: f64, tf: f64) -> (f64, f64, f64) {
     }
 }
 
+/// The step rule for a band wholly on one side of freezing (away from the ice edge): the ice
+/// albedo below `freeze` (K), the ice-free one above. Written `ice_free + (ice - ice_free)` so
+/// that it gives the same bits as the edge-band mix `ice_free + f (ice - ice_free)` at `f = 1`.
+#[inline(always)]
+pub fn whole_band(ice_free: f64, ice: f64, freeze: f64, t: f64) -> f64 {
+    if t < freeze {
+        ice_free + (ice - ice_free)
+    } else {
+        ice_free
+    }
+}
+
 /// Call `f(k)` for every pair of neighbouring bands `k`, `k + 1` on opposite sides of `tf`
 /// (a freezing crossing), in increasing `k`.
 #[inline(always)]
@@ -196,7 +208,7 @@ impl Albedo {
                 let (f, df) = c.fraction(r);
                 (af + f * d, d * df * dr)
             }
-            None => (if temps[i] < self.freeze { af + d } else { af }, 0.0),
+            None => (whole_band(af, self.ice, self.freeze, temps[i]), 0.0),
         }
     }
 
@@ -251,12 +263,28 @@ impl Albedo {
             let tf = self.freeze;
             let cold = t < tf;
             if (temps[i - 1] < tf) == cold && (temps[i + 1] < tf) == cold {
-                let a = if cold { af + (ai - af) } else { af };
-                return (a, [0.0; 3]);
+                return (whole_band(af, ai, tf, t), [0.0; 3]);
             }
         }
         let (f, df) = self.ice_fraction(temps, i);
         let d = ai - af;
         (af + f * d, [d * df[0], d * df[1], d * df[2]])
+    }
+
+    /// Call `f(i)` for every band of `temps` the step rule must take in full (the others are
+    /// [`whole_band`]): the two outer bands, the two next to the equator seam and the two of
+    /// every freezing crossing. A band may be visited more than once.
+    #[inline(always)]
+    pub fn for_each_edge_band(&self, temps: &[f64], mut f: impl FnMut(usize)) {
+        let n = temps.len();
+        f(0);
+        f(n - 1);
+        for i in self.seam_bands().into_iter().flatten() {
+            f(i);
+        }
+        for_each_crossing(temps, self.freeze, |k| {
+            f(k);
+            f(k + 1);
+        });
     }
 }

@@ -56,17 +56,35 @@ pub fn convergence(face_k: &[f64], inv_dx: &[f64], temps: &[f64], out: &mut [f64
     }
 }
 
-/// The Jacobian entries of band `i`'s convergence: `(lo, hi)` by `T_{i-1}` and `T_{i+1}`; by
-/// `T_i` it is `-(lo + hi)` (W m-2 K-1).
+/// Convergence (W m-2) of band `i` of `t` (all `n` bands), no flux through the outer faces.
 #[inline(always)]
-pub fn band_jacobian(face_k: &[f64], inv_dx: &[f64], i: usize) -> (f64, f64) {
-    (face_k[i] * inv_dx[i], face_k[i + 1] * inv_dx[i])
+pub fn band_convergence_at(face_k: &[f64], inv_dx: &[f64], t: &[f64], i: usize) -> f64 {
+    let n = t.len();
+    let flux_hi = if i + 1 < n {
+        face_flux(face_k[i + 1], t[i], t[i + 1])
+    } else {
+        0.0
+    };
+    let flux_lo = if i > 0 {
+        face_flux(face_k[i], t[i - 1], t[i])
+    } else {
+        0.0
+    };
+    band_convergence(flux_lo, flux_hi, inv_dx[i])
+}
+
+/// The Jacobian entries of a band's convergence from the conductances of its lower and upper
+/// faces and its inverse width: `(lo, hi)` by `T_{i-1}` and `T_{i+1}`; by `T_i` it is
+/// `-(lo + hi)` (W m-2 K-1).
+#[inline(always)]
+pub fn band_jacobian(k_lo: f64, k_hi: f64, inv_dx: f64) -> (f64, f64) {
+    (k_lo * inv_dx, k_hi * inv_dx)
 }
 
 /// Add the Jacobian of the convergence (W m-2 K-1) to `jac`.
 pub fn add_jacobian(face_k: &[f64], inv_dx: &[f64], jac: &mut Tridiag) {
     for i in 0..jac.len() {
-        let (lo, hi) = band_jacobian(face_k, inv_dx, i);
+        let (lo, hi) = band_jacobian(face_k[i], face_k[i + 1], inv_dx[i]);
         jac.lower[i] += lo;
         jac.upper[i] += hi;
         jac.diag[i] -= lo + hi;
