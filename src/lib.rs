@@ -19,6 +19,7 @@ pub mod cli;
 pub mod config;
 pub mod cpu;
 pub mod csv;
+pub mod drivers;
 pub mod ensemble;
 pub mod equilibrium;
 pub mod error;

@@ -38,6 +38,7 @@ pub fn daily_mean_shape(x: f64, sin_delta: f64, cos_delta: f64) -> f64 {
 
 /// Mean of `daily_mean_shape` over `x` in `[a, b]` for one declination, splitting the band at
 /// the polar circles `|x| = cos(delta)` where the integrand has a kink.
+#[inline]
 fn band_mean_shape(rule: &ClusteredRule, a: f64, b: f64, sin_delta: f64, cos_delta: f64) -> f64 {
     let mut cuts = [a, 0.0, 0.0, b];
     let mut k = 1;
