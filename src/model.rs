@@ -254,7 +254,7 @@ impl Model {
         };
         let (sun, out) = (&sun[..n], &mut out[..n]);
         // One pass over the bands with the albedo and OLR forms chosen once outside the loop;
-        // diffusive transport is folded in (same expressions as `Transport::convergence`).
+        // diffusive transport is folded in (the band functions `Transport::convergence` uses).
         let diffusive = match &self.transport {
             Transport::Diffusive { face_k, inv_dx } => Some((&face_k[..n + 1], &inv_dx[..n])),
             Transport::Relaxation { .. } => {
