@@ -4,9 +4,9 @@
 //!
 //! Layers (see DEVELOPERS.md): `config` (TOML to typed specs) feeds `model` (grid plus one of
 //! each parameterisation in `physics`: insolation, albedo, longwave, transport, heat
-//! capacity), which `integrate`
-//! and `equilibrium` solve; `jobs` put a model, a solver and an `output` file together for the
-//! commands in `cli`. Physics modules are pure functions over slices and do no I/O.
+//! capacity; time-varying `drivers` from `forcing`), which `integrate` and `equilibrium`
+//! solve; `jobs` put a model, a solver and an `output` file together for the commands in `cli`.
+//! Physics modules are pure functions over slices and do no I/O.
 
 // Numerical loops index several band arrays in step, as the discrete equations do.
 #![allow(clippy::needless_range_loop)]

@@ -1,8 +1,8 @@
 //! Linear OLR `A + B (T - 273.15 K)`.
 //!
 //! When to use it: the classic fitted form, cheapest and exactly linear, so equilibria and
-//! folds come out in closed form to compare against; valid over the range of its fit to
-//! observed OLR (roughly 220 K to 310 K).
+//! folds come out in closed form to compare against; trust it only over the temperatures its
+//! `A`, `B` were fitted to.
 //!
 //! Reference: Budyko (1969, Tellus 21, 611-619).
 

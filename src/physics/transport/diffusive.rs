@@ -3,9 +3,8 @@
 //! x_i)`, zero at the outer faces, and a band's convergence is the difference of its two face
 //! fluxes over its width.
 //!
-//! When to use it: the default; a temperature profile continuous in latitude, small-ice-cap
-//! instability and the slope-stability theorems of diffusive models hold, and the `step`
-//! albedo's interpolated edge rule converges at second order in band width.
+//! When to use it: the default; the temperature profile is continuous in latitude, and the
+//! `step` albedo's interpolated edge rule converges at second order in band width.
 //!
 //! Reference: North (1975, J. Atmos. Sci. 32, 2033-2043); exact discrete equations in
 //! docs/discrete-model.md.
