@@ -5,12 +5,14 @@
 //! (DESIGN section 2; docs/discrete-model.md has the exact discrete equations). This is the only
 //! module that knows every piece; it does no I/O.
 
-use crate::albedo::{Albedo, AlbedoForm, EdgeRule};
+pub use crate::drivers::{DriverSource, Drivers};
 use crate::grid::Grid;
-use crate::insolation::{self, SeasonalTable};
 use crate::linalg::Tridiag;
-use crate::longwave::Longwave;
-use crate::transport::Transport;
+use crate::physics::albedo::{step, Albedo, AlbedoForm, EdgeRule};
+use crate::physics::insolation::{self, SeasonalTable};
+use crate::physics::longwave::{linear, Longwave};
+use crate::physics::transport::diffusive::{band_convergence, band_convergence_at, band_jacobian, face_flux};
+use crate::physics::transport::Transport;
 
 /// Seconds in a model year (365.25 days).
 pub const YEAR_SECONDS: f64 = 365.25 * 86400.0;
@@ -22,75 +24,6 @@ pub enum Sunlight {
     Fixed(Vec<f64>),
     /// Daily mean at the model time (seasonal cycle), from a table over the orbit.
     Seasonal(std::sync::Arc<SeasonalTable>),
-}
-
-/// Time-dependent drivers at one instant.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub struct Drivers {
-    /// Multiplies the insolation (1 = as configured).
-    pub solar_scale: f64,
-    /// Greenhouse forcing subtracted from OLR, W m-2.
-    pub greenhouse_wm2: f64,
-    /// Additive forcing, W m-2.
-    pub extra_wm2: f64,
-    /// Multiplies the OLR (1 = as configured; a time-varying emissivity).
-    pub olr_scale: f64,
-    /// Added to the OLR, W m-2 (a time-varying `longwave.a`).
-    pub olr_offset_wm2: f64,
-    /// Added OLR slope, W m-2 K-1, times `T - 273.15 K` (a time-varying `longwave.b`).
-    pub olr_slope_wm2_per_k: f64,
-    /// Multiplies the transport (1 = as configured; a time-varying diffusivity or rate).
-    pub transport_scale: f64,
-}
-
-impl Drivers {
-    /// Drivers with the three configured values and every parameter override neutral.
-    pub fn plain(solar_scale: f64, greenhouse_wm2: f64, extra_wm2: f64) -> Drivers {
-        Drivers {
-            solar_scale,
-            greenhouse_wm2,
-            extra_wm2,
-            olr_scale: 1.0,
-            olr_offset_wm2: 0.0,
-            olr_slope_wm2_per_k: 0.0,
-            transport_scale: 1.0,
-        }
-    }
-
-    /// Effective OLR (W m-2, before the greenhouse forcing) and its derivative (W m-2 K-1) from
-    /// the model's OLR and derivative at `t_k` (K).
-    #[inline]
-    pub fn olr(&self, olr: f64, dolr: f64, t_k: f64) -> (f64, f64) {
-        (
-            self.olr_scale * olr
-                + self.olr_offset_wm2
-                + self.olr_slope_wm2_per_k * (t_k - crate::longwave::ZERO_CELSIUS),
-            self.olr_scale * dolr + self.olr_slope_wm2_per_k,
-        )
-    }
-}
-
-/// Supplies the drivers at a model time (years). The constant case is `Drivers` itself.
-pub trait DriverSource: Send + Sync + std::fmt::Debug {
-    /// Drivers at `t_years`.
-    fn at(&self, t_years: f64) -> Drivers;
-    /// Dotted config keys this source varies in time besides the three drivers (written to
-    /// run files as applied parameters).
-    fn parameter_keys(&self) -> Vec<String> {
-        Vec::new()
-    }
-    /// Values of `parameter_keys` at `t_years`, in the same order, into `out`.
-    fn parameter_values(&self, _t_years: f64, _out: &mut [f64]) {}
-    /// The first time (years) strictly after `t_years` where the drivers jump or change slope
-    /// (a breakpoint every time stepper must land on), if any.
-    fn next_breakpoint(&self, _t_years: f64) -> Option<f64> {
-        None
-    }
-    /// The longest step (years) that resolves the drivers over `[a, b]` (years, `a <= b`; `a == b`
-    /// for the drivers at one time): the forcing's own time scale there.
-    fn time_scale(&self, _a: f64, _b: f64) -> f64 {
-        f64::INFINITY
-    }
 }
 
 /// The model.
@@ -157,7 +90,7 @@ macro_rules! with_forms {
             (AlbedoForm::Step, Longwave::Linear { a, b }) => {
                 let (a0, b0) = (*a, *b);
                 let $alb = |t: &[f64], i: usize| $self.albedo.step_band(t, i);
-                let $olr = move |t: f64| (a0 + b0 * (t - crate::longwave::ZERO_CELSIUS), b0);
+                let $olr = move |t: f64| linear::olr(a0, b0, t);
                 $body
             }
             (AlbedoForm::Step, _) => {
@@ -168,7 +101,7 @@ macro_rules! with_forms {
             (_, Longwave::Linear { a, b }) => {
                 let (a0, b0) = (*a, *b);
                 let $alb = |t: &[f64], i: usize| $self.albedo.band(t, i);
-                let $olr = move |t: f64| (a0 + b0 * (t - crate::longwave::ZERO_CELSIUS), b0);
+                let $olr = move |t: f64| linear::olr(a0, b0, t);
                 $body
             }
             _ => {
@@ -219,7 +152,7 @@ macro_rules! with_olr {
         match &$self.longwave {
             Longwave::Linear { a, b } => {
                 let (a0, b0) = (*a, *b);
-                let $olr = move |t: f64| (a0 + b0 * (t - crate::longwave::ZERO_CELSIUS), b0);
+                let $olr = move |t: f64| linear::olr(a0, b0, t);
                 $body
             }
             _ => {
@@ -228,6 +161,21 @@ macro_rules! with_olr {
             }
         }
     };
+}
+
+/// Net heating of one band, W m-2: the absorbed sunlight `s (1 - a)` for scaled insolation `s`
+/// and albedo `a`, minus the OLR `o` net of the greenhouse forcing `g`, plus the (scaled)
+/// transport convergence `c` and the additive forcing `extra` (all W m-2).
+#[inline(always)]
+fn net_heating(s: f64, a: f64, o: f64, g: f64, c: f64, extra: f64) -> f64 {
+    s * (1.0 - a) - (o - g) + c + extra
+}
+
+/// The local part of a band's Jacobian row (W m-2 K-1): by `T_{i-1}`, `T_i`, `T_{i+1}` from
+/// the scaled insolation `s`, the albedo derivatives `da` and the OLR slope `dolr`.
+#[inline(always)]
+fn local_jacobian(s: f64, da: [f64; 3], dolr: f64) -> [f64; 3] {
+    [-s * da[0], -s * da[1] - dolr, -s * da[2]]
 }
 
 impl Model {
@@ -306,7 +254,7 @@ impl Model {
         };
         let (sun, out) = (&sun[..n], &mut out[..n]);
         // One pass over the bands with the albedo and OLR forms chosen once outside the loop;
-        // diffusive transport is folded in (same expressions as `Transport::convergence`).
+        // diffusive transport is folded in (the band functions `Transport::convergence` uses).
         let diffusive = match &self.transport {
             Transport::Diffusive { face_k, inv_dx } => Some((&face_k[..n + 1], &inv_dx[..n])),
             Transport::Relaxation { .. } => {
@@ -327,14 +275,8 @@ impl Model {
                     let ti = t[i];
                     let (o, dolr) = olr_of(ti);
                     let (o, _) = d.olr(o, dolr, ti);
-                    let flux_hi = if i + 1 < n {
-                        face_k[i + 1] * (t[i + 1] - ti)
-                    } else {
-                        0.0
-                    };
-                    let flux_lo = if i > 0 { face_k[i] * (ti - t[i - 1]) } else { 0.0 };
-                    let c = (flux_hi - flux_lo) * inv_dx[i];
-                    ss * sun[i] * (1.0 - a) - (o - g) + ts * c + extra
+                    let c = band_convergence_at(face_k, inv_dx, t, i);
+                    net_heating(ss * sun[i], a, o, g, ts * c, extra)
                 };
                 if n > 2 {
                     // Interior band i = j + 1, over slices of one length (no bounds checks, so
@@ -353,23 +295,19 @@ impl Model {
                     let o_in = &mut out[1..m + 1];
                     for j in 0..m {
                         let ti = tc[j];
-                        let a = if ti < tf { afs[j] + (ai - afs[j]) } else { afs[j] };
+                        let a = step::whole_band(afs[j], ai, tf, ti);
                         let (o, dolr) = olr_of(ti);
                         let (o, _) = d.olr(o, dolr, ti);
-                        let c = (k_hi[j] * (th[j] - ti) - k_lo[j] * (ti - tl[j])) * idx[j];
-                        o_in[j] = ss * sn[j] * (1.0 - a) - (o - g) + ts * c + extra;
+                        let c = band_convergence(
+                            face_flux(k_lo[j], tl[j], ti),
+                            face_flux(k_hi[j], ti, th[j]),
+                            idx[j],
+                        );
+                        o_in[j] = net_heating(ss * sn[j], a, o, g, ts * c, extra);
                     }
                 }
-                let mut fix = |i: usize| out[i] = band(i, self.albedo.step_band(t, i).0);
-                fix(0);
-                crate::albedo::for_each_crossing(t, tf, |k| {
-                    fix(k);
-                    fix(k + 1);
-                });
-                fix(n - 1);
-                for i in self.albedo.seam_bands().into_iter().flatten() {
-                    fix(i);
-                }
+                self.albedo
+                    .for_each_edge_band(t, |i| out[i] = band(i, self.albedo.step_band(t, i).0));
             });
             return;
         }
@@ -383,9 +321,8 @@ impl Model {
                     let (o, dolr) = d.olr(o, dolr, ti);
                     let (r, dr) = bal.restoring(o, dolr, ti);
                     let (a, _) = self.albedo.balance_band(sun, bal.scale, temps, i, r, dr);
-                    out[i] = d.solar_scale * sun[i] * (1.0 - a) - (o - d.greenhouse_wm2)
-                        + d.transport_scale * conv[i]
-                        + d.extra_wm2;
+                    let c = d.transport_scale * conv[i];
+                    out[i] = net_heating(d.solar_scale * sun[i], a, o, d.greenhouse_wm2, c, d.extra_wm2);
                 }
             });
             return;
@@ -399,20 +336,20 @@ impl Model {
                 let (o, _) = d.olr(o, dolr, ti);
                 let tr = match diffusive {
                     Some((face_k, inv_dx)) => {
+                        // Each face flux once, carried to the band above.
                         let flux_hi = if i + 1 < n {
-                            face_k[i + 1] * (temps[i + 1] - ti)
+                            face_flux(face_k[i + 1], ti, temps[i + 1])
                         } else {
                             0.0
                         };
-                        let c = (flux_hi - flux_lo) * inv_dx[i];
+                        let c = band_convergence(flux_lo, flux_hi, inv_dx[i]);
                         flux_lo = flux_hi;
                         c
                     }
                     None => conv[i],
                 };
-                out[i] = d.solar_scale * sun[i] * (1.0 - a) - (o - d.greenhouse_wm2)
-                    + d.transport_scale * tr
-                    + d.extra_wm2;
+                let c = d.transport_scale * tr;
+                out[i] = net_heating(d.solar_scale * sun[i], a, o, d.greenhouse_wm2, c, d.extra_wm2);
             }
         });
     }
@@ -462,13 +399,13 @@ impl Model {
             let (_, da) = self.albedo_band(bal.as_ref(), &d, sun, temps, i);
             let (olr, dolr) = self.longwave.eval(temps[i]);
             let (_, dolr) = d.olr(olr, dolr, temps[i]);
-            let s = d.solar_scale * sun[i];
-            jac.diag[i] += -s * da[1] - dolr;
+            let [l, dd, u] = local_jacobian(d.solar_scale * sun[i], da, dolr);
+            jac.diag[i] += dd;
             if i > 0 {
-                jac.lower[i] += -s * da[0];
+                jac.lower[i] += l;
             }
             if i + 1 < n {
-                jac.upper[i] += -s * da[2];
+                jac.upper[i] += u;
             }
         }
     }
@@ -536,17 +473,22 @@ impl Model {
                         let (jd, jl, ju) = (&mut jd[1..m + 1], &mut jl[1..m + 1], &mut ju[1..m + 1]);
                         for j in 0..m {
                             let ti = tc[j];
-                            let a = if ti < tf { afs[j] + (ai - afs[j]) } else { afs[j] };
+                            let a = step::whole_band(afs[j], ai, tf, ti);
                             let (o, dolr) = olr_of(ti);
                             let (o, dolr) = d.olr(o, dolr, ti);
                             let s = d.solar_scale * sn[j];
-                            let conv = (k_hi[j] * (th[j] - ti) - k_lo[j] * (ti - tl[j])) * idx[j];
-                            o_in[j] = s * (1.0 - a) - (o - g) + conv + extra;
-                            let lo = k_lo[j] * idx[j];
-                            let hi = k_hi[j] * idx[j];
-                            jd[j] = (-s * 0.0 - dolr) - (lo + hi);
-                            jl[j] = -s * 0.0 + lo;
-                            ju[j] = -s * 0.0 + hi;
+                            let conv = band_convergence(
+                                face_flux(k_lo[j], tl[j], ti),
+                                face_flux(k_hi[j], ti, th[j]),
+                                idx[j],
+                            );
+                            o_in[j] = net_heating(s, a, o, g, conv, extra);
+                            // Away from the edge the albedo derivatives are zero.
+                            let (lo, hi) = band_jacobian(k_lo[j], k_hi[j], idx[j]);
+                            let [l, dd, u] = local_jacobian(s, [0.0; 3], dolr);
+                            jd[j] = dd - (lo + hi);
+                            jl[j] = l + lo;
+                            ju[j] = u + hi;
                         }
                     }
                 });
@@ -557,33 +499,17 @@ impl Model {
                         let (o, dolr) = olr_of(ti);
                         let (o, dolr) = d.olr(o, dolr, ti);
                         let s = d.solar_scale * sun[i];
-                        let flux_hi = if i + 1 < n {
-                            face_k[i + 1] * (t[i + 1] - ti)
-                        } else {
-                            0.0
-                        };
-                        let flux_lo = if i > 0 { face_k[i] * (ti - t[i - 1]) } else { 0.0 };
-                        let conv = (flux_hi - flux_lo) * inv_dx[i];
-                        out[i] = s * (1.0 - a) - (o - g) + conv + extra;
-                        let lo = face_k[i] * inv_dx[i];
-                        let hi = face_k[i + 1] * inv_dx[i];
-                        jd[i] = (-s * da[1] - dolr) - (lo + hi);
-                        jl[i] = (if i > 0 { -s * da[0] } else { 0.0 }) + lo;
-                        ju[i] = (if i + 1 < n { -s * da[2] } else { 0.0 }) + hi;
+                        let conv = band_convergence_at(face_k, inv_dx, t, i);
+                        out[i] = net_heating(s, a, o, g, conv, extra);
+                        let (lo, hi) = band_jacobian(face_k[i], face_k[i + 1], inv_dx[i]);
+                        let [l, dd, u] = local_jacobian(s, da, dolr);
+                        jd[i] = dd - (lo + hi);
+                        jl[i] = (if i > 0 { l } else { 0.0 }) + lo;
+                        ju[i] = (if i + 1 < n { u } else { 0.0 }) + hi;
                     };
-                    let (a0, d0) = self.albedo.step_band(t, 0);
-                    band(0, a0, d0);
-                    let (a1, d1) = self.albedo.step_band(t, n - 1);
-                    band(n - 1, a1, d1);
-                    for i in self.albedo.seam_bands().into_iter().flatten() {
+                    self.albedo.for_each_edge_band(t, |i| {
                         let (a, da) = self.albedo.step_band(t, i);
                         band(i, a, da);
-                    }
-                    crate::albedo::for_each_crossing(t, tf, |k| {
-                        for i in [k, k + 1] {
-                            let (a, da) = self.albedo.step_band(t, i);
-                            band(i, a, da);
-                        }
                     });
                 });
                 return;
@@ -596,19 +522,20 @@ impl Model {
                     let (o, dolr) = olr_of(ti);
                     let (o, dolr) = d.olr(o, dolr, ti);
                     let s = d.solar_scale * sun[i];
+                    // Each face flux once, carried to the band above.
                     let flux_hi = if i + 1 < n {
-                        face_k[i + 1] * (temps[i + 1] - ti)
+                        face_flux(face_k[i + 1], ti, temps[i + 1])
                     } else {
                         0.0
                     };
-                    let conv = (flux_hi - flux_lo) * inv_dx[i];
+                    let conv = band_convergence(flux_lo, flux_hi, inv_dx[i]);
                     flux_lo = flux_hi;
-                    out[i] = s * (1.0 - a) - (o - d.greenhouse_wm2) + conv + d.extra_wm2;
-                    let lo = face_k[i] * inv_dx[i];
-                    let hi = face_k[i + 1] * inv_dx[i];
-                    jd[i] = (-s * da[1] - dolr) - (lo + hi);
-                    jl[i] = (if i > 0 { -s * da[0] } else { 0.0 }) + lo;
-                    ju[i] = (if i + 1 < n { -s * da[2] } else { 0.0 }) + hi;
+                    out[i] = net_heating(s, a, o, d.greenhouse_wm2, conv, d.extra_wm2);
+                    let (lo, hi) = band_jacobian(face_k[i], face_k[i + 1], inv_dx[i]);
+                    let [l, dd, u] = local_jacobian(s, da, dolr);
+                    jd[i] = dd - (lo + hi);
+                    jl[i] = (if i > 0 { l } else { 0.0 }) + lo;
+                    ju[i] = (if i + 1 < n { u } else { 0.0 }) + hi;
                 }
             });
             return;
@@ -624,10 +551,12 @@ impl Model {
             let (olr, dolr) = self.longwave.eval(temps[i]);
             let (olr, dolr) = d.olr(olr, dolr, temps[i]);
             let s = d.solar_scale * sun[i];
-            out[i] = s * (1.0 - alb) - (olr - d.greenhouse_wm2) + d.transport_scale * conv[i] + d.extra_wm2;
-            jac.diag[i] = -s * da[1] - dolr;
-            jac.lower[i] = if i > 0 { -s * da[0] } else { 0.0 };
-            jac.upper[i] = if i + 1 < n { -s * da[2] } else { 0.0 };
+            let c = d.transport_scale * conv[i];
+            out[i] = net_heating(s, alb, olr, d.greenhouse_wm2, c, d.extra_wm2);
+            let [l, dd, u] = local_jacobian(s, da, dolr);
+            jac.diag[i] = dd;
+            jac.lower[i] = if i > 0 { l } else { 0.0 };
+            jac.upper[i] = if i + 1 < n { u } else { 0.0 };
         }
         ws.conv = conv;
         // A time-varying transport factor f scales only the transport part: (J/f + T) f.
@@ -860,8 +789,8 @@ impl Model {
 impl Model {
     /// Assemble the model a validated spec describes.
     pub fn from_spec(spec: &crate::config::spec::ModelSpec) -> Model {
-        use crate::albedo::Albedo;
         use crate::config::spec::{InsolationForm, TransportSpec};
+        use crate::physics::albedo::Albedo;
         let grid = Grid::new(spec.domain, spec.spacing, spec.bands);
         let n = grid.len();
         let ins = &spec.insolation;
@@ -907,12 +836,8 @@ impl Model {
         };
         let albedo = Albedo::new(&grid, a.form, ice_free, a.ice, a.freeze_k).with_edge_rule(edge_rule);
         let hc = &spec.heat_capacity;
-        let heat_capacity = (0..n)
-            .map(|i| {
-                let f = hc.land_fraction.get(i).copied().unwrap_or(0.0);
-                (1.0 - f) * hc.ocean + f * hc.land
-            })
-            .collect();
+        let heat_capacity =
+            crate::physics::heat_capacity::mixed_layer::by_band(n, hc.ocean, hc.land, &hc.land_fraction);
         Model {
             grid,
             sunlight,

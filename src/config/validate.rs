@@ -4,9 +4,9 @@ use super::raw::*;
 use super::spec::*;
 use super::table::read_olr_table;
 use super::ConfigError;
-use crate::albedo::AlbedoForm;
 use crate::grid::{Domain, Spacing};
-use crate::longwave::{co2_forcing, Longwave, ZERO_CELSIUS};
+use crate::physics::albedo::AlbedoForm;
+use crate::physics::longwave::{co2_forcing, Longwave, ZERO_CELSIUS};
 use std::path::Path;
 
 /// Largest number of bands accepted (memory and time stay modest below it).
@@ -209,7 +209,7 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
     )?;
     let form = match kind {
         "legendre" => {
-            let default_s2 = crate::insolation::s2_from_obliquity(obl.to_radians());
+            let default_s2 = crate::physics::insolation::s2_from_obliquity(obl.to_radians());
             // Insolation must stay non-negative: 1 + s2 P2 >= 0 for P2 in [-1/2, 1].
             let s2 = c.num("insolation.s2", &mut ins.s2, default_s2, Range::Closed(-1.0, 2.0))?;
             InsolationForm::Legendre { s2 }
