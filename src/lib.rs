@@ -36,4 +36,5 @@ pub mod output;
 pub mod plot;
 pub mod quadrature;
 pub mod tally;
+pub mod text;
 pub mod transport;
