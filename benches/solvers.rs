@@ -260,11 +260,11 @@ fn workloads(c: &mut Criterion) {
     });
     // Two-way sweep: 121 values of S0 each way, settled, tipping points refined.
     let cfg = load("sweep-solar.toml", &[]);
-    tally("sweep", || icefold::jobs::sweep::run_sweep(&cfg, false).unwrap());
+    tally("sweep", || icefold::jobs::sweep::run_sweep(&cfg).unwrap());
     g.bench_function("sweep_121x2_90bands", |b| {
         b.iter(|| {
             black_box(
-                icefold::jobs::sweep::run_sweep(&cfg, false)
+                icefold::jobs::sweep::run_sweep(&cfg)
                     .unwrap()
                     .tipping
                     .len(),

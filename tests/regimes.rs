@@ -48,7 +48,6 @@ max_step = 0.01
 fn serial() -> RegimesOptions {
     RegimesOptions {
         threads: Some(1),
-        progress: false,
     }
 }
 
@@ -141,7 +140,6 @@ fn one_and_two_threads_give_the_same_map() {
         &cfg,
         RegimesOptions {
             threads: Some(2),
-            progress: false,
         },
     )
     .unwrap();

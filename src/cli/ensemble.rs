@@ -34,8 +34,8 @@ pub fn main(
         EnsembleOptions {
             shard,
             threads,
-            progress: true,
         },
+        &super::progress::Bar::new(),
         &ck,
     )?;
     eprintln!(
