@@ -262,14 +262,7 @@ fn workloads(c: &mut Criterion) {
     let cfg = load("sweep-solar.toml", &[]);
     tally("sweep", || icefold::jobs::sweep::run_sweep(&cfg).unwrap());
     g.bench_function("sweep_121x2_90bands", |b| {
-        b.iter(|| {
-            black_box(
-                icefold::jobs::sweep::run_sweep(&cfg)
-                    .unwrap()
-                    .tipping
-                    .len(),
-            )
-        })
+        b.iter(|| black_box(icefold::jobs::sweep::run_sweep(&cfg).unwrap().tipping.len()))
     });
     // Full continuation curve (every branch, folds located).
     let cfg = load("branches-solar.toml", &[]);

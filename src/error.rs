@@ -83,7 +83,11 @@ impl Error {
     /// The process exit status for this error.
     pub fn exit_code(&self) -> i32 {
         match self {
-            Error::Config(_) | Error::Usage(_) | Error::OutputPath(_) | Error::BadFile(_) | Error::Restart(_) => 2,
+            Error::Config(_)
+            | Error::Usage(_)
+            | Error::OutputPath(_)
+            | Error::BadFile(_)
+            | Error::Restart(_) => 2,
             Error::Solver(_) => 3,
             Error::Interrupted { signal, .. } => 128 + signal,
             Error::Output(_) | Error::Checkpoint(_) | Error::Other(_) => 1,

@@ -24,6 +24,9 @@ mod tests {
     #[test]
     fn control_characters_are_escaped_onto_one_line() {
         assert_eq!(super::one_line("a\nb\t\0"), "a\\nb\\t\\u{0}");
-        assert!(matches!(super::one_line("plain"), std::borrow::Cow::Borrowed("plain")));
+        assert!(matches!(
+            super::one_line("plain"),
+            std::borrow::Cow::Borrowed("plain")
+        ));
     }
 }

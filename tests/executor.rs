@@ -45,8 +45,14 @@ fn checkpoint_blocked(tag: &str, args: &[&str], out: &str) {
     let run = icefold(&dir, args);
     let err = String::from_utf8_lossy(&run.stderr);
     assert_eq!(run.status.code(), Some(1), "{tag}: {err}");
-    assert!(err.contains(&format!("restart file {out}.restart")), "{tag}: {err}");
-    assert!(!dir.join(out).exists(), "{tag}: output written after a failed checkpoint");
+    assert!(
+        err.contains(&format!("restart file {out}.restart")),
+        "{tag}: {err}"
+    );
+    assert!(
+        !dir.join(out).exists(),
+        "{tag}: output written after a failed checkpoint"
+    );
 }
 
 #[test]

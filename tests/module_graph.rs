@@ -176,7 +176,10 @@ const PENDING: &[&[&str]] = &[&["config", "forcing", "model"]];
 #[test]
 fn no_import_cycles_among_the_library_modules() {
     let graph = module_graph(&src());
-    assert!(graph.contains_key("jobs") && graph.contains_key("config"), "{graph:?}");
+    assert!(
+        graph.contains_key("jobs") && graph.contains_key("config"),
+        "{graph:?}"
+    );
     let found = cycles(&graph);
     let pending: Vec<Vec<String>> = PENDING
         .iter()
@@ -203,7 +206,10 @@ fn no_library_module_imports_the_command_line() {
         .filter(|(m, edges)| *m != "cli" && edges.contains("cli"))
         .map(|(m, _)| m)
         .collect();
-    assert!(offenders.is_empty(), "library modules importing cli: {offenders:?}");
+    assert!(
+        offenders.is_empty(),
+        "library modules importing cli: {offenders:?}"
+    );
 }
 
 #[test]

@@ -31,10 +31,7 @@ pub fn main(
         &cfg,
         &path,
         &super::command_line(),
-        EnsembleOptions {
-            shard,
-            threads,
-        },
+        EnsembleOptions { shard, threads },
         &super::progress::Bar::new(),
         &ck,
     )?;

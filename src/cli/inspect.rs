@@ -5,6 +5,7 @@ use crate::error::Error;
 use crate::output::summary::{self, Details, FileSummary};
 use crate::output::NcReader;
 use std::fmt::Write;
+use std::io::Write as _;
 use std::path::Path;
 
 /// Print what the file is, how it was made, its dimensions and key results.
@@ -12,13 +13,21 @@ pub fn main(path: &Path, json: bool) -> Result<(), Error> {
     let r = NcReader::open(path)?;
     crate::output::damage::icefold_kind(&r)?;
     let s = summary::summarize(&r)?;
-    if json {
-        let text = serde_json::to_string_pretty(&s).map_err(|e| Error::Other(format!("cannot write JSON: {e}")))?;
-        println!("{text}");
+    let out = if json {
+        let mut t =
+            serde_json::to_string_pretty(&s).map_err(|e| Error::Other(format!("cannot write JSON: {e}")))?;
+        t.push('\n');
+        t
     } else {
-        print!("{}", text(&s));
+        text(&s)
+    };
+    // A reader that stops early (`| head`) is not an error.
+    match std::io::stdout().lock().write_all(out.as_bytes()) {
+        Err(e) if e.kind() != std::io::ErrorKind::BrokenPipe => {
+            Err(Error::Other(format!("cannot write to stdout: {e}")))
+        }
+        _ => Ok(()),
     }
-    Ok(())
 }
 
 /// The summary as text.
@@ -70,7 +79,14 @@ pub fn text(f: &FileSummary) -> String {
     let dims: Vec<String> = f
         .dimensions
         .iter()
-        .map(|d| format!("{}={}{}", d.name, d.length, if d.unlimited { " (unlimited)" } else { "" }))
+        .map(|d| {
+            format!(
+                "{}={}{}",
+                d.name,
+                d.length,
+                if d.unlimited { " (unlimited)" } else { "" }
+            )
+        })
         .collect();
     let _ = writeln!(s, "dimensions: {}", dims.join(", "));
     match &f.details {
@@ -129,21 +145,35 @@ fn list(items: Vec<String>) -> String {
 }
 
 fn ensemble(e: &summary::EnsembleFacts, s: &mut String) {
-    let shard = e.shard.as_ref().map(|k| format!(", shard {k}")).unwrap_or_default();
+    let shard = e
+        .shard
+        .as_ref()
+        .map(|k| format!(", shard {k}"))
+        .unwrap_or_default();
     let _ = writeln!(
         s,
         "members:    {} (from {} of {}), seed {}{shard}",
         e.members, e.member_first, e.members_total, e.seed
     );
     for k in &e.sampled {
-        let _ = writeln!(s, "sampled:    {} {} (drawn {:.4} to {:.4})", k.key, k.distribution, k.min, k.max);
+        let _ = writeln!(
+            s,
+            "sampled:    {} {} (drawn {:.4} to {:.4})",
+            k.key, k.distribution, k.min, k.max
+        );
     }
     let spread = |v: &summary::Spread| match (v.min, v.median, v.max) {
         (Some(a), Some(m), Some(b)) => format!("{a:.4} / {m:.4} / {b:.4}"),
         _ => "(none)".into(),
     };
     for v in &e.final_values {
-        let _ = writeln!(s, "final {} (min / median / max): {} {}", v.name, spread(v), v.units);
+        let _ = writeln!(
+            s,
+            "final {} (min / median / max): {} {}",
+            v.name,
+            spread(v),
+            v.units
+        );
     }
     for v in &e.diagnostics {
         let _ = writeln!(s, "{} (min / median / max): {} {}", v.name, spread(v), v.units);

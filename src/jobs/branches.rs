@@ -62,8 +62,7 @@ fn seeds(cfg: &Loaded, exec: &mut Executor<'_>, progress: BranchesProgress) -> R
     let fam = family(cfg, "branches.control", &spec.control, [spec.from, spec.to])?;
     let mut opts = ContinuationOptions::from_spec(spec, cfg.spec.equilibrium.tolerance_wm2);
     exec.count_from(progress.seeds_done as f64);
-    let mut on_seed =
-        |p: &BranchesProgress| exec.after(p.seeds_done as f64, false, |r| restart::save(p, r));
+    let mut on_seed = |p: &BranchesProgress| exec.after(p.seeds_done as f64, false, |r| restart::save(p, r));
     if spec.spacing == AxisSpacing::Log {
         // Continue in q = ln(p); the progress (and its checkpoints) stays in q, the result is
         // mapped back to the key's values.
@@ -77,7 +76,10 @@ fn seeds(cfg: &Loaded, exec: &mut Executor<'_>, progress: BranchesProgress) -> R
 }
 
 fn how_far(run: &BranchesRun) -> String {
-    format!("stopped after seed {} of {}", run.progress.seeds_done, run.seeds_total)
+    format!(
+        "stopped after seed {} of {}",
+        run.progress.seeds_done, run.seeds_total
+    )
 }
 
 /// Controls of branches traced in `fam`'s variable mapped to the key's values: points and
@@ -133,13 +135,28 @@ pub fn branches_job(
         breaks: &run.set.breaks,
     };
     let reached = vec![
-        ("seeds_done".to_string(), Attr::I64(run.progress.seeds_done as i64)),
+        (
+            "seeds_done".to_string(),
+            Attr::I64(run.progress.seeds_done as i64),
+        ),
         ("seeds_total".to_string(), Attr::I64(run.seeds_total as i64)),
     ];
     let failure = run.error.take().map(|e| (e.to_string(), continuation_error(e)));
     let prov = provenance(cfg, command_line);
-    exec.finish(failure, reached, || how_far(&run), |c| {
-        Ok(write_branches_with(path, &model, &prov, &info, &run.set.branches, c)?)
-    })?;
+    exec.finish(
+        failure,
+        reached,
+        || how_far(&run),
+        |c| {
+            Ok(write_branches_with(
+                path,
+                &model,
+                &prov,
+                &info,
+                &run.set.branches,
+                c,
+            )?)
+        },
+    )?;
     Ok(run.set)
 }

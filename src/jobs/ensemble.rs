@@ -113,7 +113,12 @@ fn member_configs(cfg: &Loaded, plan: &Plan) -> Result<Vec<Loaded>, Error> {
         .par_iter()
         .enumerate()
         .map(|(i, values)| {
-            let pairs: Vec<(&str, f64)> = plan.keys.iter().map(String::as_str).zip(values.iter().copied()).collect();
+            let pairs: Vec<(&str, f64)> = plan
+                .keys
+                .iter()
+                .map(String::as_str)
+                .zip(values.iter().copied())
+                .collect();
             cfg.with_values(&pairs).map_err(|e| {
                 let sampled: Vec<String> = pairs.iter().map(|(k, v)| format!("{k} = {v}")).collect();
                 Error::Usage(format!(
@@ -143,8 +148,14 @@ fn members(
         None => f(),
     };
     let mut results: Vec<MemberResult> = match &resume {
-        Some(r) => restart::restore(r, plan.range.clone(), plan.width * plan.times.len(), plan.spec.sensitivity, &plan.samples)
-            .map_err(Error::Restart)?,
+        Some(r) => restart::restore(
+            r,
+            plan.range.clone(),
+            plan.width * plan.times.len(),
+            plan.spec.sensitivity,
+            &plan.samples,
+        )
+        .map_err(Error::Restart)?,
         None => Vec::new(),
     };
     exec.begin(plan.range.len() as u64, "members", results.len() as f64);
@@ -216,9 +227,20 @@ pub fn ensemble_job(
     let (mut exec, resume) = Executor::new(cfg, MEMBERS, ck, Some(path), progress)?;
     let data = members(cfg, opts, &mut exec, resume)?;
     let reached = vec![("members_done".into(), Attr::I64(data.count() as i64))];
-    exec.finish(None, reached, || how_far(&data), |c| {
-        Ok(ensemble_file::write_with(path, &data, command_line, opts.shard, c)?)
-    })?;
+    exec.finish(
+        None,
+        reached,
+        || how_far(&data),
+        |c| {
+            Ok(ensemble_file::write_with(
+                path,
+                &data,
+                command_line,
+                opts.shard,
+                c,
+            )?)
+        },
+    )?;
     Ok(EnsembleReport {
         members: data.count(),
         failed: data.failures.len(),

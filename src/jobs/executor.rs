@@ -80,7 +80,9 @@ impl Ending {
         match self {
             Ending::Finished => return Completion::finished(),
             Ending::Failed(m) => reached.push(("failure".into(), Attr::Str(m.clone()))),
-            Ending::Stopped(sig) => reached.push(("interrupted_by".into(), Attr::Str(signal_name(*sig).into()))),
+            Ending::Stopped(sig) => {
+                reached.push(("interrupted_by".into(), Attr::Str(signal_name(*sig).into())))
+            }
         }
         Completion::partial(reached)
     }
@@ -260,7 +262,12 @@ impl<'p> Executor<'p> {
         };
         if let Some(sig) = self.stopped {
             let restart = checkpoint::restart_path(out);
-            return Err(interrupted(sig, how_far(), out, self.saved.then_some(restart.as_path())));
+            return Err(interrupted(
+                sig,
+                how_far(),
+                out,
+                self.saved.then_some(restart.as_path()),
+            ));
         }
         if self.every.is_some() || self.resuming {
             let _ = std::fs::remove_file(checkpoint::restart_path(out));
@@ -278,7 +285,10 @@ pub fn interrupted(signal: i32, reached: String, path: &Path, restart: Option<&P
         path.display()
     );
     if let Some(r) = restart {
-        reached.push_str(&format!("; to continue, repeat the command with --resume {}", r.display()));
+        reached.push_str(&format!(
+            "; to continue, repeat the command with --resume {}",
+            r.display()
+        ));
     }
     Error::Interrupted { signal, reached }
 }

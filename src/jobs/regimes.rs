@@ -118,7 +118,8 @@ fn rows(
         if log {
             fam = fam.in_log();
         }
-        let mut row = regime_row(&fam, copts, &row_columns, q).map_err(|e| continuation_error(e, &spec.row_control, q))?;
+        let mut row = regime_row(&fam, copts, &row_columns, q)
+            .map_err(|e| continuation_error(e, &spec.row_control, q))?;
         for f in &mut row.folds {
             f.control = fam.key_value(f.control);
         }
@@ -131,7 +132,11 @@ fn rows(
         restart::restore(r, &columns, &values, &mut done).map_err(Error::Restart)?;
     }
     let todo: Vec<usize> = (0..values.len()).filter(|&i| done[i].is_none()).collect();
-    exec.begin(values.len() as u64, "regime rows", (values.len() - todo.len()) as f64);
+    exec.begin(
+        values.len() as u64,
+        "regime rows",
+        (values.len() - todo.len()) as f64,
+    );
     let bar = exec.progress();
     let mut failure: Option<Error> = None;
     for part in todo.chunks(exec.chunk(todo.len())) {
@@ -159,7 +164,9 @@ fn rows(
             }
         }
         let finished = done.iter().filter(|r| r.is_some()).count();
-        let stop = exec.after(finished as f64, finished == values.len(), |r| restart::save(r, &columns, &done));
+        let stop = exec.after(finished as f64, finished == values.len(), |r| {
+            restart::save(r, &columns, &done)
+        });
         if stop || failure.is_some() {
             break;
         }
@@ -215,11 +222,17 @@ pub fn regimes_job(
     let (spec, model) = (regimes_spec(cfg)?, build_model(cfg)?);
     let reached = vec![
         ("rows_done".to_string(), Attr::I64(map.rows.len() as i64)),
-        ("rows_total".to_string(), Attr::I64(spec.row_values().len() as i64)),
+        (
+            "rows_total".to_string(),
+            Attr::I64(spec.row_values().len() as i64),
+        ),
     ];
     let prov = provenance(cfg, command_line);
-    exec.finish(failure, reached, || how_far(&map, cfg), |c| {
-        Ok(write_regimes_with(path, &model, &prov, spec, &map, c)?)
-    })?;
+    exec.finish(
+        failure,
+        reached,
+        || how_far(&map, cfg),
+        |c| Ok(write_regimes_with(path, &model, &prov, spec, &map, c)?),
+    )?;
     Ok(map)
 }

@@ -178,7 +178,10 @@ pub fn run_job(
     writer.set_attr("steps", Attr::I64(summary.stats.steps as i64))?;
     writer.set_attr("rhs_evaluations", Attr::I64(summary.stats.rhs_evals as i64))?;
     if let Some(sig) = exec.stopped() {
-        writer.set_attr("interrupted_by", Attr::Str(crate::interrupt::signal_name(sig).into()))?;
+        writer.set_attr(
+            "interrupted_by",
+            Attr::Str(crate::interrupt::signal_name(sig).into()),
+        )?;
         writer.finish(false)?;
     } else {
         for (name, value) in super::diagnostics::run_attrs(cfg, &model, &y0, &writer.regression()) {
@@ -200,7 +203,9 @@ fn replay(r: &Restart, n: usize, means: bool, rec: &mut Recording<'_, '_>) -> Re
     let (ts, ys) = (r.f64s("record.t").map_err(bad)?, r.f64s("record.y").map_err(bad)?);
     let done = r.u64("records").map_err(bad)?;
     if ts.len() as u64 != done || ys.len() != ts.len() * n || done == 0 {
-        return Err(bad(r.bad("record arrays do not match the record count and the grid")));
+        return Err(bad(
+            r.bad("record arrays do not match the record count and the grid")
+        ));
     }
     if means {
         // Mean records cannot be recomputed from states: their values were saved.

@@ -74,7 +74,10 @@ fn steps(cfg: &Loaded, exec: &mut Executor<'_>, progress: SweepProgress) -> Resu
 fn how_far(r: &SweepResult, cfg: &Loaded) -> String {
     let last = r.steps.last().map_or(f64::NAN, |s| s.control);
     let total = cfg.spec.sweep.as_ref().map_or(0, |s| 2 * s.steps);
-    format!("stopped after sweep step {} of {total} (control {last})", r.steps.len())
+    format!(
+        "stopped after sweep step {} of {total} (control {last})",
+        r.steps.len()
+    )
 }
 
 /// Run the sweep and write the file at `path`.
@@ -113,7 +116,16 @@ pub fn sweep_job(
         failure,
         reached,
         || how_far(&run.result, cfg),
-        |c| Ok(write_sweep_with(path, &model, &provenance(cfg, command_line), spec, &run.result, c)?),
+        |c| {
+            Ok(write_sweep_with(
+                path,
+                &model,
+                &provenance(cfg, command_line),
+                spec,
+                &run.result,
+                c,
+            )?)
+        },
     )?;
     Ok(run.result)
 }

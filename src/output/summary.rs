@@ -618,7 +618,10 @@ fn sweep(r: &NcReader) -> Result<SweepFacts, OutputError> {
     let control = control(r)?;
     let tc = r.read_f64("tipping_control")?;
     let td = r.read_f64("tipping_direction")?;
-    let (lo, hi) = (r.read_f64("tipping_bracket_low")?, r.read_f64("tipping_bracket_high")?);
+    let (lo, hi) = (
+        r.read_f64("tipping_bracket_low")?,
+        r.read_f64("tipping_bracket_high")?,
+    );
     let tipping = tc
         .iter()
         .zip(&td)
@@ -671,7 +674,11 @@ fn branches(r: &NcReader) -> Result<BranchesFacts, OutputError> {
     for (b, &c) in counts.iter().enumerate() {
         let c = c as usize;
         for (k, side) in ["first", "last"].iter().enumerate() {
-            let at = if k == 0 { first } else { (first + c).saturating_sub(1) };
+            let at = if k == 0 {
+                first
+            } else {
+                (first + c).saturating_sub(1)
+            };
             let code = ends[k].get(b).copied();
             if code == Some(3.0) || code == Some(1.0) {
                 short_ends.push(ShortEnd {
@@ -703,7 +710,12 @@ fn branches(r: &NcReader) -> Result<BranchesFacts, OutputError> {
                 })
                 .collect(),
         );
-        asymmetric = Some(r.read_f64("branch_asymmetric")?.iter().filter(|v| **v != 0.0).count());
+        asymmetric = Some(
+            r.read_f64("branch_asymmetric")?
+                .iter()
+                .filter(|v| **v != 0.0)
+                .count(),
+        );
     }
     Ok(BranchesFacts {
         control: control_facts,
@@ -747,7 +759,9 @@ fn regimes(r: &NcReader) -> Result<RegimesFacts, OutputError> {
         .map(|n| (n, counts.iter().filter(|v| **v as usize == n).count()))
         .collect();
     let kinds_v = r.read_f64("stable_kinds")?;
-    let names = r.var_attr_str("stable_kinds", "flag_meanings")?.unwrap_or_default();
+    let names = r
+        .var_attr_str("stable_kinds", "flag_meanings")?
+        .unwrap_or_default();
     let kinds = names
         .split_whitespace()
         .enumerate()

@@ -6,8 +6,8 @@ use crate::config::spec::{EnsembleSpec, OutputMode};
 use crate::config::{ConfigError, Loaded};
 use crate::equilibrium::NewtonOptions;
 use crate::error::Error;
-use crate::integrate::driver::{self, Observer, ObserverError, RunError};
 use crate::grid::Grid;
+use crate::integrate::driver::{self, Observer, ObserverError, RunError};
 use crate::model::{Model, Workspace};
 use crate::output::ensemble_file::{EnsembleData, SensitivityColumns};
 use std::ops::Range;
@@ -185,7 +185,6 @@ pub(super) fn run_member(cfg: &Loaded, spec: &EnsembleSpec, times: usize) -> Mem
     }
 }
 
-
 /// The file content of the finished members (member order).
 pub(super) fn assemble(cfg: &Loaded, plan: &Plan, results: Vec<MemberResult>) -> EnsembleData {
     let (spec, range, n, width) = (&plan.spec, plan.range.clone(), plan.n, plan.width);
@@ -252,4 +251,3 @@ pub(super) fn assemble(cfg: &Loaded, plan: &Plan, results: Vec<MemberResult>) ->
     data.samples.truncate(count * data.keys.len());
     data
 }
-

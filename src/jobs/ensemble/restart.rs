@@ -116,4 +116,3 @@ pub(super) fn restore(
         })
         .collect())
 }
-
