@@ -7,7 +7,13 @@ mod common_cli;
 
 use common_cli::*;
 use icefold::interrupt::FAULT_ENV;
+use icefold::jobs::{Checkpointing, Progress};
 use std::process::Command;
+use std::sync::atomic::{AtomicU64, Ordering};
+use std::sync::Mutex;
+
+/// The in-process tests of this file take turns: the stop flag is process-wide.
+static IN_PROCESS: Mutex<()> = Mutex::new(());
 
 #[test]
 fn regimes_checkpoints_are_counted_once_each() {
@@ -107,7 +113,7 @@ fn a_checkpoint_that_cannot_be_written_is_exit_1_for_every_job() {
 
 #[test]
 fn a_job_in_memory_stopped_by_a_signal_says_so() {
-    // The only in-process test of this file: the stop flag is process-wide.
+    let _turn = IN_PROCESS.lock().unwrap_or_else(|e| e.into_inner());
     let cfg = icefold::config::load(std::path::Path::new(&config("sweep-solar.toml")), &[]).unwrap();
     icefold::interrupt::StopFlag.request(libc::SIGTERM);
     let e = icefold::jobs::sweep::run_sweep(&cfg).unwrap_err();
@@ -118,4 +124,63 @@ fn a_job_in_memory_stopped_by_a_signal_says_so() {
         text.contains("stopped after sweep step 1 of") && text.contains("no file written"),
         "{text}"
     );
+}
+
+/// A progress report that counts what it is told.
+#[derive(Default)]
+struct Counted {
+    started: Mutex<Vec<(u64, String)>>,
+    last: AtomicU64,
+    added: AtomicU64,
+    finished: AtomicU64,
+}
+
+impl Progress for Counted {
+    fn start(&self, total: u64, unit: &str) {
+        self.started.lock().unwrap().push((total, unit.to_string()));
+    }
+    fn set(&self, done: u64) {
+        self.last.store(done, Ordering::SeqCst);
+    }
+    fn add(&self, n: u64) {
+        self.added.fetch_add(n, Ordering::SeqCst);
+    }
+    fn finish(&self) {
+        self.finished.fetch_add(1, Ordering::SeqCst);
+    }
+}
+
+#[test]
+fn jobs_report_progress_through_the_trait() {
+    let _turn = IN_PROCESS.lock().unwrap_or_else(|e| e.into_inner());
+    let dir = tempdir("exec-progress");
+    let load = |name: &str, set: &str| {
+        icefold::config::load(std::path::Path::new(&config(name)), &[set.to_string()]).unwrap()
+    };
+    // A run: one unit per model year, the last position the end of the run.
+    let run = Counted::default();
+    let cfg = load("classic-step-albedo.toml", "time.years=10");
+    icefold::jobs::run::run_job(&cfg, &dir.join("r.nc"), "test", &run, &Checkpointing::default()).unwrap();
+    assert_eq!(*run.started.lock().unwrap(), [(10, "model years".to_string())]);
+    assert_eq!(run.last.load(Ordering::SeqCst), 10);
+    assert_eq!(run.finished.load(Ordering::SeqCst), 1);
+    // An ensemble on two threads: every member counted once.
+    let ens = Counted::default();
+    let cfg = load("ensemble-lhs.toml", "ensemble.members=6");
+    let opts = icefold::jobs::ensemble::EnsembleOptions {
+        shard: None,
+        threads: Some(2),
+    };
+    icefold::jobs::ensemble::ensemble_job(
+        &cfg,
+        &dir.join("e.nc"),
+        "test",
+        opts,
+        &ens,
+        &Checkpointing::default(),
+    )
+    .unwrap();
+    assert_eq!(*ens.started.lock().unwrap(), [(6, "members".to_string())]);
+    assert_eq!(ens.added.load(Ordering::SeqCst), 6);
+    assert_eq!(ens.finished.load(Ordering::SeqCst), 1);
 }

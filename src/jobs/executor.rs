@@ -234,7 +234,6 @@ impl<'p> Executor<'p> {
         how_far: impl FnOnce() -> String,
         write: impl FnOnce(&Completion) -> Result<(), Error>,
     ) -> Result<(), Error> {
-        self.progress.finish();
         self.check_saved()?;
         let ending = match (&failure, self.stopped) {
             (Some((text, _)), _) => Ending::Failed(text.clone()),
