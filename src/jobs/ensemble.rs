@@ -11,12 +11,13 @@
 mod member;
 mod restart;
 
+pub use super::merge::merge_files;
+
 use super::executor::{Checkpointing, Executor, Progress, Quiet, Unit};
 use crate::checkpoint::Restart;
 use crate::config::{ConfigError, Loaded};
 use crate::ensemble::{sample, shard_range};
 use crate::error::Error;
-use crate::interrupt::StopFlag;
 use crate::model::Model;
 use crate::output::ensemble_file::{self, EnsembleData};
 use crate::output::Attr;
@@ -246,35 +247,4 @@ pub fn ensemble_job(
         failed: data.failures.len(),
         first_member: data.first_member,
     })
-}
-
-/// Merge shard files into the file a single run writes.
-pub fn merge_files(inputs: &[std::path::PathBuf], output: &Path, command_line: &str) -> Result<usize, Error> {
-    let mut parts = Vec::new();
-    for p in inputs {
-        let complete = crate::output::NcReader::open(p)
-            .ok()
-            .and_then(|r| r.attr_i64("complete").ok().flatten());
-        if complete == Some(0) {
-            return Err(Error::Usage(format!(
-                "cannot merge {}: it is an incomplete file (complete = 0); finish it first (--resume)",
-                p.display()
-            )));
-        }
-        let (d, _) =
-            ensemble_file::read(p).map_err(|e| Error::Usage(format!("cannot merge {}: {e}", p.display())))?;
-        parts.push((p.display().to_string(), d));
-    }
-    let data = ensemble_file::join(parts).map_err(|e| Error::Usage(format!("cannot merge: {e}")))?;
-    if let Some(signal) = StopFlag.requested() {
-        return Err(Error::Interrupted {
-            signal,
-            reached: format!(
-                "stopped while reading the shards ({}); no file written",
-                crate::interrupt::signal_name(signal)
-            ),
-        });
-    }
-    ensemble_file::write(output, &data, command_line, None)?;
-    Ok(data.count())
 }

@@ -8,6 +8,7 @@ pub mod diagnostics;
 pub mod ensemble;
 pub mod equilibrium;
 pub mod executor;
+pub mod merge;
 pub mod pictures;
 pub mod regimes;
 pub mod run;
