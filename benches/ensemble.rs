@@ -79,7 +79,7 @@ fn seasonal(c: &mut Criterion) {
     g.bench_function("run_to_file", |b| {
         b.iter(|| {
             black_box(
-                icefold::jobs::run::run_to_file(&cfg, &out, "bench", false)
+                icefold::jobs::run::run_to_file(&cfg, &out, "bench")
                     .unwrap()
                     .final_global_mean,
             )

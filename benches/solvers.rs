@@ -260,16 +260,9 @@ fn workloads(c: &mut Criterion) {
     });
     // Two-way sweep: 121 values of S0 each way, settled, tipping points refined.
     let cfg = load("sweep-solar.toml", &[]);
-    tally("sweep", || icefold::jobs::sweep::run_sweep(&cfg, false).unwrap());
+    tally("sweep", || icefold::jobs::sweep::run_sweep(&cfg).unwrap());
     g.bench_function("sweep_121x2_90bands", |b| {
-        b.iter(|| {
-            black_box(
-                icefold::jobs::sweep::run_sweep(&cfg, false)
-                    .unwrap()
-                    .tipping
-                    .len(),
-            )
-        })
+        b.iter(|| black_box(icefold::jobs::sweep::run_sweep(&cfg).unwrap().tipping.len()))
     });
     // Full continuation curve (every branch, folds located).
     let cfg = load("branches-solar.toml", &[]);
@@ -292,17 +285,13 @@ fn workloads(c: &mut Criterion) {
     // the second control), rows spread over 1 and 2 threads; counted on one thread (the same
     // work on any number).
     let cfg = load("regimes-classic.toml", &[]);
-    let one = icefold::jobs::regimes::RegimesOptions {
-        threads: Some(1),
-        ..Default::default()
-    };
+    let one = icefold::jobs::regimes::RegimesOptions { threads: Some(1) };
     tally("regimes", || {
         icefold::jobs::regimes::run_regimes(&cfg, one).unwrap()
     });
     for threads in [1usize, 2] {
         let opts = icefold::jobs::regimes::RegimesOptions {
             threads: Some(threads),
-            ..Default::default()
         };
         g.bench_with_input(BenchmarkId::new("regimes_21x141", threads), &threads, |b, _| {
             b.iter(|| black_box(icefold::jobs::regimes::run_regimes(&cfg, opts).unwrap()))

@@ -165,7 +165,7 @@ impl<'a> Reader<'a> {
 /// control characters escaped so the message stays one line.
 pub fn shorten(s: &str) -> String {
     let cut: String = s.chars().take(40).collect();
-    let cut = crate::config::one_line(&cut).into_owned();
+    let cut = crate::text::one_line(&cut).into_owned();
     if s.chars().count() <= 40 {
         cut
     } else {

@@ -1,6 +1,7 @@
 //! The top-level error: one variant per layer, each mapped to a documented exit status
 //! (0 success, 2 bad input, 3 numerical failure, 1 other; 130/143 interrupted by SIGINT/SIGTERM).
 
+use crate::checkpoint::RestartError;
 use crate::config::ConfigError;
 use crate::integrate::driver::RunError;
 use crate::integrate::SolverError;
@@ -27,6 +28,13 @@ pub enum Error {
     /// Numerical failure (exit 3).
     #[error("numerical failure: {0}")]
     Solver(#[from] SolverError),
+    /// A restart file that cannot be resumed from: unreadable, damaged, of another command or
+    /// made with another config (exit 2).
+    #[error("{0}")]
+    Restart(RestartError),
+    /// A checkpoint could not be written (exit 1; the job stops without writing its output).
+    #[error("{0}")]
+    Checkpoint(RestartError),
     /// Interrupted by a signal (exit 128 + signal).
     #[error("interrupted by signal {signal}: {reached}")]
     Interrupted {
@@ -62,7 +70,10 @@ impl From<RunError> for Error {
             RunError::Solver(s) => Error::Solver(s),
             RunError::Output(o) => match o.downcast::<OutputError>() {
                 Ok(oe) => Error::from(*oe),
-                Err(other) => Error::Other(other.to_string()),
+                Err(other) => match other.downcast::<RestartError>() {
+                    Ok(re) => Error::Checkpoint(*re),
+                    Err(other) => Error::Other(other.to_string()),
+                },
             },
         }
     }
@@ -72,10 +83,14 @@ impl Error {
     /// The process exit status for this error.
     pub fn exit_code(&self) -> i32 {
         match self {
-            Error::Config(_) | Error::Usage(_) | Error::OutputPath(_) | Error::BadFile(_) => 2,
+            Error::Config(_)
+            | Error::Usage(_)
+            | Error::OutputPath(_)
+            | Error::BadFile(_)
+            | Error::Restart(_) => 2,
             Error::Solver(_) => 3,
             Error::Interrupted { signal, .. } => 128 + signal,
-            Error::Output(_) | Error::Other(_) => 1,
+            Error::Output(_) | Error::Checkpoint(_) | Error::Other(_) => 1,
         }
     }
 }

@@ -36,3 +36,4 @@ pub mod physics;
 pub mod plot;
 pub mod quadrature;
 pub mod tally;
+pub mod text;

@@ -34,7 +34,7 @@ fn run(dir: &Path, name: &str, config: &str, sets: &[&str]) -> NcReader {
     let sets: Vec<String> = sets.iter().map(|s| s.to_string()).collect();
     let cfg = config::load(&cfg_path, &sets).unwrap_or_else(|e| panic!("{name}: {e}"));
     let out = dir.join(format!("{name}.nc"));
-    icefold::jobs::run::run_to_file(&cfg, &out, "test", false).unwrap();
+    icefold::jobs::run::run_to_file(&cfg, &out, "test").unwrap();
     NcReader::open(&out).unwrap()
 }
 

@@ -46,10 +46,7 @@ max_step = 0.01
 }
 
 fn serial() -> RegimesOptions {
-    RegimesOptions {
-        threads: Some(1),
-        progress: false,
-    }
+    RegimesOptions { threads: Some(1) }
 }
 
 #[test]
@@ -137,14 +134,7 @@ fn several_stable_states_only_between_the_fold_lines() {
 fn one_and_two_threads_give_the_same_map() {
     let cfg = classic();
     let a = run_regimes(&cfg, serial()).unwrap();
-    let b = run_regimes(
-        &cfg,
-        RegimesOptions {
-            threads: Some(2),
-            progress: false,
-        },
-    )
-    .unwrap();
+    let b = run_regimes(&cfg, RegimesOptions { threads: Some(2) }).unwrap();
     assert_eq!(a, b);
 }
 

@@ -240,7 +240,7 @@ fn seasonal_run_reaches_a_periodic_state() {
         ],
     )
     .unwrap();
-    icefold::jobs::run::run_to_file(&cfg, &path, "test", false).unwrap();
+    icefold::jobs::run::run_to_file(&cfg, &path, "test").unwrap();
     let r = NcReader::open(&path).unwrap();
     let t = r.read_f64("time").unwrap();
     let g = r.read_f64("global_mean_temperature").unwrap();
@@ -263,7 +263,7 @@ fn seasonal_run_reaches_a_periodic_state() {
         &["grid.bands=45".into(), "time.years=3".into()],
     )
     .unwrap();
-    icefold::jobs::run::run_to_file(&cfg, &path, "test", false).unwrap();
+    icefold::jobs::run::run_to_file(&cfg, &path, "test").unwrap();
     let r = NcReader::open(&path).unwrap();
     let south = r.read_f64("ice_edge_latitude_south").unwrap();
     let (lo, hi) = south[12..]
@@ -310,7 +310,7 @@ fn annual_means_are_time_integrals_of_the_trajectory() {
     let mut sets = common.to_vec();
     sets.extend(["time.output=every_step".into(), "time.step_days=0.02".into()]);
     let fine = config::load(&cfg_path, &sets).unwrap();
-    icefold::jobs::run::run_to_file(&fine, &ref_path, "test", false).unwrap();
+    icefold::jobs::run::run_to_file(&fine, &ref_path, "test").unwrap();
     let rr = NcReader::open(&ref_path).unwrap();
     let t_ref = rr.read_f64("time").unwrap();
     let names = [
@@ -344,7 +344,7 @@ fn annual_means_are_time_integrals_of_the_trajectory() {
             text
         };
         let cfg = config::load_str(&text, "seasonal", Path::new("."), &sets).unwrap();
-        let report = icefold::jobs::run::run_to_file(&cfg, &mean_path, "test", false).unwrap();
+        let report = icefold::jobs::run::run_to_file(&cfg, &mean_path, "test").unwrap();
         let rm = NcReader::open(&mean_path).unwrap();
         assert_eq!(rm.read_f64("time").unwrap(), [0.5, 1.5, 2.5]);
         assert_eq!(rm.read_f64("time_bnds").unwrap(), [0.0, 1.0, 1.0, 2.0, 2.0, 3.0]);
@@ -398,7 +398,7 @@ fn annual_mean_of_a_sinusoidal_forcing_matches_the_exact_integral() {
             format!("time.output_every_years={every}"),
         ];
         let cfg = config::load_str(text, "sine", Path::new("."), &sets).unwrap();
-        icefold::jobs::run::run_to_file(&cfg, &path, "test", false).unwrap();
+        icefold::jobs::run::run_to_file(&cfg, &path, "test").unwrap();
         let r = NcReader::open(&path).unwrap();
         let gmt = r.read_f64("global_mean_temperature").unwrap();
         let absorbed = r.read_f64("global_mean_absorbed_sunlight").unwrap();
@@ -447,7 +447,7 @@ fn every_step_records_each_step_and_the_choices_are_checked() {
     let mut sets = common.to_vec();
     sets.push("time.output=every_step".into());
     let every = config::load(&cfg_path, &sets).unwrap();
-    let report = icefold::jobs::run::run_to_file(&every, &inst_path, "test", false).unwrap();
+    let report = icefold::jobs::run::run_to_file(&every, &inst_path, "test").unwrap();
     let r = NcReader::open(&inst_path).unwrap();
     let times = r.read_f64("time").unwrap();
     assert_eq!(times.len() as u64, report.summary.stats.steps + 1);

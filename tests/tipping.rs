@@ -360,7 +360,7 @@ fn slope_stability_theorem_holds_and_eigenvalues_change_sign_at_folds() {
 
 /// The sweep of a config and the control values of every fold and corner its continuation finds.
 fn sweep_and_folds(cfg: &Loaded) -> (SweepResult, Vec<f64>) {
-    let sweep = icefold::jobs::sweep::run_sweep(cfg, false).unwrap();
+    let sweep = icefold::jobs::sweep::run_sweep(cfg).unwrap();
     let branches = icefold::jobs::branches::run_branches(cfg).unwrap();
     let folds = branches
         .branches
@@ -648,7 +648,7 @@ fn co2_sweep(from: f64, to: f64, steps: usize, spacing: &str) -> (Loaded, SweepR
     ];
     let sets: Vec<&str> = sets.iter().map(|s| s.as_str()).collect();
     let cfg = load(&config_text("emission-level-co2.toml"), &sets);
-    let sweep = icefold::jobs::sweep::run_sweep(&cfg, false).unwrap();
+    let sweep = icefold::jobs::sweep::run_sweep(&cfg).unwrap();
     (cfg, sweep)
 }
 
@@ -752,7 +752,7 @@ fn sweep_tipping_points_agree_with_the_folds_at_every_step_count() {
             let sets = [format!("sweep.steps={n}"), format!("sweep.spacing=\"{spacing}\"")];
             let sets: Vec<&str> = sets.iter().map(|s| s.as_str()).collect();
             let cfg = load(&config_text("sweep-solar.toml"), &sets);
-            let s = icefold::jobs::sweep::run_sweep(&cfg, false).unwrap();
+            let s = icefold::jobs::sweep::run_sweep(&cfg).unwrap();
             let rel = cfg.spec.sweep.as_ref().unwrap().refine_relative;
             assert_tipping_on_folds(&format!("solar n={n} {spacing}"), &s, &sfolds, rel, 1, 2);
         }

@@ -23,7 +23,13 @@ pub fn main(out_dir: &Path) -> Result<(), Error> {
     let cfg = config::load(&out_dir.join("demo-kessra.toml"), &[])?;
     let file = out_dir.join("kessra-run.nc");
     let _ = std::fs::remove_file(&file);
-    let report = jobs::run::run_to_file(&cfg, &file, &super::command_line(), super::show_progress())?;
+    let report = jobs::run::run_job(
+        &cfg,
+        &file,
+        &super::command_line(),
+        &super::progress::Bar::new(),
+        &Default::default(),
+    )?;
     info!(
         "icefold demo: {} model years in {} steps; final global mean {:.1} K, ice edge {:.1} degrees N",
         report.summary.t_end,

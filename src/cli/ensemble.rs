@@ -31,11 +31,8 @@ pub fn main(
         &cfg,
         &path,
         &super::command_line(),
-        EnsembleOptions {
-            shard,
-            threads,
-            progress: super::show_progress(),
-        },
+        EnsembleOptions { shard, threads },
+        &super::progress::Bar::new(),
         &ck,
     )?;
     info!(

@@ -236,6 +236,9 @@ pub enum Command {
     Inspect {
         /// The file.
         file: PathBuf,
+        /// Print the summary as JSON (the same facts, typed).
+        #[arg(long)]
+        json: bool,
     },
     /// Draw the pictures of an output file (SVG and PNG).
     Plot {
@@ -363,7 +366,7 @@ fn dispatch(cli: Cli) -> Result<(), Error> {
             overwrite,
         } => merge::main(&files, &output, overwrite),
         Command::Check { config } => check::main(&config),
-        Command::Inspect { file } => inspect::main(&file),
+        Command::Inspect { file, json } => inspect::main(&file, json),
         Command::Demo { out_dir } => demo::main(&out_dir),
         Command::Plot { file, out_dir } => plot::main(&file, out_dir.as_deref()),
         Command::Export(args) => export::main(&args),

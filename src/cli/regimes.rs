@@ -15,12 +15,16 @@ pub fn main(
     super::check_threads(threads)?;
     let cfg = super::load(args)?;
     let path = super::output_path_resuming(out, &args.config, "regimes", resume.resume.is_some())?;
-    let opts = RegimesOptions {
-        threads,
-        progress: super::show_progress(),
-    };
+    let opts = RegimesOptions { threads };
     let ck = resume.checkpointing(checkpoint_every.map(|n| n as f64));
-    let map = regimes_job(&cfg, &path, &super::command_line(), opts, &ck)?;
+    let map = regimes_job(
+        &cfg,
+        &path,
+        &super::command_line(),
+        opts,
+        &super::progress::Bar::new(),
+        &ck,
+    )?;
     let folds: usize = map.rows.iter().map(|r| r.folds.len()).sum();
     let most = map
         .rows

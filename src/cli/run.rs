@@ -15,7 +15,13 @@ pub fn main(
     let cfg = super::load(args)?;
     let path = super::output_path_resuming(out, &args.config, "run", resume.resume.is_some())?;
     let ck = resume.checkpointing(checkpoint_every);
-    let report = jobs::run::run_job(&cfg, &path, &super::command_line(), super::show_progress(), &ck)?;
+    let report = jobs::run::run_job(
+        &cfg,
+        &path,
+        &super::command_line(),
+        &super::progress::Bar::new(),
+        &ck,
+    )?;
     info!(
         "icefold: wrote {} ({} records, {} steps, {} right-hand-side evaluations); final global mean {:.3} K, ice edge {:.2} degrees N; {:.2} ms stepping of {:.2} ms in all",
         path.display(),

@@ -16,7 +16,13 @@ pub fn main(
     let cfg = super::load(args)?;
     let path = super::output_path_resuming(out, &args.config, "sweep", resume.resume.is_some())?;
     let ck = resume.checkpointing(checkpoint_every.map(|n| n as f64));
-    let r = sweep_job(&cfg, &path, &super::command_line(), super::show_progress(), &ck)?;
+    let r = sweep_job(
+        &cfg,
+        &path,
+        &super::command_line(),
+        &super::progress::Bar::new(),
+        &ck,
+    )?;
     let tips: Vec<String> = r
         .tipping
         .iter()

@@ -73,23 +73,8 @@ pub enum ConfigError {
     },
 }
 
-/// `s` with control characters (newlines, tabs, NUL...) escaped, so every message is one line.
-pub fn one_line(s: &str) -> std::borrow::Cow<'_, str> {
-    if s.chars().any(char::is_control) {
-        s.chars()
-            .map(|c| {
-                if c.is_control() {
-                    c.escape_default().to_string()
-                } else {
-                    c.to_string()
-                }
-            })
-            .collect::<String>()
-            .into()
-    } else {
-        s.into()
-    }
-}
+/// `s` with control characters escaped, so every message is one line (see [`crate::text`]).
+pub use crate::text::one_line;
 
 /// A loaded configuration: the resolved raw values (every default filled in), the typed spec,
 /// and the resolved TOML text.

@@ -176,6 +176,13 @@ pub struct EquilibriumSpec {
     pub sensitivity: bool,
 }
 
+/// Deflate level of the writer by default (`output.deflate_level`): 1 keeps most of the size
+/// gain of the usual 4 at 20 % fewer instructions per streamed record (measured with callgrind
+/// on a run file).
+pub const DEFAULT_DEFLATE_LEVEL: u8 = 1;
+/// Highest zlib deflate level (smallest files, slowest).
+pub const MAX_DEFLATE_LEVEL: u8 = 9;
+
 /// `[output]`, validated.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub struct OutputSpec {

@@ -710,8 +710,8 @@ pub fn validate(mut raw: RawConfig, source: &str, base_dir: &Path) -> Result<(Ra
     let o = &mut raw.output;
     let level = o
         .deflate_level
-        .unwrap_or(i64::from(crate::output::DEFAULT_DEFLATE_LEVEL));
-    let max_level = crate::output::MAX_DEFLATE_LEVEL;
+        .unwrap_or(i64::from(super::spec::DEFAULT_DEFLATE_LEVEL));
+    let max_level = super::spec::MAX_DEFLATE_LEVEL;
     if !(0..=i64::from(max_level)).contains(&level) {
         return Err(c.range_err(
             "output.deflate_level",

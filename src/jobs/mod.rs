@@ -1,59 +1,23 @@
 //! Whole jobs behind the commands (run, equilibrium, sweep, ...): model, solver and file put
-//! together, reachable from tests without the command line.
+//! together, reachable from tests without the command line. The long jobs (run, sweep,
+//! branches, ensemble, regimes) describe their unit of work; [`executor`] owns the loop around
+//! it (checkpoints, stop, progress, partial file, typed errors).
 
 pub mod branches;
 pub mod diagnostics;
 pub mod ensemble;
 pub mod equilibrium;
+pub mod executor;
+pub mod merge;
 pub mod pictures;
 pub mod regimes;
 pub mod run;
 pub mod sweep;
 
+pub use executor::{Checkpointing, Progress, Quiet};
+
 use crate::config::{ConfigError, Loaded};
 use crate::error::Error;
-use crate::output::common::Completion;
-use crate::output::Attr;
-
-/// How a job that may stop early ended: the attributes its file gets besides how far it got.
-pub(crate) enum Ending {
-    /// Finished: `complete = 1`.
-    Finished,
-    /// A numerical failure (its message goes into `failure`).
-    Failed(String),
-    /// Stopped by this signal (its name goes into `interrupted_by`).
-    Stopped(i32),
-}
-
-impl Ending {
-    /// How a job ended from its error (if any), whether it was stopped, and by which signal
-    /// (SIGINT when unknown); an error outranks a stop.
-    pub(crate) fn of(
-        error: Option<&impl std::fmt::Display>,
-        stopped: bool,
-        stopped_by: Option<i32>,
-    ) -> Ending {
-        match (error, stopped) {
-            (Some(e), _) => Ending::Failed(e.to_string()),
-            (None, true) => Ending::Stopped(stopped_by.unwrap_or(libc::SIGINT)),
-            (None, false) => Ending::Finished,
-        }
-    }
-
-    /// The file's completion: finished, or partial with `reached` (how far the job got) and
-    /// `failure` or `interrupted_by`.
-    pub(crate) fn completion(&self, mut reached: Vec<(String, Attr)>) -> Completion {
-        match self {
-            Ending::Finished => return Completion::finished(),
-            Ending::Failed(m) => reached.push(("failure".into(), Attr::Str(m.clone()))),
-            Ending::Stopped(sig) => reached.push((
-                "interrupted_by".into(),
-                Attr::Str(crate::interrupt::signal_name(*sig).into()),
-            )),
-        }
-        Completion::partial(reached)
-    }
-}
 
 /// A validated control section (`[sweep]`, `[branches]`, `[regimes]`) with both ends (`ends`
 /// of the section: from and to) given, or a config error naming what is missing.

@@ -1,20 +1,19 @@
 //! The `run` job: build the model, integrate, stream the trajectory to a file; with
-//! checkpoints, resume and a clean stop on SIGINT/SIGTERM (shared helpers for the other jobs).
+//! checkpoints, resume and a clean stop on SIGINT/SIGTERM (through [`super::executor`]).
 
-use crate::checkpoint::{self, Restart, RestartError};
-use crate::cli::progress;
+use super::executor::{Executor, Progress, Quiet, Unit};
+use crate::checkpoint::{Restart, RestartError};
 use crate::config::Loaded;
 use crate::error::Error;
 use crate::integrate::driver::ObserverError;
 use crate::integrate::driver::{self, Boundary, Flow, RunError, RunSummary, Stepper};
 use crate::integrate::Observer;
-use crate::interrupt::StopFlag;
 use crate::model::Model;
 use crate::output::common::Provenance;
 use crate::output::run_file::RunWriter;
 use crate::output::Attr;
 use std::cell::RefCell;
-use std::path::{Path, PathBuf};
+use std::path::Path;
 
 /// What a finished run reports.
 #[derive(Debug, Clone)]
@@ -42,52 +41,7 @@ pub fn build_model(cfg: &Loaded) -> Result<Model, Error> {
     Ok(Model::from_spec(&cfg.spec.model))
 }
 
-/// Checkpoint and resume settings of a job (`--checkpoint-every*`, `--resume`).
-#[derive(Debug, Clone, Default, PartialEq)]
-pub struct Checkpointing {
-    /// Checkpoint interval: model years for `run`, steps for `sweep`, branches for
-    /// `branches`, members for `ensemble`. `None`: no checkpoints.
-    pub every: Option<f64>,
-    /// Restart file to continue from.
-    pub resume: Option<PathBuf>,
-}
-
-impl Checkpointing {
-    /// Load the restart file to resume from, if any, checked against `kind` and the config.
-    pub fn load(&self, kind: &str, cfg: &Loaded) -> Result<Option<Restart>, Error> {
-        self.resume
-            .as_ref()
-            .map(|p| Restart::load(p, kind, &cfg.resolved_text()).map_err(restart_error))
-            .transpose()
-    }
-}
-
-/// A restart file that cannot be used is bad input (exit 2).
-pub fn restart_error(e: RestartError) -> Error {
-    Error::Usage(e.to_string())
-}
-
-/// The message of an interrupted job: how far it got, where the partial file is, and how to
-/// continue when a checkpoint was written.
-pub fn interrupted(signal: i32, reached: String, path: &Path, restart: Option<&Path>) -> Error {
-    let mut reached = format!(
-        "{reached} ({}); wrote the partial output {} with complete = 0",
-        crate::interrupt::signal_name(signal),
-        path.display()
-    );
-    if let Some(r) = restart {
-        reached.push_str(&format!(
-            "; to continue, repeat the command with --resume {}",
-            r.display()
-        ));
-    }
-    Error::Interrupted { signal, reached }
-}
-
-/// Remove the restart file of a finished job (nothing to resume any more).
-pub fn remove_restart(path: &Path) {
-    let _ = std::fs::remove_file(checkpoint::restart_path(path));
-}
+pub use super::executor::{interrupted, Checkpointing};
 
 /// Records seen so far (times and states; with annual means also each record's values), for
 /// checkpoints.
@@ -130,82 +84,55 @@ impl Observer for Recording<'_, '_> {
     }
 }
 
-/// Checkpoints every `every` model years and stops on a signal.
-struct RunHooks<'a> {
-    every: Option<f64>,
-    next_at: f64,
-    restart: PathBuf,
-    config_text: String,
+/// After each record: checkpoints (the stepper and the records so far) and the stop flag.
+struct RunHooks<'a, 'p> {
+    exec: &'a mut Executor<'p>,
     history: &'a RefCell<History>,
-    stopped: Option<i32>,
-    saved_at: Option<f64>,
 }
 
-impl RunHooks<'_> {
-    fn save(&mut self, t: f64, records: u64, stepper: &Stepper<'_>) -> Result<(), RunError> {
-        let mut r = Restart::new("run", &self.config_text);
-        let h = self.history.borrow();
-        r.put_u64("records", &[records]);
-        r.put_f64("record.t", &h.t);
-        r.put_f64("record.y", &h.y);
-        if !h.means.is_empty() {
-            r.put_f64("record.means", &h.means);
-        }
-        stepper.save(&mut r);
-        r.save(&self.restart).map_err(|e| RunError::Output(Box::new(e)))?;
-        self.saved_at = Some(t);
-        Ok(())
-    }
-}
-
-impl Boundary for RunHooks<'_> {
+impl Boundary for RunHooks<'_, '_> {
     fn at(&mut self, t: f64, records: u64, stepper: &Stepper<'_>) -> Result<Flow, RunError> {
-        let stop = StopFlag.requested();
-        if let Some(every) = self.every {
-            if t >= self.next_at || stop.is_some() {
-                self.save(t, records, stepper)?;
-                self.next_at = ((t / every).floor() + 1.0) * every;
+        let h = self.history.borrow();
+        let stop = self.exec.after(t, false, |r| {
+            r.put_u64("records", &[records]);
+            r.put_f64("record.t", &h.t);
+            r.put_f64("record.y", &h.y);
+            if !h.means.is_empty() {
+                r.put_f64("record.means", &h.means);
             }
-        }
-        if let Some(sig) = stop {
-            self.stopped = Some(sig);
-            return Ok(Flow::Stop);
-        }
-        Ok(Flow::Continue)
+            stepper.save(r);
+        });
+        Ok(if stop { Flow::Stop } else { Flow::Continue })
     }
 }
+
+/// The run's unit of work: a record, checkpointed every `--checkpoint-every` model years.
+const RECORDS: Unit = Unit {
+    kind: "run",
+    option: "--checkpoint-every",
+    counts: None,
+};
 
 /// Run and write the file at `path`. On a numerical failure the records computed so far are
 /// kept in a complete, readable file marked `complete = 0` with the failure message, and the
 /// error is returned (exit 3).
-pub fn run_to_file(
-    cfg: &Loaded,
-    path: &Path,
-    command_line: &str,
-    show_progress: bool,
-) -> Result<RunReport, Error> {
-    run_job(cfg, path, command_line, show_progress, &Checkpointing::default())
+pub fn run_to_file(cfg: &Loaded, path: &Path, command_line: &str) -> Result<RunReport, Error> {
+    run_job(cfg, path, command_line, &Quiet, &Checkpointing::default())
 }
 
-/// [`run_to_file`] with checkpoints every `ck.every` model years into `<path>.restart` and/or
-/// resuming from `ck.resume`. On SIGINT/SIGTERM the run stops after the next record and keeps
-/// the records so far in a file marked `complete = 0` with `model_time_reached_years`
-/// (with checkpoints, a last checkpoint is written there and the message says how to resume).
+/// [`run_to_file`] with progress, checkpoints every `ck.every` model years into
+/// `<path>.restart` and/or resuming from `ck.resume`. On SIGINT/SIGTERM the run stops after
+/// the next record and keeps the records so far in a file marked `complete = 0` with
+/// `model_time_reached_years` (with checkpoints, a last checkpoint is written there and the
+/// message says how to resume).
 pub fn run_job(
     cfg: &Loaded,
     path: &Path,
     command_line: &str,
-    show_progress: bool,
+    progress: &dyn Progress,
     ck: &Checkpointing,
 ) -> Result<RunReport, Error> {
-    if let Some(e) = ck.every {
-        if !(e > 0.0) || !e.is_finite() {
-            return Err(Error::Usage(format!(
-                "--checkpoint-every {e}: give a positive number of model years"
-            )));
-        }
-    }
-    let resume = ck.load("run", cfg)?;
+    let (mut exec, resume) = Executor::new(cfg, RECORDS, ck, Some(path), progress)?;
     let model = build_model(cfg)?;
     let y0 = model.initial_state(&cfg.spec.initial);
     let mut writer = RunWriter::create(path, &model, &provenance(cfg, command_line))?;
@@ -217,117 +144,89 @@ pub fn run_job(
     let history = RefCell::new(History::default());
     let keep = ck.every.is_some();
     let mut stepper = Stepper::new(&model, time, &y0);
-    let (mut done, mut last) = (0, y0.clone());
-    if let Some(r) = &resume {
-        let n = model.len();
-        let (ts, ys) = (
-            r.f64s("record.t").map_err(restart_error)?,
-            r.f64s("record.y").map_err(restart_error)?,
-        );
-        done = r.u64("records").map_err(restart_error)?;
-        if ts.len() as u64 != done || ys.len() != ts.len() * n || done == 0 {
-            return Err(restart_error(
-                r.bad("record arrays do not match the record count and the grid"),
-            ));
-        }
-        stepper.restore(r).map_err(restart_error)?;
-        let mut rec = Recording {
-            inner: &mut writer,
-            history: keep.then_some(&history),
-        };
-        if means {
-            // Mean records cannot be recomputed from states: their values were saved.
-            let values = r.f64s("record.means").map_err(restart_error)?;
-            let width = values.len() / ts.len();
-            if width * ts.len() != values.len() {
-                return Err(restart_error(
-                    r.bad("record.means does not match the record count"),
-                ));
-            }
-            for ((t, y), v) in ts.iter().zip(ys.chunks_exact(n)).zip(values.chunks_exact(width)) {
-                rec.inner.replay_mean(t - 1.0, *t, v, y)?;
-                if let Some(h) = rec.history {
-                    let mut h = h.borrow_mut();
-                    h.t.push(*t);
-                    h.y.extend_from_slice(y);
-                    h.means.extend_from_slice(v);
-                }
-            }
-        } else {
-            for (t, y) in ts.iter().zip(ys.chunks_exact(n)) {
-                rec.record(*t, y).map_err(|e| Error::from(RunError::Output(e)))?;
-            }
-        }
-        last = ys[ys.len() - n..].to_vec();
-    }
-    let pb = if show_progress {
-        progress::bar(1, "model years")
-    } else {
-        indicatif::ProgressBar::hidden()
-    };
-    pb.set_length((time.years.ceil() as u64).max(1));
-    let mut on_progress = |t: f64| pb.set_position(t as u64);
-    let restart = checkpoint::restart_path(path);
-    let mut hooks = RunHooks {
-        every: ck.every,
-        next_at: ck.every.map_or(f64::INFINITY, |e| {
-            let t = history.borrow().t.last().copied().unwrap_or(0.0);
-            if done == 0 {
-                e
-            } else {
-                ((t / e).floor() + 1.0) * e
-            }
-        }),
-        restart: restart.clone(),
-        config_text: cfg.resolved_text(),
-        history: &history,
-        stopped: None,
-        saved_at: None,
-    };
-    let mut obs = Recording {
+    let mut rec = Recording {
         inner: &mut writer,
         history: keep.then_some(&history),
     };
-    let result = driver::run_from(time, stepper, done, &last, &mut obs, &mut on_progress, &mut hooks);
-    pb.finish_and_clear();
-    let (stopped, saved) = (hooks.stopped, hooks.saved_at.is_some());
-    match result {
-        Ok(summary) => {
-            writer.set_attr("steps", Attr::I64(summary.stats.steps as i64))?;
-            writer.set_attr("rhs_evaluations", Attr::I64(summary.stats.rhs_evals as i64))?;
-            if let Some(sig) = stopped {
-                writer.set_attr(
-                    "interrupted_by",
-                    Attr::Str(crate::interrupt::signal_name(sig).into()),
-                )?;
-                writer.finish(false)?;
-                return Err(interrupted(
-                    sig,
-                    format!("stopped at model time {} years", summary.t_end),
-                    path,
-                    saved.then_some(restart.as_path()),
-                ));
-            }
-            for (name, value) in super::diagnostics::run_attrs(cfg, &model, &y0, &writer.regression()) {
-                writer.set_attr(name, value)?;
-            }
-            writer.finish(true)?;
-            if keep || resume.is_some() {
-                remove_restart(path);
-            }
-            let final_global_mean = model.global_mean(&summary.final_state);
-            let final_ice_edge_north = model.ice_edges_at(summary.t_end, &summary.final_state).0;
-            Ok(RunReport {
-                summary,
-                final_global_mean,
-                final_ice_edge_north,
-            })
+    let (done, last) = match &resume {
+        Some(r) => {
+            stepper.restore(r).map_err(Error::Restart)?;
+            replay(r, model.len(), means, &mut rec)?
         }
+        None => (0, y0.clone()),
+    };
+    let t0 = history.borrow().t.last().copied().unwrap_or(0.0);
+    exec.begin((time.years.ceil() as u64).max(1), "model years", t0);
+    let bar = exec.progress();
+    let mut on_progress = |t: f64| bar.set(t as u64);
+    let mut hooks = RunHooks {
+        exec: &mut exec,
+        history: &history,
+    };
+    let result = driver::run_from(time, stepper, done, &last, &mut rec, &mut on_progress, &mut hooks);
+    bar.finish();
+    exec.check_saved()?;
+    let summary = match result {
+        Ok(summary) => summary,
         Err(RunError::Solver(e)) => {
             writer.set_attr("failure", Attr::Str(e.to_string()))?;
             writer.finish(false)?;
-            Err(Error::Solver(e))
+            return Err(Error::Solver(e));
         }
-        Err(e) => Err(Error::from(e)),
+        Err(e) => return Err(Error::from(e)),
+    };
+    writer.set_attr("steps", Attr::I64(summary.stats.steps as i64))?;
+    writer.set_attr("rhs_evaluations", Attr::I64(summary.stats.rhs_evals as i64))?;
+    if let Some(sig) = exec.stopped() {
+        writer.set_attr(
+            "interrupted_by",
+            Attr::Str(crate::interrupt::signal_name(sig).into()),
+        )?;
+        writer.finish(false)?;
+    } else {
+        for (name, value) in super::diagnostics::run_attrs(cfg, &model, &y0, &writer.regression()) {
+            writer.set_attr(name, value)?;
+        }
+        writer.finish(true)?;
     }
+    exec.end(None, || format!("stopped at model time {} years", summary.t_end))?;
+    Ok(RunReport {
+        final_global_mean: model.global_mean(&summary.final_state),
+        final_ice_edge_north: model.ice_edges_at(summary.t_end, &summary.final_state).0,
+        summary,
+    })
+}
+
+/// Replay the records of a restart file through the writer: `(records, last state)`.
+fn replay(r: &Restart, n: usize, means: bool, rec: &mut Recording<'_, '_>) -> Result<(u64, Vec<f64>), Error> {
+    let bad = |e: RestartError| Error::Restart(e);
+    let (ts, ys) = (r.f64s("record.t").map_err(bad)?, r.f64s("record.y").map_err(bad)?);
+    let done = r.u64("records").map_err(bad)?;
+    if ts.len() as u64 != done || ys.len() != ts.len() * n || done == 0 {
+        return Err(bad(
+            r.bad("record arrays do not match the record count and the grid")
+        ));
+    }
+    if means {
+        // Mean records cannot be recomputed from states: their values were saved.
+        let values = r.f64s("record.means").map_err(bad)?;
+        let width = values.len() / ts.len();
+        if width * ts.len() != values.len() {
+            return Err(bad(r.bad("record.means does not match the record count")));
+        }
+        for ((t, y), v) in ts.iter().zip(ys.chunks_exact(n)).zip(values.chunks_exact(width)) {
+            rec.inner.replay_mean(t - 1.0, *t, v, y)?;
+            if let Some(h) = rec.history {
+                let mut h = h.borrow_mut();
+                h.t.push(*t);
+                h.y.extend_from_slice(y);
+                h.means.extend_from_slice(v);
+            }
+        }
+    } else {
+        for (t, y) in ts.iter().zip(ys.chunks_exact(n)) {
+            rec.record(*t, y).map_err(|e| Error::from(RunError::Output(e)))?;
+        }
+    }
+    Ok((done, ys[ys.len() - n..].to_vec()))
 }

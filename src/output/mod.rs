@@ -43,6 +43,7 @@ pub mod equilibrium_file;
 mod reader;
 pub mod regimes_file;
 pub mod run_file;
+pub mod summary;
 pub mod sweep_file;
 mod writer;
 

@@ -28,11 +28,8 @@ use ndarray::{ArrayView, IxDyn};
 
 use super::{ds, OutputError, NOT_A_VARIABLE};
 
-/// Deflate level of [`NcWriter::create`]: 1 keeps most of the size gain of the usual 4 at
-/// 20 % fewer instructions per streamed record (measured with callgrind on a run file).
-pub const DEFAULT_DEFLATE_LEVEL: u8 = 1;
-/// Highest zlib deflate level (smallest files, slowest).
-pub const MAX_DEFLATE_LEVEL: u8 = 9;
+/// The deflate levels the config allows (declared beside `[output]`'s spec).
+pub use crate::config::spec::{DEFAULT_DEFLATE_LEVEL, MAX_DEFLATE_LEVEL};
 /// Fixed-size variables with at least this many values are chunked and compressed.
 const COMPRESS_MIN_VALUES: usize = 4096;
 /// Upper bound on the values in one chunk of a fixed-size variable (1 MiB of `f64`).
