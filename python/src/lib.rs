@@ -87,6 +87,19 @@ fn to_toml(obj: &Bound<'_, PyAny>, key: &str) -> PyResult<toml::Value> {
     )))
 }
 
+/// The `--set KEY=VALUE` argument of a value: a string bare when the command line would read it
+/// back as that string (as a user types `--set albedo.kind=smooth`, so that messages naming the
+/// argument read the same), otherwise the value as TOML.
+fn set_arg(key: &str, value: toml::Value) -> String {
+    if let toml::Value::String(s) = &value {
+        let reads_as_text = toml::from_str::<toml::Table>(&format!("v = {s}")).is_err();
+        if reads_as_text && s.trim() == s && !s.is_empty() {
+            return format!("{key}={s}");
+        }
+    }
+    format!("{key}={value}")
+}
+
 /// A loaded, validated configuration (`icefold.load` in the Python layer).
 #[pyclass(frozen, module = "icefold._native")]
 struct Config {
@@ -109,7 +122,7 @@ fn load(
             let key: String = k.extract().map_err(|_| {
                 PyTypeError::new_err(format!("set: keys must be dotted key strings, not {k:?}"))
             })?;
-            set_args.push(format!("{key}={}", to_toml(&v, &key)?));
+            set_args.push(set_arg(&key, to_toml(&v, &key)?));
         }
     }
     let text;
