@@ -11,13 +11,15 @@ the file the command writes::
 
 Errors raise ``ConfigError`` (bad input, the command's exit status 2), ``NumericalError`` (exit
 3; ``.dataset`` holds the partial file the command keeps, marked ``complete = 0``) or
-``IcefoldError`` (others), with the command's messages.
+``IcefoldError`` (others), with the command's messages; Ctrl-C stops a job at its next step
+boundary and raises ``Interrupted`` (a ``KeyboardInterrupt``) with the partial file.
 """
 
 from __future__ import annotations
 
 import io
 import os
+import threading
 import warnings
 from dataclasses import dataclass
 from typing import Any, Mapping
@@ -41,6 +43,7 @@ __all__ = [
     "IcefoldError",
     "ConfigError",
     "NumericalError",
+    "Interrupted",
     "IcefoldWarning",
     "__version__",
 ]
@@ -76,6 +79,14 @@ class NumericalError(IcefoldError, ArithmeticError):
     dataset: xr.Dataset | None = None
 
 
+class Interrupted(IcefoldError, KeyboardInterrupt):
+    """A job stopped by Ctrl-C (KeyboardInterrupt) at a step boundary; ``dataset`` holds the
+    partial file the command keeps when stopped (``complete = 0``), or None."""
+
+    exit_code = 130
+    dataset: xr.Dataset | None = None
+
+
 class IcefoldWarning(UserWarning):
     """A likely mistake in valid input (the command line prints it as a warning)."""
 
@@ -84,8 +95,8 @@ def _raise(failure: _native.Failure) -> None:
     code, message, image = failure.args
     if code == 2:
         raise ConfigError(message, code) from None
-    if code == 3:
-        err = NumericalError(message, code)
+    if code in (3, 130):
+        err = (NumericalError if code == 3 else Interrupted)(message, code)
         err.dataset = open_bytes(image) if image is not None else None
         raise err from None
     raise IcefoldError(message, code) from None
@@ -155,11 +166,38 @@ def _describe(command: str, config: Any, set: Mapping[str, Any] | None, extra: d
 def _job(command: str, config: Any, set: Mapping[str, Any] | None, **extra) -> xr.Dataset:
     cfg = load_config(config, set)
     line = _describe(command, config, set, extra)
+    kwargs = {k: v for k, v in extra.items() if v is not None}
+    # The job runs in a worker thread (it releases the GIL) so that Ctrl-C reaches this one:
+    # then every running job is asked to stop at its next step boundary, as the command does
+    # on SIGINT, and this raises Interrupted with the partial file.
+    # (An Event, not Thread.join: a join interrupted by Ctrl-C can return early in Python 3.11.)
+    result: dict = {}
+    done = threading.Event()
+
+    def work():
+        try:
+            result["image"] = cfg.compute(command, line, **kwargs)
+        except BaseException as e:  # handed to the calling thread
+            result["error"] = e
+        finally:
+            done.set()
+
+    threading.Thread(target=work, name=f"icefold.{command}", daemon=True).start()
     try:
-        image = cfg.compute(command, line, **{k: v for k, v in extra.items() if v is not None})
-    except _native.Failure as f:
-        _raise(f)
-    return open_bytes(image)
+        while not done.wait(0.1):
+            pass
+    except KeyboardInterrupt:
+        _native.request_stop(True)
+        done.wait()
+        _native.request_stop(False)
+        if "image" in result:  # finished before it saw the request
+            raise
+    error = result.get("error")
+    if isinstance(error, _native.Failure):
+        _raise(error)
+    if error is not None:
+        raise error
+    return open_bytes(result["image"])
 
 
 def run(config: Any, set: Mapping[str, Any] | None = None) -> xr.Dataset:

@@ -72,6 +72,8 @@ pub struct Outcome {
     pub image: Option<Vec<u8>>,
     /// The error the command would have reported.
     pub error: Option<Error>,
+    /// The in-memory target the job wrote to (messages name it as the output path).
+    pub target: std::path::PathBuf,
 }
 
 /// The starting climate named as on the command line (`--start`).
@@ -99,6 +101,7 @@ pub fn compute(cfg: &Loaded, job: &Job, command_line: &str) -> Outcome {
     Outcome {
         image: take_memory_image(&target),
         error: result.err(),
+        target,
     }
 }
 
@@ -140,6 +143,17 @@ fn check_threads(threads: Option<usize>) -> Result<(), Error> {
     match threads {
         Some(0) => Err(Error::Usage("threads 0: give at least 1 worker thread".into())),
         _ => Ok(()),
+    }
+}
+
+/// Asks running jobs to stop at their next step boundary as on SIGINT (Ctrl-C in Python), or
+/// forgets that request.
+pub fn request_stop(stop: bool) {
+    let flag = icefold::interrupt::StopFlag;
+    if stop {
+        flag.request(libc::SIGINT);
+    } else {
+        flag.clear();
     }
 }
 

@@ -27,11 +27,26 @@ create_exception!(
 /// The exception of an icefold error: its command-line exit status and message, and the bytes
 /// of the partial file the job kept (numerical failures), if any.
 fn failure(py: Python<'_>, e: &icefold::error::Error, image: Option<Vec<u8>>) -> PyErr {
+    failure_at(py, e, image, None)
+}
+
+/// [`failure`] of a job that wrote at the in-memory `target`, which its message names as
+/// "(in memory)" (the partial file is the exception's dataset).
+fn failure_at(
+    py: Python<'_>,
+    e: &icefold::error::Error,
+    image: Option<Vec<u8>>,
+    target: Option<&std::path::Path>,
+) -> PyErr {
+    let mut message = e.to_string();
+    if let Some(t) = target {
+        message = message.replace(&t.display().to_string(), "(in memory: the exception's dataset)");
+    }
     let image: Py<PyAny> = match image {
         Some(b) => PyBytes::new(py, &b).into_any().unbind(),
         None => py.None(),
     };
-    Failure::new_err((e.exit_code(), e.to_string(), image))
+    Failure::new_err((e.exit_code(), message, image))
 }
 
 /// A Python value as a TOML value; `key` names it in messages.
@@ -193,7 +208,7 @@ impl Config {
         let outcome = py.detach(|| jobs::compute(loaded, &job, command_line));
         match (outcome.error, outcome.image) {
             (None, Some(image)) => Ok(PyBytes::new(py, &image)),
-            (Some(e), image) => Err(failure(py, &e, image)),
+            (Some(e), image) => Err(failure_at(py, &e, image, Some(&outcome.target))),
             (None, None) => Err(PyException::new_err(format!(
                 "icefold {command} finished without a file"
             ))),
@@ -305,11 +320,19 @@ impl Model {
     }
 }
 
+/// Ask every running job to stop at its next step boundary as on Ctrl-C (`stop=True`), or
+/// forget the request (`stop=False`).
+#[pyfunction]
+fn request_stop(stop: bool) {
+    jobs::request_stop(stop);
+}
+
 #[pymodule]
 fn _native(m: &Bound<'_, PyModule>) -> PyResult<()> {
     m.add("Failure", m.py().get_type::<Failure>())?;
     m.add("version", icefold::output::common::VERSION)?;
     m.add_function(wrap_pyfunction!(load, m)?)?;
+    m.add_function(wrap_pyfunction!(request_stop, m)?)?;
     m.add_class::<Config>()?;
     m.add_class::<Model>()?;
     Ok(())

@@ -9,6 +9,7 @@ Needs the icefold binary (fixture `icefold_bin`) and the installed package.
 
 from __future__ import annotations
 
+import _thread
 import threading
 import time
 import tomllib
@@ -144,6 +145,26 @@ def test_numerical_failure_raises_with_the_message_and_the_partial_file(tmp_path
     assert int(partial.attrs["complete"]) == 0
     with xr.open_dataset(tmp_path / "b.nc", engine="h5netcdf") as cli:
         xr.testing.assert_identical(_without_volatile(partial), _without_volatile(cli.load()))
+
+
+def test_ctrl_c_stops_a_job_and_keeps_the_partial_file():
+    # interrupt_main delivers what Ctrl-C delivers (a SIGINT as KeyboardInterrupt in the main
+    # thread); the job stops at a step boundary as the command does on SIGINT.
+    timer = threading.Timer(0.3, _thread.interrupt_main)
+    timer.start()
+    start = time.perf_counter()
+    with pytest.raises(icefold.Interrupted) as err:
+        icefold.run(CONFIGS / "classic-step-albedo.toml", set={"time.years": 1e7})
+    timer.join()
+    assert isinstance(err.value, KeyboardInterrupt) and err.value.exit_code == 130
+    assert "SIGINT" in str(err.value) and "(in memory" in str(err.value)
+    partial = err.value.dataset
+    assert int(partial.attrs["complete"]) == 0 and partial.attrs["interrupted_by"] == "SIGINT"
+    assert 0 < partial.sizes["time"] and float(partial.time[-1]) < 1e7
+    # 1e7 model years take minutes; stopped, the call returns within seconds.
+    assert time.perf_counter() - start < 60
+    # The stop request is forgotten: the next job runs to the end.
+    assert int(icefold.run(CONFIGS / "classic-step-albedo.toml", set={"time.years": 3}).attrs["complete"]) == 1
 
 
 def test_gil_is_released_while_a_job_computes():
