@@ -4,6 +4,9 @@ CARGO ?= cargo
 VENV := .venv
 PY := $(VENV)/bin/python
 BIN := target/release/icefold
+## The command-line tool built with the whole workspace and the Python package's build environment,
+## so that it shares every compiled crate with the package (scripts/ensure-python-env.sh).
+BUILD_WITH_PACKAGE = env $$(scripts/ensure-python-env.sh --cargo-env) $(CARGO) build --release --workspace
 
 .PHONY: demo test test-rust test-python deps pyenv build bench bench-compare gallery clippy fmt clean
 
@@ -13,16 +16,18 @@ BIN := target/release/icefold
 demo: deps
 	$(CARGO) run --release -- demo --out-dir icefold-demo
 
-## Every test: Rust unit and integration tests, then the Python reference checks.
+## Every test: Rust unit and integration tests, then the Python reference checks and the tests of
+## the Python package (built and installed into .venv by `pyenv`).
 test: deps pyenv
-	$(CARGO) build --release
+	$(BUILD_WITH_PACKAGE)
 	$(CARGO) test --release
 	ICEFOLD_BIN=$(CURDIR)/$(BIN) $(PY) -m pytest -q tests/python
 
 test-rust: deps
 	$(CARGO) test --release
 
-test-python: deps pyenv build
+test-python: deps pyenv
+	$(BUILD_WITH_PACKAGE)
 	ICEFOLD_BIN=$(CURDIR)/$(BIN) $(PY) -m pytest -q tests/python
 
 ## Regenerate outputs-demo/: the demo and a file and pictures from every example config.
@@ -33,7 +38,8 @@ gallery: deps
 deps:
 	@scripts/ensure-system-deps.sh
 
-pyenv:
+## The Python environment .venv with the reference libraries and the `icefold` package (python/).
+pyenv: deps
 	@scripts/ensure-python-env.sh
 
 build: deps

@@ -48,7 +48,10 @@ pub mod sweep_file;
 mod writer;
 
 pub use reader::NcReader;
-pub use writer::{forbid_replacing, Attr, NcGroup, NcWriter, DEFAULT_DEFLATE_LEVEL, MAX_DEFLATE_LEVEL};
+pub use writer::{
+    forbid_replacing, memory_target, take_memory_image, Attr, NcGroup, NcWriter, DEFAULT_DEFLATE_LEVEL,
+    MAX_DEFLATE_LEVEL,
+};
 
 use std::path::PathBuf;
 

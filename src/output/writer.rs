@@ -507,6 +507,9 @@ impl NcWriter {
                 level,
             });
         }
+        if memory::is_target(target) {
+            return Self::create_in_memory(target, level);
+        }
         let dir = match target.parent() {
             Some(d) if !d.as_os_str().is_empty() => d,
             _ => Path::new("."),
@@ -607,6 +610,9 @@ impl NcWriter {
         } = inner;
         drop(vars);
         drop(dims);
+        if memory::is_target(&path) {
+            return memory::keep_image(file, path);
+        }
         file.close().map_err(|source| OutputError::Hdf5 {
             path: path.clone(),
             object: "closing the file".to_owned(),
@@ -1214,6 +1220,209 @@ impl Inner {
     }
 }
 
+// In-memory files (for the Python package) ------------------------------------------------
+
+/// Writers whose target is an in-memory target ([`memory_target`]) write no file: HDF5's core
+/// driver keeps the file in memory with no backing store, and [`NcWriter::finish`] hands the
+/// finished file image to [`take_memory_image`] instead of renaming a temporary file.
+mod memory {
+    use super::{rewrite_superblock_checksum, File, OutputError};
+    use std::path::{Path, PathBuf};
+    use std::sync::Mutex;
+
+    /// Registered in-memory targets with the file image each finished writer left (`None`
+    /// while none finished).
+    static TARGETS: Mutex<Vec<(PathBuf, Option<Vec<u8>>)>> = Mutex::new(Vec::new());
+
+    /// Growth step of the core driver's buffer, bytes.
+    pub(super) const INCREMENT: usize = 1 << 20;
+
+    fn targets() -> std::sync::MutexGuard<'static, Vec<(PathBuf, Option<Vec<u8>>)>> {
+        TARGETS.lock().unwrap_or_else(|e| e.into_inner())
+    }
+
+    pub(super) fn register(path: PathBuf) {
+        targets().push((path, None));
+    }
+
+    pub(super) fn is_target(path: &Path) -> bool {
+        targets().iter().any(|(p, _)| p == path)
+    }
+
+    pub(super) fn take(path: &Path) -> Option<Vec<u8>> {
+        let mut list = targets();
+        let i = list.iter().position(|(p, _)| p == path)?;
+        list.swap_remove(i).1
+    }
+
+    /// Copies the file image of `file` (flushed by HDF5 first), closes the file and keeps the
+    /// image for [`take`].
+    pub(super) fn keep_image(file: File, path: PathBuf) -> Result<(), OutputError> {
+        let fail = |object: &str| OutputError::Hdf5 {
+            path: path.clone(),
+            object: object.to_owned(),
+            source: hdf5::Error::query().unwrap_or_else(|e| e),
+        };
+        let image = hdf5::sync::sync(|| {
+            // SAFETY: a valid file id; the first image call asks for the size, the second
+            // copies exactly that many bytes into a buffer of that length. The flush first
+            // writes the metadata cache into the image (without it the image has stale,
+            // checksum-failing metadata).
+            unsafe {
+                if hdf5_sys::h5f::H5Fflush(file.id(), hdf5_sys::h5f::H5F_scope_t::H5F_SCOPE_GLOBAL) < 0 {
+                    return None;
+                }
+                let size = hdf5_sys::h5f::H5Fget_file_image(file.id(), std::ptr::null_mut(), 0);
+                if size < 0 {
+                    return None;
+                }
+                let mut buf = vec![0u8; size as usize];
+                let got = hdf5_sys::h5f::H5Fget_file_image(file.id(), buf.as_mut_ptr().cast(), buf.len());
+                (got == size).then_some(buf)
+            }
+        })
+        .ok_or_else(|| fail("copying the in-memory file image"))?;
+        let mut image = image;
+        rewrite_superblock_checksum(&mut image);
+        file.close().map_err(|source| OutputError::Hdf5 {
+            path: path.clone(),
+            object: "closing the file".to_owned(),
+            source,
+        })?;
+        if let Some(slot) = targets().iter_mut().find(|(p, _)| *p == path) {
+            slot.1 = Some(image);
+        }
+        Ok(())
+    }
+}
+
+/// Writes the checksum of a version 2 or 3 superblock at the start of `image` afresh.
+///
+/// HDF5 1.10 (1.10.8 checked) leaves a checksum in the superblock of an image from
+/// `H5Fget_file_image` that does not match the superblock, so readers refuse the image
+/// ("incorrect metadata checksum"). Layout (HDF5 File Format Specification, "Superblock", from
+/// memory): signature (8 bytes), version, size of offsets, size of lengths, flags, four
+/// addresses, then the Jenkins lookup3 checksum of all bytes before it.
+pub(crate) fn rewrite_superblock_checksum(image: &mut [u8]) {
+    if image.len() < 12 || &image[..8] != b"\x89HDF\r\n\x1a\n" || !(2..=3).contains(&image[8]) {
+        return;
+    }
+    let n = 12 + 4 * usize::from(image[9]);
+    if image.len() >= n + 4 {
+        let sum = lookup3(&image[..n], 0);
+        image[n..n + 4].copy_from_slice(&sum.to_le_bytes());
+    }
+}
+
+/// Bob Jenkins' lookup3 `hashlittle` (public domain, 2006), the checksum of HDF5 metadata.
+pub(crate) fn lookup3(data: &[u8], init: u32) -> u32 {
+    fn mix(a: &mut u32, b: &mut u32, c: &mut u32) {
+        *a = a.wrapping_sub(*c) ^ c.rotate_left(4);
+        *c = c.wrapping_add(*b);
+        *b = b.wrapping_sub(*a) ^ a.rotate_left(6);
+        *a = a.wrapping_add(*c);
+        *c = c.wrapping_sub(*b) ^ b.rotate_left(8);
+        *b = b.wrapping_add(*a);
+        *a = a.wrapping_sub(*c) ^ c.rotate_left(16);
+        *c = c.wrapping_add(*b);
+        *b = b.wrapping_sub(*a) ^ a.rotate_left(19);
+        *a = a.wrapping_add(*c);
+        *c = c.wrapping_sub(*b) ^ b.rotate_left(4);
+        *b = b.wrapping_add(*a);
+    }
+    fn last(a: &mut u32, b: &mut u32, c: &mut u32) {
+        *c = (*c ^ *b).wrapping_sub(b.rotate_left(14));
+        *a = (*a ^ *c).wrapping_sub(c.rotate_left(11));
+        *b = (*b ^ *a).wrapping_sub(a.rotate_left(25));
+        *c = (*c ^ *b).wrapping_sub(b.rotate_left(16));
+        *a = (*a ^ *c).wrapping_sub(c.rotate_left(4));
+        *b = (*b ^ *a).wrapping_sub(a.rotate_left(14));
+        *c = (*c ^ *b).wrapping_sub(b.rotate_left(24));
+    }
+    let word = |w: &[u8]| {
+        let mut b = [0u8; 4];
+        b[..w.len()].copy_from_slice(w);
+        u32::from_le_bytes(b)
+    };
+    let start = 0xdead_beef_u32.wrapping_add(data.len() as u32).wrapping_add(init);
+    let (mut a, mut b, mut c) = (start, start, start);
+    let mut rest = data;
+    while rest.len() > 12 {
+        a = a.wrapping_add(word(&rest[0..4]));
+        b = b.wrapping_add(word(&rest[4..8]));
+        c = c.wrapping_add(word(&rest[8..12]));
+        mix(&mut a, &mut b, &mut c);
+        rest = &rest[12..];
+    }
+    if rest.is_empty() {
+        return c;
+    }
+    let mut tail = [0u8; 12];
+    tail[..rest.len()].copy_from_slice(rest);
+    a = a.wrapping_add(word(&tail[0..4]));
+    b = b.wrapping_add(word(&tail[4..8]));
+    c = c.wrapping_add(word(&tail[8..12]));
+    last(&mut a, &mut b, &mut c);
+    c
+}
+
+/// A new in-memory target: a writer created for this path (by any job given it as its output
+/// path) writes no file, and the bytes of the file it finished are taken with
+/// [`take_memory_image`]. `name` is the file name shown in messages.
+pub fn memory_target(name: &str) -> PathBuf {
+    let path = PathBuf::from(format!(
+        "/icefold-memory-{}-{}/{name}",
+        std::process::id(),
+        TEMP_SEQ.fetch_add(1, Ordering::Relaxed)
+    ));
+    memory::register(path.clone());
+    path
+}
+
+/// The finished file at an in-memory target (the netCDF-4/HDF5 bytes), and the target
+/// forgotten; `None` if no writer finished a file there.
+pub fn take_memory_image(target: &Path) -> Option<Vec<u8>> {
+    memory::take(target)
+}
+
+impl NcWriter {
+    /// [`NcWriter::create_with_deflate`] for an in-memory target: the same layout in a file
+    /// held by HDF5's core driver without backing store.
+    fn create_in_memory(target: &Path, level: u8) -> Result<NcWriter, OutputError> {
+        let file = File::with_options()
+            .with_fapl(|p| p.libver_v18().core_options(memory::INCREMENT, false))
+            .with_fcpl(|p| {
+                p.link_creation_order(LinkCreationOrder::Indexed)
+                    .attr_creation_order(AttrCreationOrder::Indexed)
+            })
+            .create(target)
+            .map_err(|source| OutputError::Create {
+                path: target.to_path_buf(),
+                temp: target.to_path_buf(),
+                source,
+            })?;
+        Ok(NcWriter {
+            inner: Inner {
+                vars: HashMap::new(),
+                dims: HashMap::new(),
+                file,
+                path: target.to_path_buf(),
+                filters: if level == 0 {
+                    Vec::new()
+                } else {
+                    vec![Filter::shuffle(), Filter::deflate(level)]
+                },
+            },
+            // Nothing on disk to delete.
+            temp: TempFile {
+                path: target.to_path_buf(),
+                armed: false,
+                replace: true,
+            },
+        })
+    }
+}
+
 #[cfg(test)]
 mod tests {
     //! Round trips through [`NcReader`]; the outside checks (xarray, h5py, netCDF4) are in
@@ -1774,6 +1983,52 @@ mod tests {
         let e = NcReader::open(&text).err().expect("must fail");
         assert!(matches!(e, OutputError::Open { .. }), "{e}");
         assert!(e.to_string().contains(&text.display().to_string()), "{e}");
+    }
+
+    #[test]
+    fn lookup3_reproduces_the_superblock_checksum_hdf5_writes() {
+        // Reference: the checksum HDF5 itself stored in a file written to disk.
+        let dir = TestDir::new("lookup3");
+        let path = dir.file("run.nc");
+        write_sample(&path, 3).unwrap();
+        let bytes = std::fs::read(&path).unwrap();
+        assert_eq!(
+            bytes[8], 2,
+            "superblock version 2 (library-version bounds from 1.8)"
+        );
+        let stored = u32::from_le_bytes(bytes[44..48].try_into().unwrap());
+        assert_eq!(lookup3(&bytes[..44], 0), stored);
+        let mut copy = bytes.clone();
+        rewrite_superblock_checksum(&mut copy);
+        assert_eq!(copy, bytes);
+        // Published test vector of lookup3 (hashlittle("", 0) = 0xdeadbeef, Jenkins 2006).
+        assert_eq!(lookup3(b"", 0), 0xdead_beef);
+    }
+
+    #[test]
+    fn in_memory_target_writes_no_file_and_hands_out_a_readable_image() {
+        let dir = TestDir::new("memory");
+        let target = memory_target("run.nc");
+        write_sample(&target, 70).unwrap();
+        assert!(!target.exists() && !target.parent().unwrap().exists());
+        let image = take_memory_image(&target).expect("a finished image");
+        assert_eq!(take_memory_image(&target), None, "taken once");
+        // The image must open (it failed with a stale superblock checksum before
+        // `rewrite_superblock_checksum`) and equal the file written to disk.
+        let on_disk = dir.file("disk.nc");
+        write_sample(&on_disk, 70).unwrap();
+        let copy = dir.file("image.nc");
+        std::fs::write(&copy, &image).unwrap();
+        let (a, b) = (NcReader::open(&copy).unwrap(), NcReader::open(&on_disk).unwrap());
+        assert_eq!(a.var_names().unwrap(), b.var_names().unwrap());
+        for v in ["lat", "lat_bnds", "time", "surface_temperature", "flag"] {
+            assert_eq!(a.read_f64(v).unwrap(), b.read_f64(v).unwrap(), "{v}");
+        }
+        assert_eq!(a.attr_names().unwrap(), b.attr_names().unwrap());
+        // A writer dropped unfinished leaves no image.
+        let target = memory_target("dropped.nc");
+        NcWriter::create(&target).unwrap().abandon();
+        assert_eq!(take_memory_image(&target), None);
     }
 }
 
