@@ -1035,7 +1035,14 @@ fn fixed_chunk(shape: &[usize]) -> Vec<usize> {
 
 /// Writes a scalar attribute on `loc`, replacing an existing one of the same name.
 fn write_attr(loc: &Location, name: &str, value: &Attr) -> hdf5::Result<()> {
-    if loc.attr_names()?.iter().any(|n| n == name) {
+    // One lookup by name (listing every attribute's name made each new attribute cost more).
+    let c = CString::new(name).map_err(|e| hdf5::Error::from(e.to_string()))?;
+    // SAFETY: a valid object id and a NUL-terminated name; the library lock is held.
+    let exists = hdf5::sync::sync(|| unsafe { hdf5_sys::h5a::H5Aexists(loc.id(), c.as_ptr()) });
+    if exists < 0 {
+        return Err(hdf5::Error::from(format!("cannot look up attribute `{name}`")));
+    }
+    if exists > 0 {
         loc.delete_attr(name)?;
     }
     match value {
@@ -2061,6 +2068,24 @@ mod tests {
         let r = NcReader::open(&path).unwrap();
         assert_eq!(r.attr_str("config").unwrap().unwrap(), text);
         assert_eq!(r.var_attr_str("x", "note").unwrap().unwrap(), text);
+    }
+
+    #[test]
+    fn setting_an_attribute_again_replaces_it() {
+        let dir = TestDir::new("reattr");
+        let path = dir.file("a.nc");
+        let mut w = NcWriter::create(&path).unwrap();
+        w.add_coordinate("x", &[0.0], &[]).unwrap();
+        w.set_attr_str("note", "first").unwrap();
+        w.set_attr_f64("other", 1.0).unwrap();
+        w.set_attr_i64("note", 2).unwrap();
+        w.set_var_attr_str("x", "units", "m").unwrap();
+        w.set_var_attr_str("x", "units", "km").unwrap();
+        w.finish().unwrap();
+        let r = NcReader::open(&path).unwrap();
+        assert_eq!(r.attr_i64("note").unwrap(), Some(2));
+        assert_eq!(r.attr_names().unwrap().iter().filter(|n| *n == "note").count(), 1);
+        assert_eq!(r.var_attr_str("x", "units").unwrap().as_deref(), Some("km"));
     }
 
     #[test]
