@@ -342,7 +342,6 @@ impl Packer {
             return Ok(());
         }
         let per_batch = batch_chunks(chunk_bytes);
-        let rank = dataset.ndim();
         for (b, batch) in bytes.chunks(per_batch * chunk_bytes).enumerate() {
             let n = batch.len().div_ceil(chunk_bytes);
             let bound = self.pack(batch, n, chunk_bytes, elem)?;
@@ -355,23 +354,21 @@ impl Packer {
                 } else {
                     self.packed[k * bound..].as_ptr()
                 };
-                // SAFETY: a valid dataset id, an offset array of at least `rank` entries, and
-                // `size` readable bytes at `ptr`; the library lock is held.
-                let rc = hdf5::sync::sync(|| unsafe {
-                    hdf5_sys::h5d::H5Dwrite_chunk(
-                        dataset.id(),
-                        hdf5_sys::h5p::H5P_DEFAULT,
-                        0,
-                        offset.as_ptr(),
-                        size,
-                        ptr.cast(),
-                    )
-                });
-                if rc < 0 {
-                    return Err(hdf5::Error::from(format!(
-                        "writing the chunk at record {row} ({size} bytes, rank {rank}) failed"
-                    )));
-                }
+                // SAFETY: a valid dataset id, an offset array of HDF5's largest rank (32), and
+                // `size` readable bytes at `ptr`; the library lock is held while HDF5's error
+                // stack is read (it names the cause, e.g. a full disk).
+                hdf5::sync::sync(|| {
+                    hdf5::h5check(unsafe {
+                        hdf5_sys::h5d::H5Dwrite_chunk(
+                            dataset.id(),
+                            hdf5_sys::h5p::H5P_DEFAULT,
+                            0,
+                            offset.as_ptr(),
+                            size,
+                            ptr.cast(),
+                        )
+                    })
+                })?;
             }
         }
         Ok(())
