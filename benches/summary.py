@@ -151,8 +151,9 @@ def main() -> int:
             label += " (small scale)"
         t = tallied(c, key)
         flops, links = (t[0] / threads, t[1] * SOLVE_LINKS_PER_ROW / threads) if t else (None, 0.0)
-        row(f"{label}, whole process", c[f"{key}_process_s"] * 1e9, flops, "s", 1e9, links)
-        row(f"{label}, job in process", c[f"{key}_job_s"] * 1e9, flops, "s", 1e9, links)
+        unit, scale = ("s", 1e9) if c[f"{key}_process_s"] >= 1.0 else ("ms", 1e6)
+        row(f"{label}, whole process", c[f"{key}_process_s"] * 1e9, flops, unit, scale, links)
+        row(f"{label}, job in process", c[f"{key}_job_s"] * 1e9, flops, unit, scale, links)
     print("\nbound = the larger of (counted flops / best measured multiply-add rate) and (solve "
           "rows x one dependent multiply-add); DEVELOPERS.md, 'Performance'.")
     if c.get("continuation_points"):
