@@ -45,13 +45,15 @@ pyenv: deps
 build: deps
 	$(CARGO) build --release
 
-## Every benchmark (criterion, short measurement times), then one table of the figures with
-## their arithmetic lower bounds (benches/summary.py, Python standard library only).
+## Every benchmark (criterion, short measurement times; benches/workloads.rs runs the workloads
+## that take minutes once each, as whole processes), then one table of the figures with their
+## arithmetic lower bounds (benches/summary.py, Python standard library only).
 bench: deps
 	$(CARGO) bench
 	python3 benches/summary.py
 
-## icefold against a plain numpy/scipy implementation on the same three workloads, with ratios.
+## icefold against a plain numpy/scipy implementation on the same workloads, with ratios
+## (the regime map and the 100,000-member ensemble: numpy/scipy timed on a part, scaled up).
 bench-compare: deps pyenv build
 	$(PY) benches/reference/compare.py --icefold $(CURDIR)/$(BIN)
 

@@ -49,7 +49,8 @@ def median_ns(*parts: str) -> float | None:
 
 def counts() -> dict:
     out = {}
-    for name in ("icefold-counts.json", "icefold-counts-ensemble.json"):
+    for name in ("icefold-counts.json", "icefold-counts-ensemble.json",
+                 "icefold-counts-workloads.json"):
         f = ROOT / name
         if f.exists():
             out.update(json.loads(f.read_text()))
@@ -81,18 +82,18 @@ def main() -> int:
     print(f"peak (measured): independent multiply-adds {8192.0 / ind:.2f} Gflop/s baseline"
           + (f", {8192.0 / ind_w:.2f} Gflop/s AVX2+FMA" if ind_w else "")
           + f"; one dependent chain {link:.3f} ns per link")
-    print(f"\n{'figure':<46} {'measured':>12} {'bound':>12} {'ratio':>7}")
+    print(f"\n{'figure':<62} {'measured':>12} {'bound':>12} {'ratio':>7}")
 
     def row(label, ns, flops, unit="ns", scale=1.0, chain_links=0.0):
         if ns is None:
             return
         m = ns / scale
         if flops is None:
-            print(f"{label:<46} {m:>9.3f} {unit:<2} {'-':>12} {'-':>7}")
+            print(f"{label:<62} {m:>9.3f} {unit:<2} {'-':>12} {'-':>7}")
             return
         # The larger of the arithmetic bound and the dependency-chain bound.
         b = max(flops / rate, chain_links * link) / scale
-        print(f"{label:<46} {m:>9.3f} {unit:<2} {b:>9.3f} {unit:<2} {m / b:>6.1f}x")
+        print(f"{label:<62} {m:>9.3f} {unit:<2} {b:>9.3f} {unit:<2} {m / b:>6.1f}x")
 
     # Per ROS2 band-step: two solves, SOLVE_LINKS_PER_ROW links each.
     ros2_links = 2 * SOLVE_LINKS_PER_ROW
@@ -134,6 +135,25 @@ def main() -> int:
         workload(f"ensemble 1000 x 200 yr, 45 bands, {threads} thread(s)",
                  ("ensemble_1000x200_45bands", "members", str(threads)), "ensemble", "ms", 1e6,
                  threads)
+    # benches/workloads.rs: one run each, as a whole process (file included) and as the job in
+    # process; the bound is the job's counted kernel rows over the threads it ran on.
+    big = (("regimes_201x201_90", "regime map 201 x 201, 90 bands"),
+           ("ensemble_100000x200_45", "ensemble 100,000 x 200 yr, 45 bands"),
+           ("seasonal_30yr_globe_90", "seasonal 30-year globe, 90 bands"),
+           ("forced_1000yr_csv_90", "forced 1000-year run from CSV, 90 bands"))
+    if any(f"{k}_process_s" in c for k, _ in big):
+        print("-- the workloads that take minutes (benches/workloads.rs, one run each)")
+    for key, label in big:
+        if f"{key}_process_s" not in c:
+            continue
+        threads = c.get(f"{key}_threads", 1)
+        if c.get(f"{key}_small"):
+            label += " (small scale)"
+        t = tallied(c, key)
+        flops, links = (t[0] / threads, t[1] * SOLVE_LINKS_PER_ROW / threads) if t else (None, 0.0)
+        unit, scale = ("s", 1e9) if c[f"{key}_process_s"] >= 1.0 else ("ms", 1e6)
+        row(f"{label}, whole process", c[f"{key}_process_s"] * 1e9, flops, unit, scale, links)
+        row(f"{label}, job in process", c[f"{key}_job_s"] * 1e9, flops, unit, scale, links)
     print("\nbound = the larger of (counted flops / best measured multiply-add rate) and (solve "
           "rows x one dependent multiply-add); DEVELOPERS.md, 'Performance'.")
     if c.get("continuation_points"):

@@ -10,9 +10,15 @@
 //!   whose `NAME` is netCDF-C's "not a netCDF variable" text followed by the length;
 //! - variables along the unlimited dimension are chunked (whole rows) with shuffle and deflate at
 //!   the writer's level (default [`DEFAULT_DEFLATE_LEVEL`]; level 0: chunked without filters),
-//!   and appended records are buffered up to one chunk before they are written;
+//!   and appended records are buffered up to a few chunks before they are written;
 //! - fixed-size variables of at least [`COMPRESS_MIN_VALUES`] values are chunked with the same
 //!   filters, or contiguous at level 0; smaller ones are always contiguous.
+//!
+//! Chunks are not passed through HDF5's filter pipeline: [`Packer`] applies the same two filters
+//! itself (HDF5's byte shuffle, then zlib-format deflate from libdeflate, several chunks at once
+//! on rayon's threads) and hands each finished chunk to `H5Dwrite_chunk` (HDF5's direct chunk
+//! write). The dataset's filter pipeline still names shuffle and deflate, so every reader decodes
+//! the chunks with its own zlib; only the compressed bytes differ from zlib's, never the values.
 
 use std::collections::HashMap;
 use std::ffi::CString;
@@ -23,8 +29,9 @@ use std::sync::atomic::{AtomicU64, Ordering};
 use hdf5::filters::Filter;
 use hdf5::plist::file_create::{AttrCreationOrder, LinkCreationOrder};
 use hdf5::types::VarLenUnicode;
-use hdf5::{Dataset, Extent, Extents, File, H5Type, Hyperslab, Location, SliceOrIndex};
-use ndarray::{ArrayView, IxDyn};
+use hdf5::{Dataset, Extent, Extents, File, H5Type, Location};
+use libdeflater::{CompressionLvl, Compressor};
+use rayon::prelude::*;
 
 use super::{ds, OutputError, NOT_A_VARIABLE};
 
@@ -38,6 +45,11 @@ const MAX_CHUNK_VALUES: usize = 1 << 17;
 const RECORD_CHUNK_ROWS: usize = 64;
 /// Short records are grouped so that one chunk holds at least this many values.
 const RECORD_CHUNK_MIN_VALUES: usize = 1024;
+/// Raw bytes of record data buffered per variable before its chunks are compressed together
+/// (and at most [`MAX_BATCH_CHUNKS`] chunks): enough chunks to keep every core busy.
+const BATCH_BYTES: usize = 1 << 20;
+/// Most chunks compressed together in one batch.
+const MAX_BATCH_CHUNKS: usize = 16;
 
 /// Distinguishes temporary files of several writers in one process.
 static TEMP_SEQ: AtomicU64 = AtomicU64::new(0);
@@ -120,6 +132,13 @@ impl Rows {
 trait Elem: H5Type + Copy {
     const KIND: Kind;
     fn rows(buf: &mut Rows) -> Option<&mut Vec<Self>>;
+
+    /// The values' bytes in memory order, which is the dataset's (native) file type.
+    fn bytes(values: &[Self]) -> &[u8] {
+        // SAFETY: `f64` and `i32` (the only implementors) have no padding and every byte is
+        // initialised; the slice borrows `values` for its lifetime.
+        unsafe { std::slice::from_raw_parts(values.as_ptr().cast::<u8>(), std::mem::size_of_val(values)) }
+    }
 }
 
 impl Elem for f64 {
@@ -146,10 +165,23 @@ impl Elem for i32 {
 struct Record {
     /// Values per record (product of the fixed dimensions).
     row_len: usize,
-    /// Records per chunk; the buffer is written when it holds this many.
+    /// Records per chunk.
     chunk_rows: usize,
+    /// Chunks buffered before they are compressed and written together.
+    batch_chunks: usize,
+    /// Index of the first buffered record, a multiple of `chunk_rows`: the buffer always
+    /// starts at a chunk boundary, and after a [`Var::flush`] it keeps the records of a partly
+    /// filled last chunk (already in the file) so that the whole chunk is written once full.
+    buf_start: usize,
     /// Buffered records, row-major.
     buf: Rows,
+}
+
+impl Record {
+    /// Records the buffer holds when a batch is complete.
+    fn batch_rows(&self) -> usize {
+        self.batch_chunks * self.chunk_rows
+    }
 }
 
 struct Var {
@@ -158,6 +190,8 @@ struct Var {
     /// Current shape in the file; for a record variable `shape[0]` counts written records.
     shape: Vec<usize>,
     record: Option<Record>,
+    /// Records per chunk of a chunked fixed-size variable (`None`: contiguous or scalar).
+    fixed_chunk_rows: Option<usize>,
 }
 
 impl Var {
@@ -173,16 +207,296 @@ impl Var {
         })
     }
 
-    /// Writes the buffered records, if any.
-    fn flush(&mut self) -> hdf5::Result<()> {
+    /// Writes the buffered records that are not yet in the file, including a partly filled last
+    /// chunk (padded; the padding lies beyond the extent, where no reader looks). Full chunks
+    /// leave the buffer; the records of a partial one stay so that the chunk is rewritten
+    /// whole when it fills.
+    fn flush(&mut self, packer: &mut Packer) -> hdf5::Result<()> {
         let Some(rec) = self.record.as_mut() else {
             return Ok(());
         };
         match &mut rec.buf {
-            Rows::F64(b) => write_rows(&self.dataset, &mut self.shape, b).map(|()| b.clear()),
-            Rows::I32(b) => write_rows(&self.dataset, &mut self.shape, b).map(|()| b.clear()),
+            Rows::F64(b) => flush_rows(
+                &self.dataset,
+                &mut self.shape,
+                packer,
+                rec.row_len,
+                rec.chunk_rows,
+                &mut rec.buf_start,
+                b,
+            ),
+            Rows::I32(b) => flush_rows(
+                &self.dataset,
+                &mut self.shape,
+                packer,
+                rec.row_len,
+                rec.chunk_rows,
+                &mut rec.buf_start,
+                b,
+            ),
         }
     }
+
+    /// Appends whole records (`values.len()` a multiple of the record length), writing each
+    /// batch of chunks as it fills. Allocates nothing: the buffer holds one batch.
+    fn push_rows<T: Elem>(&mut self, packer: &mut Packer, mut values: &[T]) -> hdf5::Result<()> {
+        let Some(rec) = self.record.as_mut() else {
+            return Ok(());
+        };
+        let batch_values = rec.batch_rows() * rec.row_len;
+        while !values.is_empty() {
+            let Some(buf) = T::rows(&mut rec.buf) else {
+                return Ok(()); // unreachable: the kind was checked by the caller
+            };
+            let take = (batch_values - buf.len()).min(values.len());
+            buf.extend_from_slice(&values[..take]);
+            values = &values[take..];
+            if buf.len() == batch_values {
+                flush_rows(
+                    &self.dataset,
+                    &mut self.shape,
+                    packer,
+                    rec.row_len,
+                    rec.chunk_rows,
+                    &mut rec.buf_start,
+                    buf,
+                )?;
+            }
+        }
+        Ok(())
+    }
+}
+
+/// See [`Var::flush`]: `buf` holds whole records from record `*buf_start` on, of which the
+/// first `shape[0] - *buf_start` are already in the file.
+fn flush_rows<T: Elem>(
+    dataset: &Dataset,
+    shape: &mut [usize],
+    packer: &mut Packer,
+    row_len: usize,
+    chunk_rows: usize,
+    buf_start: &mut usize,
+    buf: &mut Vec<T>,
+) -> hdf5::Result<()> {
+    let rows = buf.len() / row_len;
+    let end = *buf_start + rows;
+    if end > shape[0] {
+        let mut new_shape = shape.to_vec();
+        new_shape[0] = end;
+        dataset.resize(new_shape)?;
+        packer.write_chunks(dataset, *buf_start, chunk_rows, row_len, buf)?;
+        shape[0] = end;
+    }
+    let full = rows / chunk_rows * chunk_rows;
+    buf.copy_within(full * row_len.., 0);
+    buf.truncate((rows - full) * row_len);
+    *buf_start += full;
+    Ok(())
+}
+
+/// Compresses chunks as the dataset's filters would and writes them with HDF5's direct chunk
+/// write; one per file, its buffers grow to the largest batch and are then reused.
+struct Packer {
+    /// zlib deflate level; 0 means the datasets have no filters (chunks are stored raw).
+    level: u8,
+    /// One libdeflate compressor per worker thread, made on first use.
+    compressors: Vec<Compressor>,
+    /// Shuffled (or raw, at level 0) chunks of the batch, each padded to the chunk size.
+    shuffled: Vec<u8>,
+    /// Compressed chunks, each in a slot of the compressor's bound.
+    packed: Vec<u8>,
+    /// Compressed size of each chunk of the batch.
+    sizes: Vec<usize>,
+}
+
+impl Packer {
+    fn new(level: u8) -> Packer {
+        Packer {
+            level,
+            compressors: Vec::new(),
+            shuffled: Vec::new(),
+            packed: Vec::new(),
+            sizes: Vec::new(),
+        }
+    }
+
+    /// Writes `data` (whole records of `row_len` values, row-major) as the chunks of
+    /// `chunk_rows` records that start at record `first_row` (a multiple of `chunk_rows`) of
+    /// `dataset`, whose extent must already cover them. A last partial chunk is padded with
+    /// zeros. Chunks are compressed in batches of at most [`MAX_BATCH_CHUNKS`], in parallel.
+    fn write_chunks<T: Elem>(
+        &mut self,
+        dataset: &Dataset,
+        first_row: usize,
+        chunk_rows: usize,
+        row_len: usize,
+        data: &[T],
+    ) -> hdf5::Result<()> {
+        let bytes = T::bytes(data);
+        let elem = std::mem::size_of::<T>();
+        let chunk_bytes = chunk_rows * row_len * elem;
+        if bytes.is_empty() || chunk_bytes == 0 {
+            return Ok(());
+        }
+        let per_batch = batch_chunks(chunk_bytes);
+        for (b, batch) in bytes.chunks(per_batch * chunk_bytes).enumerate() {
+            let n = batch.len().div_ceil(chunk_bytes);
+            let bound = self.pack(batch, n, chunk_bytes, elem)?;
+            for (k, &size) in self.sizes.iter().enumerate() {
+                let row = first_row + (b * per_batch + k) * chunk_rows;
+                let mut offset = [0u64; 32];
+                offset[0] = row as u64;
+                let ptr = if self.level == 0 {
+                    self.shuffled[k * chunk_bytes..].as_ptr()
+                } else {
+                    self.packed[k * bound..].as_ptr()
+                };
+                // SAFETY: a valid dataset id, an offset array of HDF5's largest rank (32), and
+                // `size` readable bytes at `ptr`; the library lock is held while HDF5's error
+                // stack is read (it names the cause, e.g. a full disk).
+                hdf5::sync::sync(|| {
+                    hdf5::h5check(unsafe {
+                        hdf5_sys::h5d::H5Dwrite_chunk(
+                            dataset.id(),
+                            hdf5_sys::h5p::H5P_DEFAULT,
+                            0,
+                            offset.as_ptr(),
+                            size,
+                            ptr.cast(),
+                        )
+                    })
+                })?;
+            }
+        }
+        Ok(())
+    }
+
+    /// Shuffles and compresses the `n` chunks of `batch` (the last may be short) into the
+    /// packer's buffers: chunk `k` is at `shuffled[k * chunk_bytes..]` (level 0) or at
+    /// `packed[k * stride..]`, of `sizes[k]` bytes; returns the stride.
+    fn pack(&mut self, batch: &[u8], n: usize, chunk_bytes: usize, elem: usize) -> hdf5::Result<usize> {
+        if self.shuffled.len() < n * chunk_bytes {
+            self.shuffled.resize(n * chunk_bytes, 0);
+        }
+        self.sizes.clear();
+        self.sizes.resize(n, chunk_bytes);
+        let shuffled = &mut self.shuffled[..n * chunk_bytes];
+        if self.level == 0 {
+            // No filters: the chunk is stored as it is, padded.
+            shuffled[..batch.len()].copy_from_slice(batch);
+            shuffled[batch.len()..].fill(0);
+            return Ok(chunk_bytes);
+        }
+        if self.compressors.is_empty() {
+            let level = CompressionLvl::new(i32::from(self.level))
+                .map_err(|_| hdf5::Error::from(format!("deflate level {} out of range", self.level)))?;
+            let workers = rayon::current_num_threads().max(1);
+            self.compressors = (0..workers).map(|_| Compressor::new(level)).collect();
+        }
+        let bound = self.compressors[0].zlib_compress_bound(chunk_bytes);
+        if self.packed.len() < n * bound {
+            self.packed.resize(n * bound, 0);
+        }
+        let packed = &mut self.packed[..n * bound];
+        let sizes = &mut self.sizes[..n];
+        // Each worker takes a run of consecutive chunks with its own compressor.
+        let workers = self.compressors.len().min(n);
+        let per = n.div_ceil(workers);
+        let work = |(((c, sh), pk), sz): (((&mut Compressor, &mut [u8]), &mut [u8]), &mut [usize]),
+                    first: usize| {
+            for (k, size) in sz.iter_mut().enumerate() {
+                let start = (first + k) * chunk_bytes;
+                let src = &batch[start.min(batch.len())..(start + chunk_bytes).min(batch.len())];
+                let dst = &mut sh[k * chunk_bytes..(k + 1) * chunk_bytes];
+                shuffle(src, elem, dst);
+                *size = c
+                    .zlib_compress(dst, &mut pk[k * bound..(k + 1) * bound])
+                    .unwrap_or(0);
+            }
+        };
+        if workers == 1 {
+            work((((&mut self.compressors[0], shuffled), packed), sizes), 0);
+        } else {
+            self.compressors[..workers]
+                .par_iter_mut()
+                .zip(shuffled.par_chunks_mut(per * chunk_bytes))
+                .zip(packed.par_chunks_mut(per * bound))
+                .zip(sizes.par_chunks_mut(per))
+                .enumerate()
+                .for_each(|(w, parts)| work(parts, w * per));
+        }
+        if self.sizes.contains(&0) {
+            // Cannot happen: each slot holds libdeflate's bound for the chunk size.
+            return Err(hdf5::Error::from("deflate ran out of room for a chunk"));
+        }
+        Ok(bound)
+    }
+}
+
+/// HDF5's shuffle filter (H5Z_FILTER_SHUFFLE) on one chunk: byte `j` of element `i` goes to
+/// `out[j * count + i]`, where `count = out.len() / elem`. `src` may be shorter than `out`
+/// (a partial last chunk); the missing elements are zeros.
+fn shuffle(src: &[u8], elem: usize, out: &mut [u8]) {
+    match elem {
+        8 => shuffle_n::<8>(src, out),
+        4 => shuffle_n::<4>(src, out),
+        _ => {
+            out[..src.len()].copy_from_slice(src);
+            out[src.len()..].fill(0);
+        }
+    }
+}
+
+fn shuffle_n<const S: usize>(src: &[u8], out: &mut [u8]) {
+    let count = out.len() / S;
+    let have = src.len() / S;
+    // Eight 8-byte elements at a time: an 8 x 8 byte transpose in registers, then one 8-byte
+    // store per byte plane.
+    let mut done = 0;
+    if S == 8 {
+        for (b, block) in src.chunks_exact(64).enumerate() {
+            let planes = transpose8(block);
+            for (j, plane) in planes.iter().enumerate() {
+                let at = j * count + b * 8;
+                out[at..at + 8].copy_from_slice(&plane.to_le_bytes());
+            }
+            done = (b + 1) * 8;
+        }
+    }
+    for (i, e) in src.chunks_exact(S).enumerate().skip(done) {
+        for (j, &byte) in e.iter().enumerate() {
+            out[j * count + i] = byte;
+        }
+    }
+    for j in 0..S {
+        out[j * count + have..(j + 1) * count].fill(0);
+    }
+}
+
+/// The 8 x 8 byte matrix of eight little-endian 8-byte elements, transposed: word `j` holds
+/// byte `j` of elements 0 to 7 (in its bytes 0 to 7). Three rounds of block swaps (4 x 4,
+/// 2 x 2, 1 x 1 bytes).
+fn transpose8(block: &[u8]) -> [u64; 8] {
+    let mut a = [0u64; 8];
+    for (r, e) in block.chunks_exact(8).enumerate() {
+        a[r] = u64::from_le_bytes([e[0], e[1], e[2], e[3], e[4], e[5], e[6], e[7]]);
+    }
+    for r in 0..4 {
+        let t = ((a[r] >> 32) ^ a[r + 4]) & 0x0000_0000_FFFF_FFFF;
+        a[r] ^= t << 32;
+        a[r + 4] ^= t;
+    }
+    for r in [0, 1, 4, 5] {
+        let t = ((a[r] >> 16) ^ a[r + 2]) & 0x0000_FFFF_0000_FFFF;
+        a[r] ^= t << 16;
+        a[r + 2] ^= t;
+    }
+    for r in [0, 2, 4, 6] {
+        let t = ((a[r] >> 8) ^ a[r + 1]) & 0x00FF_00FF_00FF_00FF;
+        a[r] ^= t << 8;
+        a[r + 1] ^= t;
+    }
+    a
 }
 
 struct Dim {
@@ -203,6 +517,10 @@ struct Inner {
     path: PathBuf,
     /// Filters of chunked variables (shuffle + deflate, or none at level 0).
     filters: Vec<Filter>,
+    /// Compresses and writes chunks.
+    packer: Packer,
+    /// Scratch for the full path of the variable an append goes to.
+    key: String,
 }
 
 /// Deletes the temporary file when dropped, unless disarmed after the final rename.
@@ -568,6 +886,8 @@ impl NcWriter {
                 } else {
                     vec![Filter::shuffle(), Filter::deflate(level)]
                 },
+                packer: Packer::new(level),
+                key: String::new(),
             },
             temp,
         })
@@ -698,6 +1018,12 @@ fn record_chunk_rows(row_len: usize) -> usize {
     RECORD_CHUNK_ROWS.max(RECORD_CHUNK_MIN_VALUES / row_len.max(1))
 }
 
+/// Chunks of `chunk_bytes` raw bytes gathered in one batch of a record variable: about
+/// [`BATCH_BYTES`], at most [`MAX_BATCH_CHUNKS`].
+fn batch_chunks(chunk_bytes: usize) -> usize {
+    (BATCH_BYTES / chunk_bytes.max(1)).clamp(1, MAX_BATCH_CHUNKS)
+}
+
 /// Chunk shape for a fixed-size variable: the whole shape, with the first axis cut so that a
 /// chunk holds at most [`MAX_CHUNK_VALUES`].
 fn fixed_chunk(shape: &[usize]) -> Vec<usize> {
@@ -707,30 +1033,16 @@ fn fixed_chunk(shape: &[usize]) -> Vec<usize> {
     chunk
 }
 
-/// Writes `rows` (row-major, whole records) after the `shape[0]` records already in `dataset`.
-fn write_rows<T: H5Type>(dataset: &Dataset, shape: &mut [usize], rows: &[T]) -> hdf5::Result<()> {
-    let row_len: usize = shape[1..].iter().product();
-    if rows.is_empty() || row_len == 0 {
-        return Ok(());
-    }
-    let n = rows.len() / row_len;
-    let start = shape[0];
-    let mut new_shape = shape.to_vec();
-    new_shape[0] = start + n;
-    dataset.resize(new_shape.clone())?;
-    let mut block_shape = new_shape.clone();
-    block_shape[0] = n;
-    let view = ArrayView::from_shape(IxDyn(&block_shape), rows)?;
-    let mut sel = vec![SliceOrIndex::from(start..start + n)];
-    sel.extend(shape[1..].iter().map(|&len| SliceOrIndex::from(0..len)));
-    dataset.write_slice(view, Hyperslab::from(sel))?;
-    shape[0] = start + n;
-    Ok(())
-}
-
 /// Writes a scalar attribute on `loc`, replacing an existing one of the same name.
 fn write_attr(loc: &Location, name: &str, value: &Attr) -> hdf5::Result<()> {
-    if loc.attr_names()?.iter().any(|n| n == name) {
+    // One lookup by name (listing every attribute's name made each new attribute cost more).
+    let c = CString::new(name).map_err(|e| hdf5::Error::from(e.to_string()))?;
+    // SAFETY: a valid object id and a NUL-terminated name; the library lock is held.
+    let exists = hdf5::sync::sync(|| unsafe { hdf5_sys::h5a::H5Aexists(loc.id(), c.as_ptr()) });
+    if exists < 0 {
+        return Err(hdf5::Error::from(format!("cannot look up attribute `{name}`")));
+    }
+    if exists > 0 {
         loc.delete_attr(name)?;
     }
     match value {
@@ -880,23 +1192,30 @@ impl Inner {
         attrs: &[(&str, Attr)],
     ) -> Result<(), OutputError> {
         let full = self.new_object(group, name)?;
-        let err = self.h5err(format!("coordinate `{full}`"));
-        let create = || -> hdf5::Result<Dataset> {
+        let fixed_chunk_rows = (values.len() >= COMPRESS_MIN_VALUES && !self.filters.is_empty())
+            .then(|| fixed_chunk(&[values.len()])[0]);
+        let mut create = || -> hdf5::Result<Dataset> {
             let g = self.file.group(group)?;
             let mut b = g
                 .new_dataset::<f64>()
                 .shape(values.len())
                 .attr_creation_order(AttrCreationOrder::Indexed);
-            if values.len() >= COMPRESS_MIN_VALUES && !self.filters.is_empty() {
-                b = b.chunk(fixed_chunk(&[values.len()])).set_filters(&self.filters);
+            if let Some(rows) = fixed_chunk_rows {
+                b = b.chunk(vec![rows]).set_filters(&self.filters);
             }
             let d = b.create(name)?;
-            if !values.is_empty() {
-                d.write_raw(values)?;
+            match fixed_chunk_rows {
+                Some(rows) => self.packer.write_chunks(&d, 0, rows, 1, values)?,
+                None if !values.is_empty() => d.write_raw(values)?,
+                None => {}
             }
             Ok(d)
         };
-        let dataset = create().map_err(err)?;
+        let dataset = create().map_err(|source| OutputError::Hdf5 {
+            path: self.path.clone(),
+            object: format!("coordinate `{full}`"),
+            source,
+        })?;
         self.set_scale(&dataset, &full, name)?;
         let dim = Dim {
             dataset: dataset.clone(),
@@ -909,6 +1228,7 @@ impl Inner {
             kind: Kind::F64,
             shape: vec![values.len()],
             record: None,
+            fixed_chunk_rows,
         };
         self.vars.insert(full, var);
         self.set_attrs(group, name, attrs)
@@ -971,16 +1291,20 @@ impl Inner {
                 unlimited: true,
             },
         );
+        let batch_chunks = batch_chunks(chunk_rows * std::mem::size_of::<f64>());
         let record = Record {
             row_len: 1,
             chunk_rows,
-            buf: Rows::F64(Vec::with_capacity(chunk_rows)),
+            batch_chunks,
+            buf_start: 0,
+            buf: Rows::F64(Vec::with_capacity(batch_chunks * chunk_rows)),
         };
         let var = Var {
             dataset,
             kind: Kind::F64,
             shape: vec![0],
             record: Some(record),
+            fixed_chunk_rows: None,
         };
         self.vars.insert(full, var);
         self.set_attrs(group, name, attrs)
@@ -1029,6 +1353,10 @@ impl Inner {
             });
         }
         let chunk_rows = record_chunk_rows(row_len);
+        let size: usize = shape.iter().product();
+        let fixed_chunk_rows =
+            (!record && !shape.is_empty() && size >= COMPRESS_MIN_VALUES && !self.filters.is_empty())
+                .then(|| fixed_chunk(&shape)[0]);
         let err = self.h5err(format!("variable `{full}`"));
         let dataset = self
             .file
@@ -1048,12 +1376,14 @@ impl Inner {
                         .chunk(chunk)
                         .set_filters(&self.filters)
                 } else {
-                    let size: usize = shape.iter().product();
                     let b = b.shape(shape.clone());
-                    if size >= COMPRESS_MIN_VALUES && !self.filters.is_empty() {
-                        b.chunk(fixed_chunk(&shape)).set_filters(&self.filters)
-                    } else {
-                        b
+                    match fixed_chunk_rows {
+                        Some(rows) => {
+                            let mut chunk = shape.clone();
+                            chunk[0] = rows;
+                            b.chunk(chunk).set_filters(&self.filters)
+                        }
+                        None => b,
                     }
                 };
                 b.create(name)
@@ -1073,13 +1403,19 @@ impl Inner {
                 });
             }
         }
-        let record = record.then(|| Record {
-            row_len,
-            chunk_rows,
-            buf: match T::KIND {
-                Kind::F64 => Rows::F64(Vec::with_capacity(chunk_rows * row_len)),
-                Kind::I32 => Rows::I32(Vec::with_capacity(chunk_rows * row_len)),
-            },
+        let record = record.then(|| {
+            let batch_chunks = batch_chunks(chunk_rows * row_len * std::mem::size_of::<T>());
+            let cap = batch_chunks * chunk_rows * row_len;
+            Record {
+                row_len,
+                chunk_rows,
+                batch_chunks,
+                buf_start: 0,
+                buf: match T::KIND {
+                    Kind::F64 => Rows::F64(Vec::with_capacity(cap)),
+                    Kind::I32 => Rows::I32(Vec::with_capacity(cap)),
+                },
+            }
         });
         self.vars.insert(
             full,
@@ -1088,6 +1424,7 @@ impl Inner {
                 kind: T::KIND,
                 shape,
                 record,
+                fixed_chunk_rows,
             },
         );
         self.set_attrs(group, name, attrs)
@@ -1095,8 +1432,12 @@ impl Inner {
 
     fn write<T: Elem>(&mut self, group: &str, name: &str, values: &[T]) -> Result<(), OutputError> {
         let path = self.path.clone();
-        let var = self.var_mut(group, name)?;
+        self.var_mut(group, name)?;
         let full = join(group, name);
+        let Inner { vars, packer, .. } = self;
+        let Some(var) = vars.get_mut(&full) else {
+            return Ok(()); // unreachable: found just above
+        };
         let fail = |source| OutputError::Hdf5 {
             path: path.clone(),
             object: format!("variable `{full}`"),
@@ -1112,9 +1453,7 @@ impl Inner {
                     actual: values.len(),
                 });
             }
-            // Keep record order: buffered records go first.
-            var.flush().map_err(fail)?;
-            return write_rows(&var.dataset, &mut var.shape, values).map_err(fail);
+            return var.push_rows(packer, values).map_err(fail);
         }
         let expected: usize = var.shape.iter().product();
         if values.len() != expected {
@@ -1128,57 +1467,66 @@ impl Inner {
         if expected == 0 {
             return Ok(());
         }
-        var.dataset.write_raw(values).map_err(fail)
+        match var.fixed_chunk_rows {
+            Some(chunk_rows) => {
+                let row_len = expected / var.shape[0];
+                packer
+                    .write_chunks(&var.dataset, 0, chunk_rows, row_len, values)
+                    .map_err(fail)
+            }
+            None => var.dataset.write_raw(values).map_err(fail),
+        }
     }
 
-    /// Buffers one record (called once per variable per output time: the full path is built
-    /// once, and the file path is cloned only for an error).
+    /// Buffers one record (called once per variable per output time: the full path is built in
+    /// a reused string, and names are copied only for an error).
     fn append<T: Elem>(&mut self, group: &str, name: &str, row: &[T]) -> Result<(), OutputError> {
-        let full = join(group, name);
-        let Inner { vars, path, .. } = self;
-        let Some(var) = vars.get_mut(&full) else {
+        let Inner {
+            vars,
+            path,
+            packer,
+            key,
+            ..
+        } = self;
+        key.clear();
+        if group != "/" {
+            key.push_str(group);
+        }
+        key.push('/');
+        key.push_str(name);
+        let full = key.as_str();
+        let Some(var) = vars.get_mut(full) else {
             return Err(OutputError::UnknownVariable {
                 path: path.clone(),
-                variable: full,
+                variable: full.to_owned(),
             });
         };
-        var.check_kind::<T>(path, &full)?;
+        var.check_kind::<T>(path, full)?;
         let Some(rec) = var.record.as_mut() else {
             return Err(OutputError::Layout {
                 path: path.clone(),
-                variable: full,
+                variable: full.to_owned(),
                 reason: "is not along an unlimited dimension; write it whole".to_owned(),
             });
         };
         if row.len() != rec.row_len {
             return Err(OutputError::LengthMismatch {
                 path: path.clone(),
-                variable: full,
+                variable: full.to_owned(),
                 expected: rec.row_len,
                 actual: row.len(),
             });
         }
-        let full_chunk = rec.chunk_rows * rec.row_len;
-        let buffered = match T::rows(&mut rec.buf) {
-            Some(buf) => {
-                buf.extend_from_slice(row);
-                buf.len()
-            }
-            None => 0, // unreachable: the kind was checked above
-        };
-        if buffered >= full_chunk {
-            var.flush().map_err(|source| OutputError::Hdf5 {
-                path: path.clone(),
-                object: format!("variable `{full}`"),
-                source,
-            })?;
-        }
-        Ok(())
+        var.push_rows(packer, row).map_err(|source| OutputError::Hdf5 {
+            path: path.clone(),
+            object: format!("variable `{full}`"),
+            source,
+        })
     }
 
     fn flush_all(&mut self) -> Result<(), OutputError> {
         for (full, var) in &mut self.vars {
-            var.flush().map_err(|source| OutputError::Hdf5 {
+            var.flush(&mut self.packer).map_err(|source| OutputError::Hdf5 {
                 path: self.path.clone(),
                 object: format!("variable `{full}`"),
                 source,
@@ -1412,6 +1760,8 @@ impl NcWriter {
                 } else {
                     vec![Filter::shuffle(), Filter::deflate(level)]
                 },
+                packer: Packer::new(level),
+                key: String::new(),
             },
             // Nothing on disk to delete.
             temp: TempFile {
@@ -1576,9 +1926,10 @@ mod tests {
             }
             w.append_row_f64("field", &row).unwrap();
             w.append_row_i32("count", &[i as i32]).unwrap();
-            // Memory stays flat: never more than one chunk is buffered.
+            // Memory stays flat: never more than one batch of chunks is buffered.
             let rec = w.inner.vars["/field"].record.as_ref().unwrap();
-            assert!(rec.buf.len() < rec.chunk_rows * cols);
+            assert!(rec.buf.len() < rec.batch_rows() * cols);
+            assert!(rec.batch_rows() * cols * 8 <= BATCH_BYTES);
         }
         w.finish().unwrap();
 
@@ -1673,6 +2024,103 @@ mod tests {
         };
         assert!(size(1) < size(0), "{} vs {}", size(1), size(0));
         assert!(size(9) <= size(1) + 512, "{} vs {}", size(9), size(1));
+    }
+
+    /// HDF5's shuffle filter as its documentation states it, one byte at a time.
+    fn shuffle_by_definition(src: &[u8], elem: usize, out_len: usize) -> Vec<u8> {
+        let count = out_len / elem;
+        let mut out = vec![0u8; out_len];
+        for i in 0..src.len() / elem {
+            for j in 0..elem {
+                out[j * count + i] = src[i * elem + j];
+            }
+        }
+        out
+    }
+
+    #[test]
+    fn shuffle_matches_the_filter_definition_for_full_and_partial_chunks() {
+        let src: Vec<u8> = (0..8 * 203u32)
+            .map(|k| (k.wrapping_mul(2_654_435_761) >> 24) as u8)
+            .collect();
+        for elem in [8, 4] {
+            // Full chunks with and without a tail after the 8-element blocks, and a partial
+            // chunk padded with zeros.
+            for (have, chunk) in [(8 * 203, 8 * 203), (8 * 64, 8 * 64), (8 * 150, 8 * 203)] {
+                let mut out = vec![0xAAu8; chunk];
+                shuffle(&src[..have], elem, &mut out);
+                assert_eq!(
+                    out,
+                    shuffle_by_definition(&src[..have], elem, chunk),
+                    "elem {elem}, {have} of {chunk} bytes"
+                );
+            }
+        }
+    }
+
+    #[test]
+    fn flush_inside_a_chunk_then_more_records_read_back_whole() {
+        // A checkpoint flush writes a partial chunk; the records after it complete the same
+        // chunk, which is then rewritten whole. Every level, to cover raw and deflated chunks.
+        let dir = TestDir::new("midflush");
+        for level in [0, 1, 9] {
+            let path = dir.file(&format!("m{level}.nc"));
+            let mut w = NcWriter::create_with_deflate(&path, level).unwrap();
+            w.add_coordinate("x", &[0.0, 1.0, 2.0], &[]).unwrap();
+            w.add_unlimited_coordinate("time", &[]).unwrap();
+            w.add_variable_f64("v", &["time", "x"], &[]).unwrap();
+            w.add_variable_i32("n", &["time"], &[]).unwrap();
+            let mut want = Vec::new();
+            for i in 0..3000 {
+                let row = [i as f64, -(i as f64) * 0.5, 1e300 / (i as f64 + 1.0)];
+                w.append_coordinate("time", i as f64).unwrap();
+                w.append_row_f64("v", &row).unwrap();
+                w.append_row_i32("n", &[i]).unwrap();
+                want.extend_from_slice(&row);
+                if [5, 6, 70, 1500, 2047].contains(&i) {
+                    w.flush().unwrap();
+                }
+            }
+            w.finish().unwrap();
+            let r = NcReader::open(&path).unwrap();
+            // Stored values, not computed ones: equality is the right check.
+            assert_eq!(r.read_f64("v").unwrap(), want, "level {level}");
+            assert_eq!(
+                r.read_f64("n").unwrap(),
+                (0..3000).map(f64::from).collect::<Vec<_>>()
+            );
+            assert_eq!(r.dim_len("time").unwrap(), 3000);
+        }
+    }
+
+    #[test]
+    fn large_fixed_variable_spans_several_chunks_with_a_partial_last_one() {
+        let dir = TestDir::new("bigfixed");
+        let path = dir.file("big.nc");
+        let (rows, cols) = (3000, 90);
+        let mut w = NcWriter::create(&path).unwrap();
+        w.add_dimension("member", rows).unwrap();
+        w.add_coordinate("lat", &(0..cols).map(|j| j as f64).collect::<Vec<_>>(), &[])
+            .unwrap();
+        w.add_variable_f64("table", &["member", "lat"], &[]).unwrap();
+        w.add_variable_i32("flags", &["member", "lat"], &[]).unwrap();
+        let table: Vec<f64> = (0..rows * cols).map(|k| (k as f64).sqrt()).collect();
+        let flags: Vec<i32> = (0..rows * cols).map(|k| (k % 13) as i32 - 6).collect();
+        w.write_f64("table", &table).unwrap();
+        w.write_i32("flags", &flags).unwrap();
+        let long: Vec<f64> = (0..200_000).map(|k| f64::from(k) * 0.25).collect();
+        w.add_coordinate("step", &long, &[]).unwrap();
+        w.finish().unwrap();
+        let f = File::open(&path).unwrap();
+        let chunk = f.dataset("table").unwrap().chunk().unwrap();
+        assert!(chunk[0] < rows && rows % chunk[0] != 0, "{chunk:?}");
+        assert!(f.dataset("step").unwrap().chunk().unwrap()[0] < long.len());
+        drop(f);
+        let r = NcReader::open(&path).unwrap();
+        assert_eq!(r.read_f64("table").unwrap(), table);
+        let back: Vec<f64> = flags.iter().map(|&v| f64::from(v)).collect();
+        assert_eq!(r.read_f64("flags").unwrap(), back);
+        assert_eq!(r.read_f64("step").unwrap(), long);
     }
 
     #[test]
@@ -1825,6 +2273,24 @@ mod tests {
         let r = NcReader::open(&path).unwrap();
         assert_eq!(r.attr_str("config").unwrap().unwrap(), text);
         assert_eq!(r.var_attr_str("x", "note").unwrap().unwrap(), text);
+    }
+
+    #[test]
+    fn setting_an_attribute_again_replaces_it() {
+        let dir = TestDir::new("reattr");
+        let path = dir.file("a.nc");
+        let mut w = NcWriter::create(&path).unwrap();
+        w.add_coordinate("x", &[0.0], &[]).unwrap();
+        w.set_attr_str("note", "first").unwrap();
+        w.set_attr_f64("other", 1.0).unwrap();
+        w.set_attr_i64("note", 2).unwrap();
+        w.set_var_attr_str("x", "units", "m").unwrap();
+        w.set_var_attr_str("x", "units", "km").unwrap();
+        w.finish().unwrap();
+        let r = NcReader::open(&path).unwrap();
+        assert_eq!(r.attr_i64("note").unwrap(), Some(2));
+        assert_eq!(r.attr_names().unwrap().iter().filter(|n| *n == "note").count(), 1);
+        assert_eq!(r.var_attr_str("x", "units").unwrap().as_deref(), Some("km"));
     }
 
     #[test]
