@@ -5,21 +5,6 @@
 
 use serde::{Deserialize, Serialize};
 
-/// Integer-valued keys; every other integer written in a config or `--set` is read as a float.
-pub const INTEGER_KEYS: &[&str] = &[
-    "grid.bands",
-    "sweep.steps",
-    "branches.max_points",
-    "ensemble.members",
-    "ensemble.seed",
-    "regimes.rows",
-    "regimes.columns",
-    "regimes.max_points",
-    "equilibrium.max_iterations",
-    "time.max_steps",
-    "output.deflate_level",
-];
-
 /// The whole file.
 #[derive(Debug, Clone, Default, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
