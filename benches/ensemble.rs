@@ -14,10 +14,10 @@
 use criterion::{criterion_group, criterion_main, BenchmarkId, Criterion};
 use icefold::config;
 use icefold::grid::{Domain, Grid, Spacing};
-use icefold::insolation::{band_mean_shape_exact, SeasonalTable};
 use icefold::integrate::driver::{self, Observer};
 use icefold::jobs::ensemble::{ensemble_to_file, run_ensemble, EnsembleOptions};
 use icefold::model::Model;
+use icefold::physics::insolation::{band_mean_shape_exact, SeasonalTable};
 use std::hint::black_box;
 use std::path::Path;
 

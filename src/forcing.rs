@@ -23,8 +23,8 @@
 //! told to hold its end values), so evaluation during a run never fails.
 
 use crate::csv::{shorten, CsvError, Reader};
-use crate::longwave::co2_forcing;
 use crate::model::{DriverSource, Drivers};
+use crate::physics::longwave::co2_forcing;
 use std::f64::consts::PI;
 use std::sync::Arc;
 

@@ -3,7 +3,8 @@
 //! tipping points, with netCDF-4/HDF5 output.
 //!
 //! Layers (see DEVELOPERS.md): `config` (TOML to typed specs) feeds `model` (grid plus one of
-//! each parameterisation: `insolation`, `albedo`, `longwave`, `transport`), which `integrate`
+//! each parameterisation in `physics`: insolation, albedo, longwave, transport, heat
+//! capacity), which `integrate`
 //! and `equilibrium` solve; `jobs` put a model, a solver and an `output` file together for the
 //! commands in `cli`. Physics modules are pure functions over slices and do no I/O.
 
@@ -13,7 +14,6 @@
 #![allow(clippy::neg_cmp_op_on_partial_ord)]
 #![allow(clippy::type_complexity, clippy::too_many_arguments)]
 
-pub mod albedo;
 pub mod checkpoint;
 pub mod cli;
 pub mod config;
@@ -24,16 +24,14 @@ pub mod equilibrium;
 pub mod error;
 pub mod forcing;
 pub mod grid;
-pub mod insolation;
 pub mod integrate;
 pub mod interpolation;
 pub mod interrupt;
 pub mod jobs;
 pub mod linalg;
-pub mod longwave;
 pub mod model;
 pub mod output;
+pub mod physics;
 pub mod plot;
 pub mod quadrature;
 pub mod tally;
-pub mod transport;

@@ -5,12 +5,12 @@
 //! (DESIGN section 2; docs/discrete-model.md has the exact discrete equations). This is the only
 //! module that knows every piece; it does no I/O.
 
-use crate::albedo::{Albedo, AlbedoForm, EdgeRule};
 use crate::grid::Grid;
-use crate::insolation::{self, SeasonalTable};
 use crate::linalg::Tridiag;
-use crate::longwave::Longwave;
-use crate::transport::Transport;
+use crate::physics::albedo::{Albedo, AlbedoForm, EdgeRule};
+use crate::physics::insolation::{self, SeasonalTable};
+use crate::physics::longwave::Longwave;
+use crate::physics::transport::Transport;
 
 /// Seconds in a model year (365.25 days).
 pub const YEAR_SECONDS: f64 = 365.25 * 86400.0;
@@ -64,7 +64,7 @@ impl Drivers {
         (
             self.olr_scale * olr
                 + self.olr_offset_wm2
-                + self.olr_slope_wm2_per_k * (t_k - crate::longwave::ZERO_CELSIUS),
+                + self.olr_slope_wm2_per_k * (t_k - crate::physics::longwave::ZERO_CELSIUS),
             self.olr_scale * dolr + self.olr_slope_wm2_per_k,
         )
     }
@@ -157,7 +157,7 @@ macro_rules! with_forms {
             (AlbedoForm::Step, Longwave::Linear { a, b }) => {
                 let (a0, b0) = (*a, *b);
                 let $alb = |t: &[f64], i: usize| $self.albedo.step_band(t, i);
-                let $olr = move |t: f64| (a0 + b0 * (t - crate::longwave::ZERO_CELSIUS), b0);
+                let $olr = move |t: f64| (a0 + b0 * (t - crate::physics::longwave::ZERO_CELSIUS), b0);
                 $body
             }
             (AlbedoForm::Step, _) => {
@@ -168,7 +168,7 @@ macro_rules! with_forms {
             (_, Longwave::Linear { a, b }) => {
                 let (a0, b0) = (*a, *b);
                 let $alb = |t: &[f64], i: usize| $self.albedo.band(t, i);
-                let $olr = move |t: f64| (a0 + b0 * (t - crate::longwave::ZERO_CELSIUS), b0);
+                let $olr = move |t: f64| (a0 + b0 * (t - crate::physics::longwave::ZERO_CELSIUS), b0);
                 $body
             }
             _ => {
@@ -219,7 +219,7 @@ macro_rules! with_olr {
         match &$self.longwave {
             Longwave::Linear { a, b } => {
                 let (a0, b0) = (*a, *b);
-                let $olr = move |t: f64| (a0 + b0 * (t - crate::longwave::ZERO_CELSIUS), b0);
+                let $olr = move |t: f64| (a0 + b0 * (t - crate::physics::longwave::ZERO_CELSIUS), b0);
                 $body
             }
             _ => {
@@ -362,7 +362,7 @@ impl Model {
                 }
                 let mut fix = |i: usize| out[i] = band(i, self.albedo.step_band(t, i).0);
                 fix(0);
-                crate::albedo::for_each_crossing(t, tf, |k| {
+                crate::physics::albedo::for_each_crossing(t, tf, |k| {
                     fix(k);
                     fix(k + 1);
                 });
@@ -579,7 +579,7 @@ impl Model {
                         let (a, da) = self.albedo.step_band(t, i);
                         band(i, a, da);
                     }
-                    crate::albedo::for_each_crossing(t, tf, |k| {
+                    crate::physics::albedo::for_each_crossing(t, tf, |k| {
                         for i in [k, k + 1] {
                             let (a, da) = self.albedo.step_band(t, i);
                             band(i, a, da);
@@ -860,8 +860,8 @@ impl Model {
 impl Model {
     /// Assemble the model a validated spec describes.
     pub fn from_spec(spec: &crate::config::spec::ModelSpec) -> Model {
-        use crate::albedo::Albedo;
         use crate::config::spec::{InsolationForm, TransportSpec};
+        use crate::physics::albedo::Albedo;
         let grid = Grid::new(spec.domain, spec.spacing, spec.bands);
         let n = grid.len();
         let ins = &spec.insolation;
@@ -907,12 +907,8 @@ impl Model {
         };
         let albedo = Albedo::new(&grid, a.form, ice_free, a.ice, a.freeze_k).with_edge_rule(edge_rule);
         let hc = &spec.heat_capacity;
-        let heat_capacity = (0..n)
-            .map(|i| {
-                let f = hc.land_fraction.get(i).copied().unwrap_or(0.0);
-                (1.0 - f) * hc.ocean + f * hc.land
-            })
-            .collect();
+        let heat_capacity =
+            crate::physics::heat_capacity::mixed_layer::by_band(n, hc.ocean, hc.land, &hc.land_fraction);
         Model {
             grid,
             sunlight,

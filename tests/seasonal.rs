@@ -4,9 +4,9 @@
 
 use icefold::config::{self, Loaded};
 use icefold::grid::{Domain, Grid, Spacing};
-use icefold::insolation::{self, band_mean_shape_exact, daily_mean_shape, orbit_at, SeasonalTable};
 use icefold::model::{Model, Workspace};
 use icefold::output::NcReader;
+use icefold::physics::insolation::{self, band_mean_shape_exact, daily_mean_shape, orbit_at, SeasonalTable};
 use icefold::quadrature::ClusteredRule;
 use std::f64::consts::PI;
 use std::path::Path;

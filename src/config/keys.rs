@@ -8,8 +8,8 @@
 //! swappable parameterisation is declared beside its kind (see [`sections`]).
 
 use super::spec::{InsolationForm, ModelSpec, TransportSpec};
-use crate::albedo::AlbedoForm;
-use crate::longwave::{co2_forcing, Longwave, ZERO_CELSIUS};
+use crate::physics::albedo::AlbedoForm;
+use crate::physics::longwave::{co2_forcing, Longwave, ZERO_CELSIUS};
 
 /// A bound on a number.
 #[derive(Debug, Clone, Copy, PartialEq)]

@@ -1,9 +1,9 @@
 //! Typed, validated specifications built from the raw configuration. Physics and solvers see
 //! only these (never TOML or flags).
 
-use crate::albedo::AlbedoForm;
 use crate::grid::{Domain, Spacing};
-use crate::longwave::Longwave;
+use crate::physics::albedo::AlbedoForm;
+use crate::physics::longwave::Longwave;
 
 /// Insolation form.
 #[derive(Debug, Clone, Copy, PartialEq)]

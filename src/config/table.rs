@@ -4,7 +4,7 @@
 
 use super::ConfigError;
 use crate::csv::{read_text, Reader};
-use crate::longwave::OlrTable;
+use crate::physics::longwave::OlrTable;
 use std::path::Path;
 
 /// Largest table accepted (rows); larger tables are refused.

@@ -9,9 +9,9 @@ use super::spec::*;
 use super::table::read_olr_table;
 use super::validate_jobs::{branches_spec, ensemble_spec, forcing_pieces, regimes_spec, sweep_spec};
 use super::ConfigError;
-use crate::albedo::AlbedoForm;
 use crate::grid::{Domain, Spacing};
-use crate::longwave::{Longwave, ZERO_CELSIUS};
+use crate::physics::albedo::AlbedoForm;
+use crate::physics::longwave::{Longwave, ZERO_CELSIUS};
 use serde::Serialize;
 use std::path::Path;
 use std::sync::Arc;
@@ -249,7 +249,7 @@ fn model_spec(c: &Checker, raw: &mut RawConfig, base_dir: &Path) -> Result<Model
         insolation,
         albedo,
         longwave,
-        greenhouse_wm2: crate::longwave::co2_forcing(co2.2, co2.0, co2.1),
+        greenhouse_wm2: crate::physics::longwave::co2_forcing(co2.2, co2.0, co2.1),
         transport,
         heat_capacity,
         extra_wm2,
@@ -283,7 +283,7 @@ fn insolation_spec(c: &Checker, ins: &mut RawInsolation) -> Result<InsolationSpe
     let peri = c.num("insolation.perihelion_deg", &mut ins.perihelion_deg)?;
     let form = match kind {
         "legendre" => {
-            let default_s2 = crate::insolation::s2_from_obliquity(obl.to_radians());
+            let default_s2 = crate::physics::insolation::s2_from_obliquity(obl.to_radians());
             InsolationForm::Legendre {
                 s2: c.num_or("insolation.s2", &mut ins.s2, default_s2)?,
             }

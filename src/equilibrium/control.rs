@@ -7,9 +7,9 @@
 
 use crate::config::keys::{self, Fast};
 use crate::config::{ConfigError, Loaded};
-use crate::longwave::{co2_forcing, Longwave};
 use crate::model::{Model, Sunlight};
-use crate::transport::Transport;
+use crate::physics::longwave::{co2_forcing, Longwave};
+use crate::physics::transport::Transport;
 
 /// Units of a control key's values, for output files (the registry's).
 pub fn control_units(key: &str) -> &'static str {
@@ -239,7 +239,7 @@ impl Controlled {
             Some(Fast::LinearA) => out.iter_mut().for_each(|o| *o = -1.0),
             Some(Fast::LinearB) => {
                 for (o, t) in out.iter_mut().zip(temps) {
-                    *o = -(t - crate::longwave::ZERO_CELSIUS);
+                    *o = -(t - crate::physics::longwave::ZERO_CELSIUS);
                 }
             }
             // The convergence is linear in the diffusivity scale.

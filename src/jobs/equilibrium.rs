@@ -70,7 +70,7 @@ impl StartClimate {
             .grid
             .x_centres
             .iter()
-            .map(|&x| mean_c + crate::longwave::ZERO_CELSIUS + p1k * x + p2k * crate::grid::p2(x))
+            .map(|&x| mean_c + crate::physics::longwave::ZERO_CELSIUS + p1k * x + p2k * crate::grid::p2(x))
             .collect()
     }
 }
@@ -123,7 +123,7 @@ pub fn family(cfg: &Loaded, section_key: &str, key: &str, ends: [f64; 2]) -> Res
         .grid
         .x_centres
         .iter()
-        .map(|&x| crate::longwave::ZERO_CELSIUS + 15.0 - 30.0 * crate::grid::p2(x))
+        .map(|&x| crate::physics::longwave::ZERO_CELSIUS + 15.0 - 30.0 * crate::grid::p2(x))
         .collect();
     let n = m0.len();
     let mut ws = crate::model::Workspace::new(n);

@@ -7,8 +7,11 @@
 //!
 //! Both conserve energy: the area-weighted sum of the convergence is zero to round-off.
 
-use crate::grid::{p2, Grid};
+use crate::grid::Grid;
 use crate::linalg::Tridiag;
+
+pub mod diffusive;
+pub mod relaxation;
 
 /// The transport form, with its coefficients on a grid.
 #[derive(Debug, Clone, PartialEq)]
@@ -31,15 +34,8 @@ pub enum Transport {
 impl Transport {
     /// Diffusive transport with `D(x) = d0 (1 + d2 P2(x))` (W m-2 K-1).
     pub fn diffusive(grid: &Grid, d0: f64, d2: f64) -> Transport {
-        let n = grid.len();
-        let mut face_k = vec![0.0; n + 1];
-        for (k, fk) in face_k.iter_mut().enumerate().take(n).skip(1) {
-            let xf = grid.x_faces[k];
-            let d = d0 * (1.0 + d2 * p2(xf));
-            *fk = d * (1.0 - xf * xf) / (grid.x_centres[k] - grid.x_centres[k - 1]);
-        }
         Transport::Diffusive {
-            face_k,
+            face_k: diffusive::face_conductances(grid, d0, d2),
             inv_dx: grid.dx.iter().map(|d| 1.0 / d).collect(),
         }
     }
@@ -47,48 +43,17 @@ impl Transport {
     /// Transport convergence (W m-2) into `out`.
     #[inline]
     pub fn convergence(&self, grid: &Grid, temps: &[f64], out: &mut [f64]) {
-        let n = temps.len();
         match self {
-            Transport::Diffusive { face_k, inv_dx } => {
-                let mut flux_lo = 0.0; // K_i (T_i - T_{i-1}) at the lower face
-                for i in 0..n {
-                    let flux_hi = if i + 1 < n {
-                        face_k[i + 1] * (temps[i + 1] - temps[i])
-                    } else {
-                        0.0
-                    };
-                    out[i] = (flux_hi - flux_lo) * inv_dx[i];
-                    flux_lo = flux_hi;
-                }
-            }
-            Transport::Relaxation { rate } => {
-                let mean = grid.mean(temps);
-                for (o, t) in out.iter_mut().zip(temps) {
-                    *o = rate * (mean - t);
-                }
-            }
+            Transport::Diffusive { face_k, inv_dx } => diffusive::convergence(face_k, inv_dx, temps, out),
+            Transport::Relaxation { rate } => relaxation::convergence(grid, *rate, temps, out),
         }
     }
 
     /// Add the Jacobian of the convergence (W m-2 K-1) to `jac`.
     pub fn add_jacobian(&self, jac: &mut Tridiag) {
-        let n = jac.len();
         match self {
-            Transport::Diffusive { face_k, inv_dx } => {
-                for i in 0..n {
-                    let lo = face_k[i] * inv_dx[i];
-                    let hi = face_k[i + 1] * inv_dx[i];
-                    jac.lower[i] += lo;
-                    jac.upper[i] += hi;
-                    jac.diag[i] -= lo + hi;
-                }
-            }
-            Transport::Relaxation { rate } => {
-                for d in jac.diag.iter_mut() {
-                    *d -= rate;
-                }
-                jac.rank_one = Some(jac.rank_one.unwrap_or(0.0) + rate);
-            }
+            Transport::Diffusive { face_k, inv_dx } => diffusive::add_jacobian(face_k, inv_dx, jac),
+            Transport::Relaxation { rate } => relaxation::add_jacobian(*rate, jac),
         }
     }
 }

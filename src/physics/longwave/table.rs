@@ -1,14 +1,11 @@
-//! Outgoing longwave radiation (OLR) at the top of the atmosphere, in W m-2, as a function of
-//! surface temperature in K. One enum variant per form (DESIGN section 2).
+//! OLR tabulated against surface temperature (from a CSV file), interpolated by monotone
+//! piecewise cubics (PCHIP).
 //!
-//! Reference: CODATA 2018 for the Stefan-Boltzmann constant; Fritsch and Carlson (1980, SIAM J.
-//! Numer. Anal. 17) for the monotone piecewise-cubic interpolation of tabulated OLR.
-
-/// Stefan-Boltzmann constant, W m-2 K-4 (CODATA 2018, exact in the 2019 SI).
-pub const STEFAN_BOLTZMANN: f64 = 5.670_374_419e-8;
-
-/// 0 degrees C in K.
-pub const ZERO_CELSIUS: f64 = 273.15;
+//! When to use it: OLR from a radiation code or observations, where no closed form fits over
+//! the temperatures the runs visit; the model is defined only inside the table's range.
+//!
+//! Reference: Fritsch and Carlson (1980, SIAM J. Numer. Anal. 17) for the monotone
+//! piecewise-cubic interpolation; the end slopes as in scipy's `PchipInterpolator`.
 
 /// A tabulated OLR curve with monotone cubic (PCHIP) interpolation.
 #[derive(Debug, Clone, PartialEq)]
@@ -96,93 +93,10 @@ fn pchip_slopes(x: &[f64], y: &[f64]) -> Vec<f64> {
     d
 }
 
-/// The OLR form.
-#[derive(Debug, Clone, PartialEq)]
-pub enum Longwave {
-    /// `A + B (T - 273.15)`; `a` in W m-2, `b` in W m-2 K-1 (Budyko 1969).
-    Linear {
-        /// OLR at 0 C, W m-2.
-        a: f64,
-        /// Slope, W m-2 K-1.
-        b: f64,
-    },
-    /// `eps sigma T^4`.
-    GrayBody {
-        /// Effective emissivity (0..1].
-        emissivity: f64,
-    },
-    /// `sigma (T - lapse_rate * emission_height)^4`: the emitting layer sits `emission_height`
-    /// above the surface on a fixed lapse rate.
-    EmissionLevel {
-        /// Lapse rate in K per km.
-        lapse_rate: f64,
-        /// Height of the emitting layer in km.
-        height: f64,
-    },
-    /// Tabulated OLR(T).
-    Table(OlrTable),
-}
-
-impl Longwave {
-    /// OLR (W m-2) and dOLR/dT (W m-2 K-1) at surface temperature `t` (K).
-    #[inline(always)]
-    pub fn eval(&self, t: f64) -> (f64, f64) {
-        match self {
-            Longwave::Linear { a, b } => (a + b * (t - ZERO_CELSIUS), *b),
-            Longwave::GrayBody { emissivity } => {
-                let t3 = t * t * t;
-                (
-                    emissivity * STEFAN_BOLTZMANN * t3 * t,
-                    4.0 * emissivity * STEFAN_BOLTZMANN * t3,
-                )
-            }
-            Longwave::EmissionLevel { lapse_rate, height } => {
-                let te = t - lapse_rate * height;
-                let t3 = te * te * te;
-                (STEFAN_BOLTZMANN * t3 * te, 4.0 * STEFAN_BOLTZMANN * t3)
-            }
-            Longwave::Table(table) => table.eval(t),
-        }
-    }
-
-    /// The temperature range (K) where the form is defined; `None` for the closed forms.
-    pub fn valid_range(&self) -> Option<(f64, f64)> {
-        match self {
-            Longwave::Table(t) => Some(t.range()),
-            _ => None,
-        }
-    }
-}
-
-/// Radiative forcing of CO2 relative to a reference concentration, `k ln(c / c_ref)` W m-2.
-/// Reference: Myhre et al. (1998, Geophys. Res. Lett. 25), `k = 5.35` W m-2.
-pub fn co2_forcing(k: f64, co2: f64, reference: f64) -> f64 {
-    k * (co2 / reference).ln()
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
     use approx::assert_relative_eq;
-
-    #[test]
-    fn doubling_co2_gives_3_71_w_m2() {
-        // Reference: Myhre et al. (1998): 5.35 ln 2 = 3.708 W m-2.
-        assert_relative_eq!(co2_forcing(5.35, 560.0, 280.0), 3.708, epsilon = 5e-4);
-    }
-
-    #[test]
-    fn dry_adiabat_emission_level() {
-        // Common practice: dry adiabatic lapse rate g/cp = 9.80665/1004 = 9.77 K/km ~ 9.8 K/km.
-        let g_over_cp = 9.80665 / 1004.0 * 1000.0;
-        assert_relative_eq!(g_over_cp, 9.8, epsilon = 0.05);
-        let lw = Longwave::EmissionLevel {
-            lapse_rate: 6.5,
-            height: 5.0,
-        };
-        let (v, _) = lw.eval(288.0);
-        assert_relative_eq!(v, STEFAN_BOLTZMANN * (288.0_f64 - 32.5).powi(4), epsilon = 1e-9);
-    }
 
     #[test]
     fn pchip_is_monotone_and_interpolates() {
