@@ -34,4 +34,5 @@ pub mod output;
 pub mod physics;
 pub mod plot;
 pub mod quadrature;
+pub mod registry;
 pub mod tally;

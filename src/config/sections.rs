@@ -2,9 +2,7 @@
 //! Units are spelled one way everywhere: "W m-2", "W m-2 K-1", "ppm", "K", "degC", "degree",
 //! "km", "K km-1", "m", "J m-2 K-1", "year", "day", "1".
 
-use super::keys::{
-    albedo_set, insolation_set, longwave_set, set_co2, transport_set, Default, Fast, Key, Range, Section,
-};
+use super::keys::{albedo_set, insolation_set, set_co2, transport_set, Default, Fast, Key, Range, Section};
 use super::validate::{MAX_BANDS, MIN_YEARS};
 
 const fn whole(name: &'static str, default: i64, lo: f64, hi: f64) -> Key {
@@ -98,44 +96,12 @@ const ALBEDO: &[Key] = &[
         .set(albedo_set::width),
 ];
 
-const LONGWAVE: &[Key] = &[
-    Key::choice(
-        "longwave.kind",
-        "linear",
-        &["linear", "gray_body", "emission_level", "table"],
-    ),
-    Key::number("longwave.a", "W m-2", 203.3, Range::Any)
-        .label("OLR at 0 °C, A (W m⁻²)")
-        .kinds(&["linear"])
-        .varies()
-        .set(longwave_set::a)
-        .fast(Fast::LinearA),
-    Key::number("longwave.b", "W m-2 K-1", 2.09, Range::Above(0.0))
-        .label("OLR slope B (W m⁻² K⁻¹)")
-        .kinds(&["linear"])
-        .varies()
-        .set(longwave_set::b)
-        .fast(Fast::LinearB),
-    Key::number("longwave.emissivity", "1", 0.61, Range::AboveUpTo(0.0, 1.0))
-        .label("Emissivity")
-        .kinds(&["gray_body"])
-        .varies()
-        .set(longwave_set::emissivity),
-    Key::number(
-        "longwave.lapse_rate_k_per_km",
-        "K km-1",
-        6.5,
-        Range::Closed(0.0, 15.0),
-    )
-    .label("Lapse rate (K km⁻¹)")
-    .kinds(&["emission_level"])
-    .set(longwave_set::lapse_rate),
-    Key::number("longwave.emission_height_km", "km", 5.0, Range::Closed(0.0, 30.0))
-        .label("Emission height (km)")
-        .kinds(&["emission_level"])
-        .set(longwave_set::height),
-    Key::text("longwave.table", "(none)").kinds(&["table"]),
-];
+// The keys of each OLR kind are declared beside its physics (`physics::longwave::KINDS`).
+const LONGWAVE: &[Key] = &[Key::choice(
+    "longwave.kind",
+    "linear",
+    crate::physics::longwave::NAMES,
+)];
 
 const GREENHOUSE: &[Key] = &[
     Key::number("greenhouse.co2_ppm", "ppm", 280.0, Range::Above(0.0))
@@ -350,69 +316,89 @@ const REGIMES: &[Key] = &[
 
 /// Every section in config order.
 pub(super) const SECTIONS: &[Section] = &[
-    Section { name: "", keys: TOP },
+    Section {
+        name: "",
+        keys: TOP,
+        forms: &[],
+    },
     Section {
         name: "grid",
         keys: GRID,
+        forms: &[],
     },
     Section {
         name: "insolation",
         keys: INSOLATION,
+        forms: &[],
     },
     Section {
         name: "albedo",
         keys: ALBEDO,
+        forms: &[],
     },
     Section {
         name: "longwave",
         keys: LONGWAVE,
+        forms: crate::physics::longwave::KINDS,
     },
     Section {
         name: "greenhouse",
         keys: GREENHOUSE,
+        forms: &[],
     },
     Section {
         name: "transport",
         keys: TRANSPORT,
+        forms: &[],
     },
     Section {
         name: "heat_capacity",
         keys: HEAT_CAPACITY,
+        forms: &[],
     },
     Section {
         name: "initial",
         keys: INITIAL,
+        forms: &[],
     },
     Section {
         name: "time",
         keys: TIME,
+        forms: &[],
     },
     Section {
         name: "forcing",
         keys: FORCING,
+        forms: &[],
     },
     Section {
         name: "equilibrium",
         keys: EQUILIBRIUM,
+        forms: &[],
     },
     Section {
         name: "output",
         keys: OUTPUT,
+        forms: &[],
     },
     Section {
         name: "sweep",
         keys: SWEEP,
+        forms: &[],
     },
     Section {
         name: "branches",
         keys: BRANCHES,
+        forms: &[],
     },
     Section {
         name: "ensemble",
         keys: ENSEMBLE,
+        forms: &[],
     },
     Section {
         name: "regimes",
         keys: REGIMES,
+        forms: &[],
     },
 ];

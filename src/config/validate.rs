@@ -171,7 +171,7 @@ impl Checker<'_> {
 }
 
 /// The registry entry of `key` (every key validation reads is declared).
-fn declared(key: &str) -> &'static keys::Key {
+fn declared(key: &str) -> &'static keys::Entry {
     keys::get(key).unwrap_or_else(|| panic!("config key {key} is not declared in the registry"))
 }
 
@@ -325,33 +325,106 @@ fn albedo_spec(c: &Checker, a: &mut RawAlbedo) -> Result<AlbedoSpec, ConfigError
     })
 }
 
-/// `[longwave]`.
+/// `[longwave]`: the kind's own validation and form (`physics::longwave::KINDS`).
 fn longwave_spec(c: &Checker, l: &mut RawLongwave, base_dir: &Path) -> Result<Longwave, ConfigError> {
-    let kind = c.kind("longwave", &mut l.kind.clone(), l)?;
-    l.kind = Some(kind.into());
-    Ok(match kind {
-        "linear" => Longwave::Linear {
-            a: c.num("longwave.a", &mut l.a)?,
-            b: c.num("longwave.b", &mut l.b)?,
-        },
-        "gray_body" => Longwave::GrayBody {
-            emissivity: c.num("longwave.emissivity", &mut l.emissivity)?,
-        },
-        "emission_level" => Longwave::EmissionLevel {
-            lapse_rate: c.num("longwave.lapse_rate_k_per_km", &mut l.lapse_rate_k_per_km)?,
-            height: c.num("longwave.emission_height_km", &mut l.emission_height_km)?,
-        },
-        _ => {
-            let rel = l.table.clone().ok_or_else(|| {
-                c.range_err(
-                    "longwave.table",
-                    "(missing)".into(),
-                    "required with longwave.kind = \"table\": a CSV path".into(),
-                )
-            })?;
-            Longwave::Table(read_olr_table(&base_dir.join(&rel))?)
+    let name = c.kind("longwave", &mut l.kind.clone(), l)?;
+    l.kind = Some(name.into());
+    let kind = crate::physics::longwave::KINDS.iter().find(|k| k.name == name);
+    let kind = kind.expect("every allowed longwave.kind is in physics::longwave::KINDS");
+    let mut r = SectionReader::new(c, "longwave", name, l, base_dir);
+    let form = (kind.build)(&mut r);
+    let (form, resolved) = r.finish(form)?;
+    *l = resolved;
+    Ok(form)
+}
+
+/// Reads a raw section's values for a kind's build function: each checked against the
+/// registry, defaults filled in and written back; holds the first error.
+struct SectionReader<'a> {
+    c: &'a Checker<'a>,
+    section: &'static str,
+    kind: &'static str,
+    table: toml::Table,
+    base_dir: &'a Path,
+    error: Option<ConfigError>,
+}
+
+impl<'a> SectionReader<'a> {
+    fn new<T: Serialize>(
+        c: &'a Checker<'a>,
+        section: &'static str,
+        kind: &'static str,
+        raw: &T,
+        base_dir: &'a Path,
+    ) -> Self {
+        let table = toml::Table::try_from(raw).unwrap_or_default();
+        SectionReader {
+            c,
+            section,
+            kind,
+            table,
+            base_dir,
+            error: None,
         }
-    })
+    }
+
+    fn short<'k>(&self, key: &'k str) -> &'k str {
+        key.strip_prefix(self.section)
+            .and_then(|k| k.strip_prefix('.'))
+            .unwrap_or(key)
+    }
+
+    fn stop(&mut self, e: ConfigError) -> crate::registry::Stop {
+        self.error.get_or_insert(e);
+        crate::registry::Stop
+    }
+
+    /// The built form with the resolved raw section, or the error that stopped the build.
+    fn finish<F, T: serde::de::DeserializeOwned>(
+        self,
+        form: Result<F, crate::registry::Stop>,
+    ) -> Result<(F, T), ConfigError> {
+        let form = match (form, self.error) {
+            (Ok(f), _) => f,
+            (Err(_), e) => return Err(e.expect("a stopped build holds its error")),
+        };
+        let raw = toml::Value::Table(self.table)
+            .try_into()
+            .map_err(|e: toml::de::Error| ConfigError::Key {
+                path: self.c.source.to_string(),
+                key: self.section.into(),
+                message: e.to_string(),
+            })?;
+        Ok((form, raw))
+    }
+}
+
+impl crate::registry::Reader for SectionReader<'_> {
+    fn num(&mut self, key: &str) -> Result<f64, crate::registry::Stop> {
+        let short = self.short(key).to_string();
+        let mut slot = self.table.get(&short).and_then(toml::Value::as_float);
+        match self.c.num(key, &mut slot) {
+            Ok(v) => {
+                self.table.insert(short, toml::Value::Float(v));
+                Ok(v)
+            }
+            Err(e) => Err(self.stop(e)),
+        }
+    }
+
+    fn table(&mut self, key: &str) -> Result<(Vec<f64>, Vec<f64>), crate::registry::Stop> {
+        let Some(rel) = self.table.get(self.short(key)).and_then(toml::Value::as_str) else {
+            let allowed = format!(
+                "required with {}.kind = \"{}\": a CSV path",
+                self.section, self.kind
+            );
+            return Err(self.stop(self.c.range_err(key, "(missing)".into(), allowed)));
+        };
+        match read_olr_table(&self.base_dir.join(rel)) {
+            Ok(t) => Ok((t.temps, t.olr)),
+            Err(e) => Err(self.stop(e)),
+        }
+    }
 }
 
 /// `[greenhouse]`: CO2, its reference and the log coefficient.

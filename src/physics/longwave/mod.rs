@@ -17,6 +17,14 @@ pub mod table;
 
 pub use table::OlrTable;
 
+/// Every OLR kind with its config keys and how it is built from them (the config registry and
+/// validation read this list).
+pub const KINDS: &[crate::registry::Kind<Longwave>] =
+    &[linear::KIND, gray_body::KIND, emission_level::KIND, table::KIND];
+
+/// The names of [`KINDS`], in order (the values `longwave.kind` allows).
+pub const NAMES: &[&str] = &["linear", "gray_body", "emission_level", "table"];
+
 /// The OLR form.
 #[derive(Debug, Clone, PartialEq)]
 pub enum Longwave {
