@@ -51,7 +51,7 @@ mod tests {
     #[test]
     fn olr_is_the_closed_form_of_one_gray_layer() {
         // Closed form (common practice): the layer at T_a = T / 2^(1/4) and the surface.
-        for (eps, t) in [(0.0, 255.0), (0.5, 288.0), (0.78, 288.0), (1.0, 300.0)] {
+        for (eps, t) in [(0.0, 255.0_f64), (0.5, 288.0), (0.78, 288.0), (1.0, 300.0)] {
             let ta4 = t.powi(4) / 2.0;
             let top = (1.0 - eps) * STEFAN_BOLTZMANN * t.powi(4) + eps * STEFAN_BOLTZMANN * ta4;
             let (o, d) = olr(eps, t);
