@@ -131,6 +131,14 @@ fn a_key_of_another_kind_is_refused_naming_the_kind_and_its_keys() {
     for part in ["transport.diffusivity", "relaxation", "kind, relaxation_rate"] {
         assert!(err.contains(part), "`{part}` missing from: {err}");
     }
+    // Switching the kind by `--set` drops the file's keys of the old kind.
+    std::fs::write(dir.join("d.toml"), "[transport]\ndiffusivity = 0.4\n").unwrap();
+    let o = icefold(
+        &dir,
+        &["check", "d.toml", "--set", "transport.kind=\"relaxation\""],
+    );
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    assert!(!String::from_utf8_lossy(&o.stdout).contains("diffusivity"));
     // The resolved config of every kind is accepted again as input (keys such as
     // `albedo.width_k` are resolved for every albedo kind).
     for kind in ["step", "smooth", "ramp"] {

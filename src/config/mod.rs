@@ -231,6 +231,7 @@ pub fn load_str(text: &str, source: &str, base_dir: &Path, sets: &[String]) -> R
         })?;
         set_keys.push((key, arg.clone()));
     }
+    drop_replaced_kind_keys(&mut tree, &set_keys);
     from_tree(tree, source, base_dir).map_err(|e| {
         // Blame the --set argument when the failing key came from it.
         let key = match &e {
@@ -249,6 +250,32 @@ pub fn load_str(text: &str, source: &str, base_dir: &Path, sets: &[String]) -> R
             None => e,
         }
     })
+}
+
+/// A `--set <section>.kind=NAME` switches the section's kind: the file's keys of that section
+/// the new kind does not use are dropped (keys given by `--set` itself are kept, and refused
+/// by validation if they belong to another kind).
+fn drop_replaced_kind_keys(tree: &mut toml::Value, set_keys: &[(String, String)]) {
+    for (key, _) in set_keys {
+        let Some(section) = key.strip_suffix(".kind") else {
+            continue;
+        };
+        let Some(kind) = tree
+            .get(section)
+            .and_then(|s| s.get("kind"))
+            .and_then(|k| k.as_str())
+        else {
+            continue;
+        };
+        let kind = kind.to_string();
+        let Some(table) = tree.get_mut(section).and_then(toml::Value::as_table_mut) else {
+            continue;
+        };
+        table.retain(|name, _| {
+            let full = format!("{section}.{name}");
+            set_keys.iter().any(|(k, _)| *k == full) || keys::get(&full).is_none_or(|k| k.used_by(&kind))
+        });
+    }
 }
 
 fn line_of(text: &str, offset: usize) -> usize {
