@@ -28,23 +28,15 @@ use crate::physics::longwave::co2_forcing;
 use std::f64::consts::PI;
 use std::sync::Arc;
 
-/// Driver columns a forcing CSV may have besides `year` and the keys of [`TIME_VARYING_KEYS`].
+/// Driver columns a forcing CSV may have besides `year` and the time-varying keys of the key
+/// registry ([`crate::config::keys`]).
 pub const COLUMNS: &[&str] = &["co2_ppm", "solar_scale", "forcing_wm2"];
 
-/// Dotted config keys that may vary in time (as a CSV column or a piece target).
-pub const TIME_VARYING_KEYS: &[&str] = &[
-    "greenhouse.co2_ppm",
-    "greenhouse.reference_co2_ppm",
-    "greenhouse.log_coefficient_wm2",
-    "forcing.constant_wm2",
-    "forcing.solar_scale",
-    "insolation.solar_constant",
-    "longwave.a",
-    "longwave.b",
-    "longwave.emissivity",
-    "transport.diffusivity",
-    "transport.relaxation_rate",
-];
+/// Whether `name` may be a CSV column or piece target: a driver column or a key the registry
+/// declares time-varying.
+pub fn is_channel(name: &str) -> bool {
+    COLUMNS.contains(&name) || crate::config::keys::get(name).is_some_and(|k| k.time_varying)
+}
 
 /// Largest forcing file accepted, rows (refused up front beyond it).
 pub const MAX_ROWS: usize = 20_000_000;
@@ -56,19 +48,19 @@ pub const MAX_FILE_BYTES: u64 = 2 * 1024 * 1024 * 1024;
 pub fn allowed_names() -> String {
     COLUMNS
         .iter()
-        .chain(TIME_VARYING_KEYS)
         .copied()
+        .chain(crate::config::keys::time_varying_keys().map(|k| k.name))
         .collect::<Vec<_>>()
         .join(", ")
 }
 
-/// Units of a channel name, for output attributes.
+/// Units of a channel name, for output attributes (a key's from the registry).
 pub fn units_of(name: &str) -> &'static str {
     match name {
-        "co2_ppm" | "greenhouse.co2_ppm" | "greenhouse.reference_co2_ppm" => "ppm",
-        "solar_scale" | "forcing.solar_scale" | "longwave.emissivity" => "1",
-        "longwave.b" | "transport.diffusivity" | "transport.relaxation_rate" => "W m-2 K-1",
-        _ => "W m-2",
+        "co2_ppm" => "ppm",
+        "solar_scale" => "1",
+        "forcing_wm2" => "W m-2",
+        key => crate::config::keys::units(key),
     }
 }
 
@@ -152,7 +144,7 @@ impl ForcingSeries {
             ));
         }
         for (k, n) in names.iter().enumerate().skip(1) {
-            if !COLUMNS.contains(n) && !TIME_VARYING_KEYS.contains(n) {
+            if !is_channel(n) {
                 return Err(err(
                     hl,
                     format!("unknown column `{}`; allowed: {}", shorten(n), allowed_names()),
@@ -342,7 +334,7 @@ pub enum PieceShape {
 /// An analytic forcing piece on one channel, active from `start` (years).
 #[derive(Debug, Clone, PartialEq)]
 pub struct Piece {
-    /// Channel name (a [`COLUMNS`] name or a [`TIME_VARYING_KEYS`] key).
+    /// Channel name (a [`COLUMNS`] name or a time-varying key).
     pub target: String,
     /// Shape.
     pub shape: PieceShape,
@@ -466,6 +458,8 @@ pub struct ForcingSpec {
     pub series: Option<ForcingSeries>,
     channels: Vec<Channel>,
     bases: Bases,
+    /// The pieces as given (for [`ForcingSpec::with_bases`]).
+    pieces: Vec<Piece>,
     /// Every breakpoint of the series and the pieces, increasing, finite.
     breaks: Vec<f64>,
 }
@@ -512,13 +506,12 @@ impl ForcingSpec {
                 other => return Err(format!("`{other}` cannot vary in time; allowed: {}", allowed_names())),
             };
             let base = base.ok_or_else(|| format!("`{name}` can vary in time only with {needs}"))?;
-            // Every name matched above is in one of the two lists.
-            let Some(name) = COLUMNS
-                .iter()
-                .chain(TIME_VARYING_KEYS)
-                .copied()
-                .find(|k| *k == name)
-            else {
+            // Every name matched above is a column or a time-varying key.
+            let Some(name) = COLUMNS.iter().copied().find(|k| *k == name).or_else(|| {
+                crate::config::keys::get(name)
+                    .filter(|k| k.time_varying)
+                    .map(|k| k.name)
+            }) else {
                 continue;
             };
             channels.push(Channel {
@@ -546,8 +539,15 @@ impl ForcingSpec {
             series,
             channels,
             bases,
+            pieces,
             breaks,
         })
+    }
+
+    /// The same series and pieces over other configured values (a control or ensemble
+    /// parameter changed on the model spec); errors as [`ForcingSpec::new`].
+    pub fn with_bases(&self, bases: Bases) -> Result<ForcingSpec, String> {
+        ForcingSpec::new(self.series.clone(), self.pieces.clone(), bases)
     }
 
     /// Check every channel stays in its allowed range over `[0, years]`: at every CSV row and

@@ -35,5 +35,6 @@ pub mod output;
 pub mod physics;
 pub mod plot;
 pub mod quadrature;
+pub mod registry;
 pub mod tally;
 pub mod text;

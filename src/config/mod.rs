@@ -4,11 +4,15 @@
 //! Two stages (see DEVELOPERS.md): `raw` holds values as written; `validate` checks ranges and
 //! builds `spec`. Every error names the file and the dotted key (or line) and what is allowed.
 
+pub mod keys;
 pub mod raw;
+mod sections;
 pub mod spec;
 pub mod table;
 mod validate;
+mod validate_jobs;
 
+use serde::Deserialize;
 use std::path::{Path, PathBuf};
 
 pub use raw::RawConfig;
@@ -99,16 +103,39 @@ impl Loaded {
         toml::to_string_pretty(&self.resolved).unwrap_or_default()
     }
 
-    /// A copy with one dotted numeric key set to `value`, re-validated (used by sweeps and
-    /// continuation to vary any numeric key).
+    /// A copy with one control key set to `value` (used by regime maps for each row): the
+    /// model spec is rebuilt through the key's registry setter and checked as validation checks
+    /// it (a typed rebuild, no TOML); the resolved tree records the value.
     pub fn with_value(&self, key: &str, value: f64) -> Result<Loaded, ConfigError> {
-        let mut tree = self.resolved.clone();
-        set_dotted(&mut tree, key, toml::Value::Float(value)).map_err(|m| ConfigError::Key {
+        let model = self.model_with(key, value)?;
+        let mut out = self.clone();
+        out.spec.model = model;
+        set_dotted(&mut out.resolved, key, toml::Value::Float(value)).map_err(|m| ConfigError::Key {
             path: self.source.clone(),
             key: key.to_string(),
             message: m,
         })?;
-        from_tree(tree, &self.source, &self.base_dir)
+        Ok(out)
+    }
+
+    /// The model spec with control key `key` set to `value` (see [`keys::set_model_value`]);
+    /// the key must be used by this configuration's kinds.
+    pub fn model_with(&self, key: &str, value: f64) -> Result<spec::ModelSpec, ConfigError> {
+        if self.number(key).is_none() {
+            return Err(ConfigError::Key {
+                path: self.source.clone(),
+                key: key.to_string(),
+                message: "not a numeric key of this configuration (is its section's kind using it?)".into(),
+            });
+        }
+        keys::set_model_value(&self.spec.model, key, value, self.spec.time.years).map_err(|allowed| {
+            ConfigError::Range {
+                path: self.source.clone(),
+                key: key.to_string(),
+                value: value.to_string(),
+                allowed,
+            }
+        })
     }
 
     /// A copy with several dotted numeric keys set, validated once (used by ensembles).
@@ -189,6 +216,7 @@ pub fn load_str(text: &str, source: &str, base_dir: &Path, sets: &[String]) -> R
         })?;
         set_keys.push((key, arg.clone()));
     }
+    drop_replaced_kind_keys(&mut tree, &set_keys);
     from_tree(tree, source, base_dir).map_err(|e| {
         // Blame the --set argument when the failing key came from it.
         let key = match &e {
@@ -207,6 +235,32 @@ pub fn load_str(text: &str, source: &str, base_dir: &Path, sets: &[String]) -> R
             None => e,
         }
     })
+}
+
+/// A `--set <section>.kind=NAME` switches the section's kind: the file's keys of that section
+/// the new kind does not use are dropped (keys given by `--set` itself are kept, and refused
+/// by validation if they belong to another kind).
+fn drop_replaced_kind_keys(tree: &mut toml::Value, set_keys: &[(String, String)]) {
+    for (key, _) in set_keys {
+        let Some(section) = key.strip_suffix(".kind") else {
+            continue;
+        };
+        let Some(kind) = tree
+            .get(section)
+            .and_then(|s| s.get("kind"))
+            .and_then(|k| k.as_str())
+        else {
+            continue;
+        };
+        let kind = kind.to_string();
+        let Some(table) = tree.get_mut(section).and_then(toml::Value::as_table_mut) else {
+            continue;
+        };
+        table.retain(|name, _| {
+            let full = format!("{section}.{name}");
+            set_keys.iter().any(|(k, _)| *k == full) || keys::get(&full).is_none_or(|k| k.used_by(&kind))
+        });
+    }
 }
 
 fn line_of(text: &str, offset: usize) -> usize {
@@ -240,6 +294,14 @@ fn from_tree(mut tree: toml::Value, source: &str, base_dir: &Path) -> Result<Loa
     })
 }
 
+/// The raw values of a config text without validating them (e.g. the resolved config stored
+/// in an output file, whose data files may not be at hand); `None` if it does not parse.
+pub fn raw_from_text(text: &str) -> Option<RawConfig> {
+    let mut tree: toml::Value = toml::from_str(text).ok()?;
+    floats_except_integer_keys(&mut tree, "");
+    RawConfig::deserialize(tree).ok()
+}
+
 /// Serde's type names in plain words: "expected f64" reads "expected a number".
 fn plain_types(message: &str) -> String {
     message
@@ -259,7 +321,7 @@ fn floats_except_integer_keys(v: &mut toml::Value, prefix: &str) {
                     format!("{prefix}.{k}")
                 };
                 if let toml::Value::Integer(i) = child {
-                    if !raw::INTEGER_KEYS.contains(&key.as_str()) {
+                    if !keys::is_whole_key(&key) {
                         *child = toml::Value::Float(*i as f64);
                     }
                 } else {

@@ -5,21 +5,6 @@
 
 use serde::{Deserialize, Serialize};
 
-/// Integer-valued keys; every other integer written in a config or `--set` is read as a float.
-pub const INTEGER_KEYS: &[&str] = &[
-    "grid.bands",
-    "sweep.steps",
-    "branches.max_points",
-    "ensemble.members",
-    "ensemble.seed",
-    "regimes.rows",
-    "regimes.columns",
-    "regimes.max_points",
-    "equilibrium.max_iterations",
-    "time.max_steps",
-    "output.deflate_level",
-];
-
 /// The whole file.
 #[derive(Debug, Clone, Default, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
@@ -128,7 +113,7 @@ pub struct RawAlbedo {
 #[derive(Debug, Clone, Default, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct RawLongwave {
-    /// "linear", "gray_body", "emission_level" or "table".
+    /// "linear", "gray_body", "emission_level", "table" or "gray_layer".
     pub kind: Option<String>,
     /// Linear OLR at 0 C, W m-2.
     pub a: Option<f64>,
@@ -142,6 +127,8 @@ pub struct RawLongwave {
     pub emission_height_km: Option<f64>,
     /// CSV path of an OLR table (relative to the config file).
     pub table: Option<String>,
+    /// Longwave emissivity of the gray layer.
+    pub layer_emissivity: Option<f64>,
 }
 
 /// `[greenhouse]`.

@@ -377,3 +377,37 @@ impl RegimesSpec {
         self.row_spacing.values(self.row_from, self.row_to, self.rows)
     }
 }
+
+impl ModelSpec {
+    /// The configured value of every key that may vary in time (`None` where the configured
+    /// kinds do not use it), the bases of a forcing history.
+    pub fn forcing_bases(&self) -> crate::forcing::Bases {
+        let (co2_ppm, reference_co2_ppm, log_coefficient_wm2) = self.co2;
+        let (linear_a, linear_b) = match &self.longwave {
+            Longwave::Linear { a, b } => (Some(*a), Some(*b)),
+            _ => (None, None),
+        };
+        crate::forcing::Bases {
+            co2_ppm,
+            reference_co2_ppm,
+            log_coefficient_wm2,
+            constant_wm2: self.extra_wm2,
+            solar_scale: self.solar_scale,
+            solar_constant: self.insolation.solar_constant,
+            linear_a,
+            linear_b,
+            emissivity: match &self.longwave {
+                Longwave::GrayBody { emissivity } => Some(*emissivity),
+                _ => None,
+            },
+            diffusivity: match self.transport {
+                TransportSpec::Diffusive { d0, .. } => Some(d0),
+                _ => None,
+            },
+            relaxation_rate: match self.transport {
+                TransportSpec::Relaxation { rate } => Some(rate),
+                _ => None,
+            },
+        }
+    }
+}

@@ -1,40 +1,30 @@
-//! A model as a function of one numeric config key (the control of sweeps and continuation).
+//! A model as a function of one control key (sweeps, continuation, regime maps).
 //!
-//! Common controls are applied to a built model directly (insolation, CO2, additive forcing,
-//! linear OLR, diffusivity); any other numeric key rebuilds the model from the re-validated
-//! config, which is slower but exact.
+//! A key whose registry entry has an in-place change ([`Fast`]: insolation, CO2, additive
+//! forcing, linear OLR, diffusivity) is applied to a built model directly, with a closed-form
+//! `dG/dp`; any other control key is set on the validated model spec through its registry
+//! setter and the model rebuilt from the spec (slower but exact; no TOML).
 
+use crate::config::keys::{self, Fast};
 use crate::config::{ConfigError, Loaded};
 use crate::model::{Model, Sunlight};
 use crate::physics::longwave::{co2_forcing, Longwave};
 use crate::physics::transport::Transport;
 
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-enum Fast {
-    SolarConstant,
-    Co2,
-    ConstantForcing,
-    SolarScale,
-    LinearA,
-    LinearB,
-    Diffusivity,
+/// Units of a control key's values, for output files (the registry's).
+pub fn control_units(key: &str) -> &'static str {
+    keys::units(key)
 }
 
-/// Units of a control key's values, for output files.
-pub fn control_units(key: &str) -> &'static str {
-    match key {
-        "insolation.solar_constant"
-        | "forcing.constant_wm2"
-        | "longwave.a"
-        | "greenhouse.log_coefficient_wm2" => "W m-2",
-        "longwave.b" | "transport.diffusivity" | "transport.relaxation_rate" => "W m-2 K-1",
-        "greenhouse.co2_ppm" | "greenhouse.reference_co2_ppm" => "ppm",
-        "insolation.obliquity_deg" => "degree",
-        "albedo.freeze_temperature_c" => "degC",
-        "albedo.width_k" => "K",
-        "longwave.lapse_rate_k_per_km" => "K km-1",
-        "longwave.emission_height_km" => "km",
-        _ => "1",
+/// Whether the in-place change `f` applies to `model` (built with reference value `base`):
+/// the insolation fixed in time, the OLR linear, the transport diffusive; the scaled
+/// quantities nonzero at the reference.
+fn fast_applies(f: Fast, model: &Model, base: f64) -> bool {
+    match f {
+        Fast::SolarConstant => matches!(model.sunlight, Sunlight::Fixed(_)) && base > 0.0,
+        Fast::LinearA | Fast::LinearB => matches!(model.longwave, Longwave::Linear { .. }),
+        Fast::Diffusivity => matches!(model.transport, Transport::Diffusive { .. }) && base > 0.0,
+        Fast::Co2 | Fast::ConstantForcing | Fast::SolarScale => true,
     }
 }
 
@@ -60,27 +50,18 @@ impl Controlled {
             key: key.to_string(),
             message: "not a numeric key of this configuration (is its section's kind using it?)".into(),
         })?;
-        let base_model = Model::from_spec(&base.spec.model);
-        let fast = match key {
-            "insolation.solar_constant"
-                if matches!(base_model.sunlight, Sunlight::Fixed(_)) && base_value > 0.0 =>
-            {
-                Some(Fast::SolarConstant)
-            }
-            "greenhouse.co2_ppm" => Some(Fast::Co2),
-            "forcing.constant_wm2" => Some(Fast::ConstantForcing),
-            "forcing.solar_scale" => Some(Fast::SolarScale),
-            "longwave.a" if matches!(base_model.longwave, Longwave::Linear { .. }) => Some(Fast::LinearA),
-            "longwave.b" if matches!(base_model.longwave, Longwave::Linear { .. }) => Some(Fast::LinearB),
-            "transport.diffusivity"
-                if matches!(base_model.transport, Transport::Diffusive { .. }) && base_value > 0.0 =>
-            {
-                Some(Fast::Diffusivity)
-            }
-            _ => None,
+        let Some(entry) = keys::get(key).filter(|k| k.set.is_some()) else {
+            return Err(ConfigError::Key {
+                path: base.source.clone(),
+                key: key.to_string(),
+                message: format!("cannot be a control; allowed: one of {}", keys::control_names()),
+            });
         };
+        let base_model = Model::from_spec(&base.spec.model);
         // A forcing history overrides the constant drivers: vary those through a rebuild.
-        let fast = if base_model.forcing.is_some() { None } else { fast };
+        let fast = entry
+            .fast
+            .filter(|f| base_model.forcing.is_none() && fast_applies(*f, &base_model, base_value));
         Ok(Controlled {
             base: base.clone(),
             key: key.to_string(),
@@ -187,10 +168,7 @@ impl Controlled {
                     }
                 }
             }
-            None => {
-                let cfg = self.base.with_value(&self.key, p)?;
-                *model = Model::from_spec(&cfg.spec.model);
-            }
+            None => *model = Model::from_spec(&self.base.model_with(&self.key, p)?),
         }
         Ok(())
     }

@@ -294,13 +294,14 @@ fn times_ten_to(v: f64) -> String {
     format!("{mant:.3}×10{p}").replace('-', "\u{2212}")
 }
 
-/// Freezing temperature of the step albedo (°C) from the file's configuration (−10 °C if
-/// the configuration does not say).
+/// Freezing temperature of the albedo (°C) from the file's configuration, read as typed
+/// values (the registry's default if the configuration does not say).
 fn freeze_c(r: &NcReader) -> Result<f64, Error> {
+    let key = "albedo.freeze_temperature_c";
     Ok(r.attr_str("config_toml")?
-        .and_then(|c| c.parse::<toml::Table>().ok())
-        .and_then(|c| c.get("albedo")?.get("freeze_temperature_c")?.as_float())
-        .unwrap_or(-10.0))
+        .and_then(|c| crate::config::raw_from_text(&c))
+        .and_then(|c| c.albedo.freeze_temperature_c)
+        .unwrap_or_else(|| crate::config::keys::default_number(key)))
 }
 
 /// A temperature in °C as text with a true minus sign, e.g. "−10 °C".
@@ -895,19 +896,9 @@ const REGIME_PALETTE: [RGBColor; 7] = [
     RGBColor(0xF6, 0xE2, 0x7F),
 ];
 
-/// A short axis name for a control key.
+/// A short axis name for a control key (the registry's picture label).
 fn control_label(key: &str) -> String {
-    match key {
-        "insolation.solar_constant" => "Solar constant S0 (W m⁻²)".into(),
-        "greenhouse.co2_ppm" => "CO₂ (ppm)".into(),
-        "longwave.a" => "OLR at 0 °C, A (W m⁻²)".into(),
-        "longwave.b" => "OLR slope B (W m⁻² K⁻¹)".into(),
-        "albedo.ice" => "Ice albedo".into(),
-        "forcing.constant_wm2" => "Additive forcing (W m⁻²)".into(),
-        "forcing.solar_scale" => "Solar scale (1)".into(),
-        "transport.diffusivity" => "Diffusivity D (W m⁻² K⁻¹)".into(),
-        other => other.to_string(),
-    }
+    crate::config::keys::label(key)
 }
 
 /// Contiguous runs of points with the same branch and stability, as solid (stable) or dashed

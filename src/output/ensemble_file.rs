@@ -161,8 +161,8 @@ pub fn write_with(
     let p = data.keys.len();
     for (j, key) in data.keys.iter().enumerate() {
         let name = sampled_name(key);
-        let mut a = attrs("1", &format!("sampled value of config key {key}"), None);
-        a[0] = ("units", Attr::from(units_hint(key)));
+        let units = crate::config::keys::units(key);
+        let mut a = attrs(units, &format!("sampled value of config key {key}"), None);
         a.push(("config_key", Attr::from(key.as_str())));
         a.push(("distribution", Attr::from(data.distributions[j].as_str())));
         w.add_variable_f64(&name, &["member"], &a)?;
@@ -291,19 +291,6 @@ pub fn write_with(
     }
     apply_completion(&mut w, completion)?;
     w.finish()
-}
-
-fn units_hint(key: &str) -> &'static str {
-    match key {
-        k if k.ends_with("_wm2") || k == "longwave.a" || k == "insolation.solar_constant" => "W m-2",
-        k if k.ends_with("_ppm") => "ppm",
-        "longwave.b" | "transport.diffusivity" | "transport.relaxation_rate" => "W m-2 K-1",
-        k if k.ends_with("_c") => "degC",
-        k if k.ends_with("_k") => "K",
-        k if k.ends_with("_deg") => "degree",
-        "heat_capacity.value" | "heat_capacity.land_value" => "J m-2 K-1",
-        _ => "1",
-    }
 }
 
 /// Why a file cannot be read back as an ensemble file.

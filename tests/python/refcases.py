@@ -28,6 +28,11 @@ def classic(**sections) -> dict:
     """A deep copy of CLASSIC with whole sections replaced or extended (dict per section)."""
     cfg = copy.deepcopy(CLASSIC)
     for name, values in sections.items():
+        # Every key of these sections but `kind` belongs to one kind, and icefold refuses a key
+        # of another kind: a new kind starts the section afresh.
+        old_kind = cfg.get(name, {}).get("kind")
+        if name in ("longwave", "transport") and values.get("kind", old_kind) != old_kind:
+            cfg[name] = {}
         cfg.setdefault(name, {}).update(values)
     return cfg
 

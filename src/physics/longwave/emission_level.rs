@@ -7,7 +7,9 @@
 //! Reference: the Stefan-Boltzmann law, constant from CODATA 2018; the emission-level picture
 //! of the greenhouse effect is common practice.
 
+use super::Longwave;
 use super::STEFAN_BOLTZMANN;
+use crate::registry::{Key, Kind, Range};
 
 /// OLR (W m-2) and dOLR/dT (W m-2 K-1) at surface temperature `t` (K) for a lapse rate in
 /// K per km and an emission height in km.
@@ -17,6 +19,42 @@ pub fn olr(lapse_rate: f64, height: f64, t: f64) -> (f64, f64) {
     let t3 = te * te * te;
     (STEFAN_BOLTZMANN * t3 * te, 4.0 * STEFAN_BOLTZMANN * t3)
 }
+
+/// `longwave.kind = "emission_level"`: its keys and form.
+pub const KIND: Kind<Longwave> = Kind {
+    name: "emission_level",
+    keys: &[
+        Key::number(
+            "longwave.lapse_rate_k_per_km",
+            "K km-1",
+            6.5,
+            Range::Closed(0.0, 15.0),
+        )
+        .label("Lapse rate (K km⁻¹)")
+        .kinds(&["emission_level"])
+        .set(|l, v| {
+            if let Longwave::EmissionLevel { lapse_rate, .. } = l {
+                *lapse_rate = v;
+            }
+            Ok(())
+        }),
+        Key::number("longwave.emission_height_km", "km", 5.0, Range::Closed(0.0, 30.0))
+            .label("Emission height (km)")
+            .kinds(&["emission_level"])
+            .set(|l, v| {
+                if let Longwave::EmissionLevel { height, .. } = l {
+                    *height = v;
+                }
+                Ok(())
+            }),
+    ],
+    build: |r| {
+        Ok(Longwave::EmissionLevel {
+            lapse_rate: r.num("longwave.lapse_rate_k_per_km")?,
+            height: r.num("longwave.emission_height_km")?,
+        })
+    },
+};
 
 #[cfg(test)]
 mod tests {

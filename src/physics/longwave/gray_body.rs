@@ -6,7 +6,9 @@
 //! Reference: the Stefan-Boltzmann law, constant from CODATA 2018; the effective-emissivity
 //! form is common practice.
 
+use super::Longwave;
 use super::STEFAN_BOLTZMANN;
+use crate::registry::{Key, Kind, Range};
 
 /// OLR (W m-2) and dOLR/dT (W m-2 K-1) at `t` (K) for emissivity `emissivity`.
 #[inline(always)]
@@ -17,3 +19,25 @@ pub fn olr(emissivity: f64, t: f64) -> (f64, f64) {
         4.0 * emissivity * STEFAN_BOLTZMANN * t3,
     )
 }
+
+/// `longwave.kind = "gray_body"`: its key (a forcing channel) and form.
+pub const KIND: Kind<Longwave> = Kind {
+    name: "gray_body",
+    keys: &[
+        Key::number("longwave.emissivity", "1", 0.61, Range::AboveUpTo(0.0, 1.0))
+            .label("Emissivity")
+            .kinds(&["gray_body"])
+            .varies()
+            .set(|l, v| {
+                if let Longwave::GrayBody { emissivity } = l {
+                    *emissivity = v;
+                }
+                Ok(())
+            }),
+    ],
+    build: |r| {
+        Ok(Longwave::GrayBody {
+            emissivity: r.num("longwave.emissivity")?,
+        })
+    },
+};

@@ -12,10 +12,24 @@ pub const ZERO_CELSIUS: f64 = 273.15;
 
 pub mod emission_level;
 pub mod gray_body;
+pub mod gray_layer;
 pub mod linear;
 pub mod table;
 
 pub use table::OlrTable;
+
+/// Every OLR kind with its config keys and how it is built from them (the config registry and
+/// validation read this list).
+pub const KINDS: &[crate::registry::Kind<Longwave>] = &[
+    linear::KIND,
+    gray_body::KIND,
+    emission_level::KIND,
+    table::KIND,
+    gray_layer::KIND,
+];
+
+/// The names of [`KINDS`], in order (the values `longwave.kind` allows).
+pub const NAMES: &[&str] = &["linear", "gray_body", "emission_level", "table", "gray_layer"];
 
 /// The OLR form.
 #[derive(Debug, Clone, PartialEq)]
@@ -42,6 +56,11 @@ pub enum Longwave {
     },
     /// Tabulated OLR(T).
     Table(OlrTable),
+    /// `(1 - eps/2) sigma T^4` under one gray layer.
+    GrayLayer {
+        /// The layer's longwave emissivity, 0 to 1.
+        eps: f64,
+    },
 }
 
 impl Longwave {
@@ -53,6 +72,7 @@ impl Longwave {
             Longwave::GrayBody { emissivity } => gray_body::olr(*emissivity, t),
             Longwave::EmissionLevel { lapse_rate, height } => emission_level::olr(*lapse_rate, *height, t),
             Longwave::Table(table) => table.eval(t),
+            Longwave::GrayLayer { eps } => gray_layer::olr(*eps, t),
         }
     }
 

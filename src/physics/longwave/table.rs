@@ -7,6 +7,8 @@
 //! Reference: Fritsch and Carlson (1980, SIAM J. Numer. Anal. 17) for the monotone
 //! piecewise-cubic interpolation; the end slopes as in scipy's `PchipInterpolator`.
 
+use crate::registry::{Key, Kind};
+
 /// A tabulated OLR curve with monotone cubic (PCHIP) interpolation.
 #[derive(Debug, Clone, PartialEq)]
 pub struct OlrTable {
@@ -92,6 +94,16 @@ fn pchip_slopes(x: &[f64], y: &[f64]) -> Vec<f64> {
     d[n - 1] = edge(h[n - 2], h[n - 3], del[n - 2], del[n - 3]);
     d
 }
+
+/// `longwave.kind = "table"`: its key (the CSV path, relative to the config file) and form.
+pub const KIND: Kind<super::Longwave> = Kind {
+    name: "table",
+    keys: &[Key::text("longwave.table", "(none)").kinds(&["table"])],
+    build: |r| {
+        let (temps, olr) = r.table("longwave.table")?;
+        Ok(super::Longwave::Table(OlrTable::new(temps, olr)))
+    },
+};
 
 #[cfg(test)]
 mod tests {
