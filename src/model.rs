@@ -257,7 +257,7 @@ impl Model {
         // diffusive transport is folded in (the band functions `Transport::convergence` uses).
         let diffusive = match &self.transport {
             Transport::Diffusive { face_k, inv_dx } => Some((&face_k[..n + 1], &inv_dx[..n])),
-            Transport::Relaxation { .. } => {
+            _ => {
                 self.transport.convergence(&self.grid, temps, conv);
                 None
             }
@@ -789,7 +789,7 @@ impl Model {
 impl Model {
     /// Assemble the model a validated spec describes.
     pub fn from_spec(spec: &crate::config::spec::ModelSpec) -> Model {
-        use crate::config::spec::{InsolationForm, TransportSpec};
+        use crate::config::spec::InsolationForm;
         use crate::physics::albedo::Albedo;
         let grid = Grid::new(spec.domain, spec.spacing, spec.bands);
         let n = grid.len();
@@ -825,14 +825,12 @@ impl Model {
             .iter()
             .map(|p| a.ice_free + a.ice_free_p2 * p)
             .collect();
-        let transport = match spec.transport {
-            TransportSpec::Diffusive { d0, d2 } => Transport::diffusive(&grid, d0, d2),
-            TransportSpec::Relaxation { rate } => Transport::Relaxation { rate },
-        };
+        let transport = spec.transport.on(&grid);
         // T is continuous under diffusion and jumps at the edge under relaxation.
-        let edge_rule = match transport {
-            Transport::Diffusive { .. } => EdgeRule::Interpolated,
-            Transport::Relaxation { .. } => EdgeRule::EdgeBalance,
+        let edge_rule = if transport.continuous() {
+            EdgeRule::Interpolated
+        } else {
+            EdgeRule::EdgeBalance
         };
         let albedo = Albedo::new(&grid, a.form, ice_free, a.ice, a.freeze_k).with_edge_rule(edge_rule);
         let hc = &spec.heat_capacity;

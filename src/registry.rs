@@ -301,6 +301,8 @@ pub trait Reader {
     fn num(&mut self, key: &str) -> Result<f64, Stop>;
     /// A table of two columns from the CSV file named at `key` (e.g. an OLR table).
     fn table(&mut self, key: &str) -> Result<(Vec<f64>, Vec<f64>), Stop>;
+    /// Refuse `value` of `key` by a check across keys; `allowed` is the `allowed: ...` text.
+    fn reject(&mut self, key: &str, value: f64, allowed: String) -> Stop;
 }
 
 /// One kind of a swappable parameterisation: its name in `<section>.kind`, its keys, and how

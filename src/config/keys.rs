@@ -7,9 +7,10 @@
 //! README's configuration table (checked by `tests/keys_registry.rs`) all read it. A key of a
 //! swappable parameterisation is declared beside its kind (see [`sections`]).
 
-use super::spec::{InsolationForm, ModelSpec, TransportSpec};
+use super::spec::{InsolationForm, ModelSpec};
 use crate::physics::albedo::AlbedoForm;
 use crate::physics::longwave::{co2_forcing, Longwave, ZERO_CELSIUS};
+use crate::physics::transport::TransportForm;
 pub use crate::registry::{Default, Fast, Info, Range, Value};
 use crate::registry::{Kind, Setter};
 use std::sync::OnceLock;
@@ -24,6 +25,8 @@ pub enum Set {
     Spec(Setter<ModelSpec>),
     /// Sets the OLR form (a key of a longwave kind).
     Longwave(Setter<Longwave>),
+    /// Sets the transport form (a key of a transport kind).
+    Transport(Setter<TransportForm>),
 }
 
 impl Set {
@@ -32,6 +35,7 @@ impl Set {
         match self {
             Set::Spec(f) => f(spec, v),
             Set::Longwave(f) => f(&mut spec.longwave, v),
+            Set::Transport(f) => f(&mut spec.transport, v),
         }
     }
 }
@@ -60,8 +64,38 @@ pub struct Section {
     pub name: &'static str,
     /// The section's own keys.
     pub keys: &'static [Key],
-    /// OLR kinds (the longwave section), each with its keys.
-    pub forms: &'static [Kind<Longwave>],
+    /// The kinds declared beside their physics, each with its keys.
+    pub forms: Forms,
+}
+
+/// The kinds of a section declared beside their physics (`physics::<process>::KINDS`).
+#[derive(Debug, Clone, Copy)]
+pub enum Forms {
+    /// None: the section's keys are all its own.
+    None,
+    /// OLR kinds.
+    Longwave(&'static [Kind<Longwave>]),
+    /// Transport kinds.
+    Transport(&'static [Kind<TransportForm>]),
+}
+
+impl Forms {
+    /// Every key of every kind, in kind order, with its setter on the model spec.
+    fn entries(self) -> Vec<Entry> {
+        fn each<T>(kinds: &'static [Kind<T>], set: fn(Setter<T>) -> Set) -> Vec<Entry> {
+            let keys = kinds.iter().flat_map(|k| k.keys);
+            keys.map(|k| Entry {
+                info: &k.info,
+                set: k.set.map(set),
+            })
+            .collect()
+        }
+        match self {
+            Forms::None => Vec::new(),
+            Forms::Longwave(kinds) => each(kinds, Set::Longwave),
+            Forms::Transport(kinds) => each(kinds, Set::Transport),
+        }
+    }
 }
 
 impl Section {
@@ -95,10 +129,7 @@ pub fn all() -> impl Iterator<Item = &'static Entry> {
                     info: &k.info,
                     set: k.set.map(Set::Spec),
                 }));
-                out.extend(s.forms.iter().flat_map(|f| f.keys).map(|k| Entry {
-                    info: &k.info,
-                    set: k.set.map(Set::Longwave),
-                }));
+                out.extend(s.forms.entries());
             }
             out
         })
@@ -199,14 +230,6 @@ pub fn check_ice_free_p2(ice_free: f64, p2: f64) -> Result<(), String> {
     Ok(())
 }
 
-/// `D(x) = D0 (1 + d2 P2(x)) >= 0` for P2 in [-1/2, 1].
-pub fn check_diffusivity_p2(d2: f64) -> Result<(), String> {
-    if 1.0 + d2 < 0.0 || 1.0 - 0.5 * d2 < 0.0 {
-        return Err("allowed: -1 to 2 (keeps D(x) >= 0)".into());
-    }
-    Ok(())
-}
-
 /// Setters of the albedo keys.
 pub(crate) mod albedo_set {
     use super::*;
@@ -240,30 +263,6 @@ pub(crate) mod insolation_set {
     pub fn s2(s: &mut ModelSpec, v: f64) -> Result<(), String> {
         if let InsolationForm::Legendre { s2 } = &mut s.insolation.form {
             *s2 = v;
-        }
-        Ok(())
-    }
-}
-
-/// Setters of the transport keys.
-pub(crate) mod transport_set {
-    use super::*;
-    pub fn diffusivity(s: &mut ModelSpec, v: f64) -> Result<(), String> {
-        if let TransportSpec::Diffusive { d0, .. } = &mut s.transport {
-            *d0 = v;
-        }
-        Ok(())
-    }
-    pub fn diffusivity_p2(s: &mut ModelSpec, v: f64) -> Result<(), String> {
-        check_diffusivity_p2(v)?;
-        if let TransportSpec::Diffusive { d2, .. } = &mut s.transport {
-            *d2 = v;
-        }
-        Ok(())
-    }
-    pub fn relaxation_rate(s: &mut ModelSpec, v: f64) -> Result<(), String> {
-        if let TransportSpec::Relaxation { rate } = &mut s.transport {
-            *rate = v;
         }
         Ok(())
     }

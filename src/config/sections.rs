@@ -2,7 +2,7 @@
 //! Units are spelled one way everywhere: "W m-2", "W m-2 K-1", "ppm", "K", "degC", "degree",
 //! "km", "K km-1", "m", "J m-2 K-1", "year", "day", "1".
 
-use super::keys::{albedo_set, insolation_set, set_co2, transport_set, Default, Fast, Key, Range, Section};
+use super::keys::{albedo_set, insolation_set, set_co2, Default, Fast, Forms, Key, Range, Section};
 use super::validate::{MAX_BANDS, MIN_YEARS};
 
 const fn whole(name: &'static str, default: i64, lo: f64, hi: f64) -> Key {
@@ -128,34 +128,12 @@ const GREENHOUSE: &[Key] = &[
         }),
 ];
 
-const TRANSPORT: &[Key] = &[
-    Key::choice("transport.kind", "diffusive", &["diffusive", "relaxation"]),
-    Key::number(
-        "transport.diffusivity",
-        "W m-2 K-1",
-        0.55,
-        Range::Closed(0.0, 1e6),
-    )
-    .label("Diffusivity D (W m⁻² K⁻¹)")
-    .kinds(&["diffusive"])
-    .varies()
-    .set(transport_set::diffusivity)
-    .fast(Fast::Diffusivity),
-    Key::number("transport.diffusivity_p2", "1", 0.0, Range::Any)
-        .label("Diffusivity, P2 part d2")
-        .kinds(&["diffusive"])
-        .set(transport_set::diffusivity_p2),
-    Key::number(
-        "transport.relaxation_rate",
-        "W m-2 K-1",
-        3.8,
-        Range::Closed(0.0, 1e6),
-    )
-    .label("Relaxation rate γ (W m⁻² K⁻¹)")
-    .kinds(&["relaxation"])
-    .varies()
-    .set(transport_set::relaxation_rate),
-];
+// The keys of each transport kind are declared beside its physics (`physics::transport::KINDS`).
+const TRANSPORT: &[Key] = &[Key::choice(
+    "transport.kind",
+    "diffusive",
+    crate::physics::transport::NAMES,
+)];
 
 const HEAT_CAPACITY: &[Key] = &[
     Key::number(
@@ -319,86 +297,86 @@ pub(super) const SECTIONS: &[Section] = &[
     Section {
         name: "",
         keys: TOP,
-        forms: &[],
+        forms: Forms::None,
     },
     Section {
         name: "grid",
         keys: GRID,
-        forms: &[],
+        forms: Forms::None,
     },
     Section {
         name: "insolation",
         keys: INSOLATION,
-        forms: &[],
+        forms: Forms::None,
     },
     Section {
         name: "albedo",
         keys: ALBEDO,
-        forms: &[],
+        forms: Forms::None,
     },
     Section {
         name: "longwave",
         keys: LONGWAVE,
-        forms: crate::physics::longwave::KINDS,
+        forms: Forms::Longwave(crate::physics::longwave::KINDS),
     },
     Section {
         name: "greenhouse",
         keys: GREENHOUSE,
-        forms: &[],
+        forms: Forms::None,
     },
     Section {
         name: "transport",
         keys: TRANSPORT,
-        forms: &[],
+        forms: Forms::Transport(crate::physics::transport::KINDS),
     },
     Section {
         name: "heat_capacity",
         keys: HEAT_CAPACITY,
-        forms: &[],
+        forms: Forms::None,
     },
     Section {
         name: "initial",
         keys: INITIAL,
-        forms: &[],
+        forms: Forms::None,
     },
     Section {
         name: "time",
         keys: TIME,
-        forms: &[],
+        forms: Forms::None,
     },
     Section {
         name: "forcing",
         keys: FORCING,
-        forms: &[],
+        forms: Forms::None,
     },
     Section {
         name: "equilibrium",
         keys: EQUILIBRIUM,
-        forms: &[],
+        forms: Forms::None,
     },
     Section {
         name: "output",
         keys: OUTPUT,
-        forms: &[],
+        forms: Forms::None,
     },
     Section {
         name: "sweep",
         keys: SWEEP,
-        forms: &[],
+        forms: Forms::None,
     },
     Section {
         name: "branches",
         keys: BRANCHES,
-        forms: &[],
+        forms: Forms::None,
     },
     Section {
         name: "ensemble",
         keys: ENSEMBLE,
-        forms: &[],
+        forms: Forms::None,
     },
     Section {
         name: "regimes",
         keys: REGIMES,
-        forms: &[],
+        forms: Forms::None,
     },
 ];

@@ -4,6 +4,7 @@
 use crate::grid::{Domain, Spacing};
 use crate::physics::albedo::AlbedoForm;
 use crate::physics::longwave::Longwave;
+use crate::physics::transport::TransportForm;
 
 /// Insolation form.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -49,23 +50,6 @@ pub struct AlbedoSpec {
     pub freeze_k: f64,
 }
 
-/// `[transport]`, validated.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub enum TransportSpec {
-    /// `D0 (1 + d2 P2(x))`, W m-2 K-1.
-    Diffusive {
-        /// D0.
-        d0: f64,
-        /// d2.
-        d2: f64,
-    },
-    /// `gamma (T_mean - T)`, W m-2 K-1.
-    Relaxation {
-        /// gamma.
-        rate: f64,
-    },
-}
-
 /// `[heat_capacity]`, validated: ocean value, land value and land fraction by band.
 #[derive(Debug, Clone, PartialEq)]
 pub struct HeatCapacitySpec {
@@ -95,7 +79,7 @@ pub struct ModelSpec {
     /// Greenhouse forcing subtracted from OLR, W m-2.
     pub greenhouse_wm2: f64,
     /// Transport.
-    pub transport: TransportSpec,
+    pub transport: TransportForm,
     /// Heat capacity.
     pub heat_capacity: HeatCapacitySpec,
     /// Constant additive forcing, W m-2.
@@ -401,11 +385,11 @@ impl ModelSpec {
                 _ => None,
             },
             diffusivity: match self.transport {
-                TransportSpec::Diffusive { d0, .. } => Some(d0),
+                TransportForm::Diffusive { d0, .. } => Some(d0),
                 _ => None,
             },
             relaxation_rate: match self.transport {
-                TransportSpec::Relaxation { rate } => Some(rate),
+                TransportForm::Relaxation { rate } => Some(rate),
                 _ => None,
             },
         }

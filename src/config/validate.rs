@@ -12,6 +12,7 @@ use super::ConfigError;
 use crate::grid::{Domain, Spacing};
 use crate::physics::albedo::AlbedoForm;
 use crate::physics::longwave::{Longwave, ZERO_CELSIUS};
+use crate::physics::transport::TransportForm;
 use serde::Serialize;
 use std::path::Path;
 use std::sync::Arc;
@@ -237,7 +238,7 @@ fn model_spec(c: &Checker, raw: &mut RawConfig, base_dir: &Path) -> Result<Model
     let albedo = albedo_spec(c, &mut raw.albedo)?;
     let longwave = longwave_spec(c, &mut raw.longwave, base_dir)?;
     let co2 = greenhouse_spec(c, &mut raw.greenhouse)?;
-    let transport = transport_spec(c, &mut raw.transport)?;
+    let transport = transport_spec(c, &mut raw.transport, base_dir)?;
     let heat_capacity = heat_capacity_spec(c, &mut raw.heat_capacity, bands)?;
     let f = &mut raw.forcing;
     let extra_wm2 = c.num("forcing.constant_wm2", &mut f.constant_wm2)?;
@@ -329,12 +330,39 @@ fn albedo_spec(c: &Checker, a: &mut RawAlbedo) -> Result<AlbedoSpec, ConfigError
 fn longwave_spec(c: &Checker, l: &mut RawLongwave, base_dir: &Path) -> Result<Longwave, ConfigError> {
     let name = c.kind("longwave", &mut l.kind.clone(), l)?;
     l.kind = Some(name.into());
-    let kind = crate::physics::longwave::KINDS.iter().find(|k| k.name == name);
-    let kind = kind.expect("every allowed longwave.kind is in physics::longwave::KINDS");
-    let mut r = SectionReader::new(c, "longwave", name, l, base_dir);
+    kind_form(c, "longwave", name, crate::physics::longwave::KINDS, l, base_dir)
+}
+
+/// `[transport]`: the kind's own validation and form (`physics::transport::KINDS`).
+fn transport_spec(c: &Checker, t: &mut RawTransport, base_dir: &Path) -> Result<TransportForm, ConfigError> {
+    let name = c.kind("transport", &mut t.kind.clone(), t)?;
+    t.kind = Some(name.into());
+    kind_form(
+        c,
+        "transport",
+        name,
+        crate::physics::transport::KINDS,
+        t,
+        base_dir,
+    )
+}
+
+/// The form of kind `name` of `section` built by its declaration in `kinds`, the raw section
+/// `raw` resolved in place (defaults filled in).
+fn kind_form<F, R: Serialize + serde::de::DeserializeOwned>(
+    c: &Checker,
+    section: &'static str,
+    name: &'static str,
+    kinds: &[crate::registry::Kind<F>],
+    raw: &mut R,
+    base_dir: &Path,
+) -> Result<F, ConfigError> {
+    let kind = kinds.iter().find(|k| k.name == name);
+    let kind = kind.unwrap_or_else(|| panic!("every allowed {section}.kind has its declaration"));
+    let mut r = SectionReader::new(c, section, name, raw, base_dir);
     let form = (kind.build)(&mut r);
     let (form, resolved) = r.finish(form)?;
-    *l = resolved;
+    *raw = resolved;
     Ok(form)
 }
 
@@ -425,6 +453,10 @@ impl crate::registry::Reader for SectionReader<'_> {
             Err(e) => Err(self.stop(e)),
         }
     }
+
+    fn reject(&mut self, key: &str, value: f64, allowed: String) -> crate::registry::Stop {
+        self.stop(self.c.range_err(key, value.to_string(), allowed))
+    }
 }
 
 /// `[greenhouse]`: CO2, its reference and the log coefficient.
@@ -434,22 +466,6 @@ fn greenhouse_spec(c: &Checker, gh: &mut RawGreenhouse) -> Result<(f64, f64, f64
         c.num("greenhouse.reference_co2_ppm", &mut gh.reference_co2_ppm)?,
         c.num("greenhouse.log_coefficient_wm2", &mut gh.log_coefficient_wm2)?,
     ))
-}
-
-/// `[transport]`.
-fn transport_spec(c: &Checker, t: &mut RawTransport) -> Result<TransportSpec, ConfigError> {
-    let kind = c.kind("transport", &mut t.kind.clone(), t)?;
-    t.kind = Some(kind.into());
-    if kind == "relaxation" {
-        return Ok(TransportSpec::Relaxation {
-            rate: c.num("transport.relaxation_rate", &mut t.relaxation_rate)?,
-        });
-    }
-    let d0 = c.num("transport.diffusivity", &mut t.diffusivity)?;
-    let d2 = c.num("transport.diffusivity_p2", &mut t.diffusivity_p2)?;
-    keys::check_diffusivity_p2(d2)
-        .map_err(|allowed| c.range_err("transport.diffusivity_p2", d2.to_string(), allowed))?;
-    Ok(TransportSpec::Diffusive { d0, d2 })
 }
 
 /// `[heat_capacity]`: the ocean value (or a mixed-layer depth), land value and fraction.

@@ -9,8 +9,58 @@
 //! Reference: North (1975, J. Atmos. Sci. 32, 2033-2043); exact discrete equations in
 //! docs/discrete-model.md.
 
+use super::TransportForm;
 use crate::grid::{p2, Grid};
 use crate::linalg::Tridiag;
+use crate::registry::{Fast, Key, Kind, Range};
+
+/// `D(x) = D0 (1 + d2 P2(x)) >= 0` for P2 in [-1/2, 1]; `Err` holds the `allowed: ...` text.
+pub fn check_p2(d2: f64) -> Result<(), String> {
+    if 1.0 + d2 < 0.0 || 1.0 - 0.5 * d2 < 0.0 {
+        return Err("allowed: -1 to 2 (keeps D(x) >= 0)".into());
+    }
+    Ok(())
+}
+
+/// `transport.kind = "diffusive"`: its keys (the diffusivity a forcing channel and a fast
+/// control) and form.
+pub const KIND: Kind<TransportForm> = Kind {
+    name: "diffusive",
+    keys: &[
+        Key::number(
+            "transport.diffusivity",
+            "W m-2 K-1",
+            0.55,
+            Range::Closed(0.0, 1e6),
+        )
+        .label("Diffusivity D (W m⁻² K⁻¹)")
+        .kinds(&["diffusive"])
+        .varies()
+        .set(|t, v| {
+            if let TransportForm::Diffusive { d0, .. } = t {
+                *d0 = v;
+            }
+            Ok(())
+        })
+        .fast(Fast::Diffusivity),
+        Key::number("transport.diffusivity_p2", "1", 0.0, Range::Any)
+            .label("Diffusivity, P2 part d2")
+            .kinds(&["diffusive"])
+            .set(|t, v| {
+                check_p2(v)?;
+                if let TransportForm::Diffusive { d2, .. } = t {
+                    *d2 = v;
+                }
+                Ok(())
+            }),
+    ],
+    build: |r| {
+        let d0 = r.num("transport.diffusivity")?;
+        let d2 = r.num("transport.diffusivity_p2")?;
+        check_p2(d2).map_err(|allowed| r.reject("transport.diffusivity_p2", d2, allowed))?;
+        Ok(TransportForm::Diffusive { d0, d2 })
+    },
+};
 
 /// Face conductances `D_k (1 - x_k^2) / (x_c[k] - x_c[k-1])` (W m-2 K-1), `n + 1` values, zero
 /// at the outer faces, for `D(x) = d0 (1 + d2 P2(x))`.

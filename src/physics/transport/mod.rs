@@ -13,6 +13,41 @@ use crate::linalg::Tridiag;
 pub mod diffusive;
 pub mod relaxation;
 
+/// Every transport kind with its config keys and how it is built from them (the config
+/// registry and validation read this list).
+pub const KINDS: &[crate::registry::Kind<TransportForm>] = &[diffusive::KIND, relaxation::KIND];
+
+/// The names of [`KINDS`], in order (the values `transport.kind` allows).
+pub const NAMES: &[&str] = &["diffusive", "relaxation"];
+
+/// The transport form and its coefficients, before it is laid on a grid (the validated
+/// `[transport]` section).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum TransportForm {
+    /// `D0 (1 + d2 P2(x))`, W m-2 K-1.
+    Diffusive {
+        /// D0, W m-2 K-1.
+        d0: f64,
+        /// d2.
+        d2: f64,
+    },
+    /// `gamma (T_mean - T)`, W m-2 K-1.
+    Relaxation {
+        /// gamma, W m-2 K-1.
+        rate: f64,
+    },
+}
+
+impl TransportForm {
+    /// The transport on `grid`.
+    pub fn on(&self, grid: &Grid) -> Transport {
+        match *self {
+            TransportForm::Diffusive { d0, d2 } => Transport::diffusive(grid, d0, d2),
+            TransportForm::Relaxation { rate } => Transport::Relaxation { rate },
+        }
+    }
+}
+
 /// The transport form, with its coefficients on a grid.
 #[derive(Debug, Clone, PartialEq)]
 pub enum Transport {
@@ -37,6 +72,15 @@ impl Transport {
         Transport::Diffusive {
             face_k: diffusive::face_conductances(grid, d0, d2),
             inv_dx: grid.dx.iter().map(|d| 1.0 / d).collect(),
+        }
+    }
+
+    /// Whether the temperature stays continuous across the ice edge (diffusion), so the `step`
+    /// albedo may interpolate the edge; otherwise it uses the edge-balance rule.
+    pub fn continuous(&self) -> bool {
+        match self {
+            Transport::Diffusive { .. } => true,
+            Transport::Relaxation { .. } => false,
         }
     }
 

@@ -6,8 +6,35 @@
 //!
 //! Reference: Budyko (1969, Tellus 21, 611-619).
 
+use super::TransportForm;
 use crate::grid::Grid;
 use crate::linalg::Tridiag;
+use crate::registry::{Key, Kind, Range};
+
+/// `transport.kind = "relaxation"`: its key (a forcing channel) and form.
+pub const KIND: Kind<TransportForm> = Kind {
+    name: "relaxation",
+    keys: &[Key::number(
+        "transport.relaxation_rate",
+        "W m-2 K-1",
+        3.8,
+        Range::Closed(0.0, 1e6),
+    )
+    .label("Relaxation rate γ (W m⁻² K⁻¹)")
+    .kinds(&["relaxation"])
+    .varies()
+    .set(|t, v| {
+        if let TransportForm::Relaxation { rate } = t {
+            *rate = v;
+        }
+        Ok(())
+    })],
+    build: |r| {
+        Ok(TransportForm::Relaxation {
+            rate: r.num("transport.relaxation_rate")?,
+        })
+    },
+};
 
 /// Transport convergence `rate (T_mean - T_i)` (W m-2) of every band into `out`.
 #[inline]
