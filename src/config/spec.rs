@@ -342,6 +342,9 @@ pub struct RegimesSpec {
     pub spacing: AxisSpacing,
     /// Spacing of the rows' values of `row_control`.
     pub row_spacing: AxisSpacing,
+    /// Ice-edge latitude at and poleward of which a partial cap counts as small rather than
+    /// large, degrees north: a naming convention for the map's classes, not a bifurcation.
+    pub small_cap_min_latitude: f64,
 }
 
 impl RegimesSpec {

@@ -1186,6 +1186,16 @@ fn regimes_spec(
         &mut r.row_spacing,
         (row_from, row_to),
     )?;
+    // The default is not written back, so configs without the key resolve as before.
+    let small_cap_min_latitude = match r.small_cap_min_latitude_deg {
+        None => crate::equilibrium::regimes::SMALL_CAP_MIN_LATITUDE,
+        Some(_) => c.num(
+            "regimes.small_cap_min_latitude_deg",
+            &mut r.small_cap_min_latitude_deg,
+            crate::equilibrium::regimes::SMALL_CAP_MIN_LATITUDE,
+            Range::AboveUpTo(0.0, 90.0),
+        )?,
+    };
     Ok(Some(crate::config::spec::RegimesSpec {
         control,
         from,
@@ -1200,5 +1210,6 @@ fn regimes_spec(
         max_points,
         spacing,
         row_spacing,
+        small_cap_min_latitude,
     }))
 }

@@ -13,7 +13,8 @@ use super::branches::all_branches;
 use super::continuation::{Branch, ContinuationError, ContinuationOptions};
 use super::control::Controlled;
 
-/// Ice-edge latitude (degrees north) at and above which a partial ice cap counts as small.
+/// Default ice-edge latitude (degrees north) at and above which a partial ice cap counts as
+/// small (`regimes.small_cap_min_latitude_deg`). A naming convention, not a bifurcation.
 pub const SMALL_CAP_MIN_LATITUDE: f64 = 60.0;
 
 /// Edge latitudes within this of 90 (or 0) degrees count as ice free (or snowball), degrees.
@@ -52,13 +53,20 @@ impl Kind {
         Kind::Asymmetric,
     ];
 
-    /// The kind of an equilibrium with northern ice edge at `phi` degrees north.
+    /// The kind of an equilibrium with northern ice edge at `phi` degrees north, small and
+    /// large caps split at the default [`SMALL_CAP_MIN_LATITUDE`].
     pub fn of_edge(phi: f64) -> Kind {
+        Kind::of_edge_split(phi, SMALL_CAP_MIN_LATITUDE)
+    }
+
+    /// The kind of an equilibrium with northern ice edge at `phi` degrees north, caps with
+    /// their edge at or poleward of `split` degrees north counting as small.
+    pub fn of_edge_split(phi: f64, split: f64) -> Kind {
         if phi >= 90.0 - EDGE_END_TOLERANCE {
             Kind::IceFree
         } else if phi <= EDGE_END_TOLERANCE {
             Kind::Snowball
-        } else if phi >= SMALL_CAP_MIN_LATITUDE {
+        } else if phi >= split {
             Kind::SmallCap
         } else {
             Kind::LargeCap
@@ -81,15 +89,16 @@ impl Kind {
         }
     }
 
-    /// One-line definition, for file attributes and documentation.
-    pub fn definition(self) -> String {
+    /// One-line definition, for file attributes and documentation; `split` is the small/large
+    /// cap split latitude, degrees north.
+    pub fn definition(self, split: f64) -> String {
         match self {
             Kind::IceFree => "ice_free: northern ice edge at 90 degrees north (no ice)".into(),
             Kind::SmallCap => format!(
-                "small_cap: ice edge at or poleward of {SMALL_CAP_MIN_LATITUDE} degrees north, below 90"
+                "small_cap: ice edge at or poleward of {split} degrees north, below 90"
             ),
             Kind::LargeCap => {
-                format!("large_cap: ice edge equatorward of {SMALL_CAP_MIN_LATITUDE} degrees north, above 0")
+                format!("large_cap: ice edge equatorward of {split} degrees north, above 0")
             }
             Kind::Snowball => "snowball: ice edge at 0 degrees (ice everywhere)".into(),
             Kind::Asymmetric => {
@@ -176,13 +185,15 @@ fn vertices(branch: &Branch, edge: &dyn Fn(&[f64], f64) -> f64) -> Vec<Vertex> {
 
 /// Count and class the equilibria of `branches` at each value of `columns`.
 ///
-/// `edge(state, p)` is the northern ice-edge latitude (degrees) of `state` at control `p`.
+/// `edge(state, p)` is the northern ice-edge latitude (degrees) of `state` at control `p`;
+/// caps with their edge at or poleward of `split` (degrees north) count as small.
 /// Each segment counts a column value in `[low end, high end)`, and the branch's last
 /// point also at its own value, so a value is counted once per crossing.
 pub fn classify(
     branches: &[Branch],
     columns: &[f64],
     edge: &dyn Fn(&[f64], f64) -> f64,
+    split: f64,
 ) -> (Vec<u32>, Vec<u32>, Vec<u8>) {
     let n = columns.len();
     let (mut stable, mut all, mut kinds) = (vec![0u32; n], vec![0u32; n], vec![0u8; n]);
@@ -206,7 +217,7 @@ pub fn classify(
                 all[i] += 1;
                 if is_stable {
                     stable[i] += 1;
-                    kinds[i] |= Kind::of_edge(a.edge + f * (z.edge - a.edge)).bit();
+                    kinds[i] |= Kind::of_edge_split(a.edge + f * (z.edge - a.edge), split).bit();
                 }
             }
         }
@@ -215,12 +226,14 @@ pub fn classify(
 }
 
 /// Trace every branch of the family `fam` over `opts`' range and class the equilibria at
-/// `columns`. `row_value` is only recorded.
+/// `columns`, small and large caps split at `split` degrees north. `row_value` is only
+/// recorded.
 pub fn regime_row(
     fam: &Controlled,
     opts: ContinuationOptions,
     columns: &[f64],
     row_value: f64,
+    split: f64,
 ) -> Result<RegimeRow, ContinuationError> {
     let set = all_branches(fam, opts)?;
     // A branch that ends stuck leaves this row's map incomplete beyond that control: say so
@@ -251,9 +264,9 @@ pub fn regime_row(
         base.ice_edges(state).0
     };
     let (sym, asym) = set.branches.split_at(set.asymmetric_from);
-    let (mut stable, mut equilibria, mut kinds) = classify(sym, columns, &edge);
+    let (mut stable, mut equilibria, mut kinds) = classify(sym, columns, &edge, split);
     // Asymmetric equilibria are a kind of their own whatever their edges.
-    let (s2, e2, k2) = classify(asym, columns, &edge);
+    let (s2, e2, k2) = classify(asym, columns, &edge, split);
     for i in 0..columns.len() {
         stable[i] += s2[i];
         equilibria[i] += e2[i];
