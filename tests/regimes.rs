@@ -350,7 +350,10 @@ fn the_small_cap_split_latitude_is_a_key_that_only_renames_caps() {
             }
         }
     }
-    assert!(renamed > 0, "no cap with its edge between 40 and 60 degrees north was renamed");
+    assert!(
+        renamed > 0,
+        "no cap with its edge between 40 and 60 degrees north was renamed"
+    );
 
     let dir = std::env::temp_dir().join(format!("icefold-regimes-split-{}", std::process::id()));
     std::fs::create_dir_all(&dir).unwrap();

@@ -183,6 +183,23 @@ fn vertices(branch: &Branch, edge: &dyn Fn(&[f64], f64) -> f64) -> Vec<Vertex> {
     out
 }
 
+/// The kind at fraction `f` of the segment from `a` to `z`: the ice edge interpolated, except
+/// that a segment between a fold and an ice-free (or snowball) point lies on the ice-free (or
+/// snowball) piece whole: a corner fold's edge, located to the fold tolerance, sits a hair
+/// short of 90 (or 0) degrees, and interpolating it would name an ice-free state a small cap.
+fn segment_kind(a: Vertex, z: Vertex, f: f64, split: f64) -> Kind {
+    let end_kind = |v: Vertex| match Kind::of_edge_split(v.edge, split) {
+        k @ (Kind::IceFree | Kind::Snowball) if !v.fold => Some(k),
+        _ => None,
+    };
+    let whole = match (a.fold, z.fold) {
+        (true, false) => end_kind(z),
+        (false, true) => end_kind(a),
+        _ => None,
+    };
+    whole.unwrap_or_else(|| Kind::of_edge_split(a.edge + f * (z.edge - a.edge), split))
+}
+
 /// Count and class the equilibria of `branches` at each value of `columns`.
 ///
 /// `edge(state, p)` is the northern ice-edge latitude (degrees) of `state` at control `p`;
@@ -217,7 +234,7 @@ pub fn classify(
                 all[i] += 1;
                 if is_stable {
                     stable[i] += 1;
-                    kinds[i] |= Kind::of_edge_split(a.edge + f * (z.edge - a.edge), split).bit();
+                    kinds[i] |= segment_kind(a, z, f, split).bit();
                 }
             }
         }
@@ -420,6 +437,41 @@ pub struct RegimeMap {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// A stable segment from a corner fold (where the cap meets the pole, located a hair
+    /// short of 90 degrees) to an ice-free point is ice free, not a small cap; the same at the
+    /// equator for the snowball. Interpolating the edge named it a small cap (one cell of the
+    /// classic map at D = 0.425, S0 = 1385 W m-2 lost its ice-free class).
+    #[test]
+    fn a_segment_from_a_corner_fold_to_an_ice_free_point_is_ice_free() {
+        let v = |edge: f64, fold: bool| Vertex {
+            p: 0.0,
+            edge,
+            leading: -1.0,
+            fold,
+        };
+        let corner = v(90.0 - 1e-4, true);
+        let free = v(90.0, false);
+        for f in [0.0, 0.3, 0.999] {
+            assert_eq!(segment_kind(corner, free, f, 60.0), Kind::IceFree);
+            assert_eq!(segment_kind(free, corner, f, 60.0), Kind::IceFree);
+            assert_eq!(
+                segment_kind(v(1e-4, true), v(0.0, false), f, 60.0),
+                Kind::Snowball
+            );
+        }
+        // Elsewhere the edge is interpolated.
+        assert_eq!(segment_kind(v(89.0, false), free, 0.5, 60.0), Kind::SmallCap);
+        assert_eq!(segment_kind(corner, v(89.8, false), 0.5, 60.0), Kind::SmallCap);
+        assert_eq!(
+            segment_kind(v(50.0, false), v(70.0, false), 0.4, 60.0),
+            Kind::LargeCap
+        );
+        assert_eq!(
+            segment_kind(v(50.0, false), v(70.0, false), 0.4, 55.0),
+            Kind::SmallCap
+        );
+    }
 
     #[test]
     fn kinds_follow_the_edge_thresholds() {

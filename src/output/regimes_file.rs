@@ -205,7 +205,10 @@ pub fn write_regimes_with(
     w.set_attr_f64("row_control_from", spec.row_from)?;
     w.set_attr_f64("row_control_to", spec.row_to)?;
     w.set_attr_f64("small_cap_min_latitude", spec.small_cap_min_latitude)?;
-    let defs: Vec<String> = Kind::ALL.iter().map(|k| k.definition(spec.small_cap_min_latitude)).collect();
+    let defs: Vec<String> = Kind::ALL
+        .iter()
+        .map(|k| k.definition(spec.small_cap_min_latitude))
+        .collect();
     w.set_attr_str(
         "kind_definitions",
         &format!(
