@@ -28,14 +28,30 @@ use crate::physics::longwave::co2_forcing;
 use std::f64::consts::PI;
 use std::sync::Arc;
 
-/// Driver columns a forcing CSV may have besides `year` and the time-varying keys of the key
-/// registry ([`crate::config::keys`]).
+/// Driver columns a forcing CSV may have besides `year` and the config keys in [`KEYS`].
 pub const COLUMNS: &[&str] = &["co2_ppm", "solar_scale", "forcing_wm2"];
 
-/// Whether `name` may be a CSV column or piece target: a driver column or a key the registry
-/// declares time-varying.
+/// Config keys a forcing history may vary, each with its role in the drivers below
+/// ([`ForcingSpec::new`]). The key registry declares exactly these time-varying (`.varies()`;
+/// tests/keys_registry.rs checks the two agree), so forcing needs no import of config.
+pub const KEYS: &[&str] = &[
+    "greenhouse.co2_ppm",
+    "greenhouse.reference_co2_ppm",
+    "greenhouse.log_coefficient_wm2",
+    "forcing.solar_scale",
+    "insolation.solar_constant",
+    "forcing.constant_wm2",
+    "longwave.a",
+    "longwave.b",
+    "longwave.emissivity",
+    "transport.diffusivity",
+    "transport.relaxation_rate",
+];
+
+/// Whether `name` may be a CSV column or piece target: a driver column or a key a history may
+/// vary ([`KEYS`]).
 pub fn is_channel(name: &str) -> bool {
-    COLUMNS.contains(&name) || crate::config::keys::get(name).is_some_and(|k| k.time_varying)
+    COLUMNS.contains(&name) || KEYS.contains(&name)
 }
 
 /// Largest forcing file accepted, rows (refused up front beyond it).
@@ -49,18 +65,19 @@ pub fn allowed_names() -> String {
     COLUMNS
         .iter()
         .copied()
-        .chain(crate::config::keys::time_varying_keys().map(|k| k.name))
+        .chain(KEYS.iter().copied())
         .collect::<Vec<_>>()
         .join(", ")
 }
 
-/// Units of a channel name, for output attributes (a key's from the registry).
-pub fn units_of(name: &str) -> &'static str {
+/// Units of a driver column ([`COLUMNS`]); `None` for a config key (its units are the key
+/// registry's, [`crate::config::keys::units`]).
+pub fn column_units(name: &str) -> Option<&'static str> {
     match name {
-        "co2_ppm" => "ppm",
-        "solar_scale" => "1",
-        "forcing_wm2" => "W m-2",
-        key => crate::config::keys::units(key),
+        "co2_ppm" => Some("ppm"),
+        "solar_scale" => Some("1"),
+        "forcing_wm2" => Some("W m-2"),
+        _ => None,
     }
 }
 
@@ -507,11 +524,7 @@ impl ForcingSpec {
             };
             let base = base.ok_or_else(|| format!("`{name}` can vary in time only with {needs}"))?;
             // Every name matched above is a column or a time-varying key.
-            let Some(name) = COLUMNS.iter().copied().find(|k| *k == name).or_else(|| {
-                crate::config::keys::get(name)
-                    .filter(|k| k.time_varying)
-                    .map(|k| k.name)
-            }) else {
+            let Some(name) = COLUMNS.iter().chain(KEYS).copied().find(|k| *k == name) else {
                 continue;
             };
             channels.push(Channel {

@@ -239,3 +239,15 @@ fn kind_keys_name_kinds_their_section_allows() {
     let names: Vec<&str> = icefold::physics::longwave::KINDS.iter().map(|k| k.name).collect();
     assert_eq!(names, icefold::physics::longwave::NAMES);
 }
+
+/// The keys a forcing history may vary (forcing::KEYS, each with its role in the drivers) are
+/// exactly the keys the registry declares time-varying: forcing keeps its own list so that it
+/// does not import config (no import cycle), and this keeps the two in step.
+#[test]
+fn forcing_keys_are_the_registrys_time_varying_keys() {
+    let mut registry: Vec<&str> = icefold::config::keys::time_varying_keys().map(|k| k.name).collect();
+    let mut forcing: Vec<&str> = icefold::forcing::KEYS.to_vec();
+    registry.sort_unstable();
+    forcing.sort_unstable();
+    assert_eq!(registry, forcing);
+}

@@ -314,3 +314,53 @@ fn rows_with_stuck_branch_ends_are_recorded_and_inspected() {
     );
     std::fs::remove_dir_all(&dir).unwrap();
 }
+
+/// `regimes.small_cap_min_latitude_deg` moves only the naming line between small and large
+/// caps: the stable counts and which cells hold a partial cap at all stay the same, caps with
+/// their edge between the new and the default split change class, and the file records the
+/// split it used. Out-of-range values are refused naming the key.
+#[test]
+fn the_small_cap_split_latitude_is_a_key_that_only_renames_caps() {
+    let rows = "regimes.rows=5";
+    let default = run_regimes(&regimes_classic(&[rows]), serial()).unwrap();
+    let moved_cfg = regimes_classic(&[rows, "regimes.small_cap_min_latitude_deg=40"]);
+    let moved = run_regimes(&moved_cfg, serial()).unwrap();
+    let caps = Kind::SmallCap.bit() | Kind::LargeCap.bit();
+    let mut renamed = 0;
+    for (a, b) in default.rows.iter().zip(&moved.rows) {
+        assert_eq!(a.stable, b.stable);
+        assert_eq!(a.equilibria, b.equilibria);
+        for (ka, kb) in a.kinds.iter().zip(&b.kinds) {
+            assert_eq!(ka & !caps, kb & !caps, "only the cap classes may change");
+            assert_eq!(ka & caps != 0, kb & caps != 0, "a cap stays a cap");
+            // Moving the split equatorward can only turn large caps into small ones.
+            assert!(kb & Kind::SmallCap.bit() >= ka & Kind::SmallCap.bit());
+            if ka != kb {
+                renamed += 1;
+            }
+        }
+    }
+    assert!(
+        renamed > 0,
+        "no cap with its edge between 40 and 60 degrees north was renamed"
+    );
+
+    let dir = std::env::temp_dir().join(format!("icefold-regimes-split-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let path = dir.join("split.nc");
+    regimes_to_file(&moved_cfg, &path, "test", serial()).unwrap();
+    let r = NcReader::open(&path).unwrap();
+    assert_eq!(r.attr_f64("small_cap_min_latitude").unwrap(), Some(40.0));
+    let defs = r.attr_str("kind_definitions").unwrap().unwrap();
+    assert!(defs.contains("poleward of 40 degrees north"), "{defs}");
+    std::fs::remove_dir_all(&dir).ok();
+
+    for bad in ["0", "95", "-10"] {
+        let text = std::fs::read_to_string("configs/regimes-classic.toml").unwrap();
+        let set = format!("regimes.small_cap_min_latitude_deg={bad}");
+        let e = load_str(&text, "regimes-classic", Path::new("configs"), &[set]).unwrap_err();
+        let msg = e.to_string();
+        assert!(msg.contains("regimes.small_cap_min_latitude_deg"), "{msg}");
+        assert!(msg.contains("90"), "{msg}");
+    }
+}

@@ -128,7 +128,14 @@ fn regimes_count_asymmetric_states_as_a_kind_of_their_own() {
     // state with its mirror image: 5 stable states of 4 kinds (the count).
     let cfg = globe(1340.0);
     let fam = Controlled::new(&cfg, "insolation.solar_constant").unwrap();
-    let row = regime_row(&fam, options(&cfg), &[1340.0, 1390.0], 0.52).unwrap();
+    let row = regime_row(
+        &fam,
+        options(&cfg),
+        &[1340.0, 1390.0],
+        0.52,
+        icefold::equilibrium::regimes::SMALL_CAP_MIN_LATITUDE,
+    )
+    .unwrap();
     assert_eq!(row.stable[0], 5, "{row:?}");
     let want = Kind::IceFree.bit() | Kind::SmallCap.bit() | Kind::Snowball.bit() | Kind::Asymmetric.bit();
     assert_eq!(row.kinds[0], want);

@@ -98,6 +98,39 @@ fn classic_curve_is_one_branch_through_every_fold_and_corner() {
     }
 }
 
+/// The points of a branch lie close enough in ice edge that the curve drawn through them
+/// shows no kinks: at the default steps of configs/north1975-exact.toml the small cap's edge
+/// moved 4.1 degrees between neighbouring points near its fold (a visible corner in the
+/// picture). Ordinary steps now move the edge at most 2 degrees; only corner crossings (where
+/// ice first appears at the pole or covers the equator) may jump.
+#[test]
+fn branch_points_follow_the_ice_edge_closely_at_default_steps() {
+    let cfg = load(&config_text("north1975-exact.toml"), &[]);
+    let spec = cfg.spec.branches.as_ref().expect("[branches] section");
+    let fam = Controlled::new(&cfg, "insolation.solar_constant").unwrap();
+    let opts = ContinuationOptions::from_spec(spec, 1e-9);
+    let set = all_branches(&fam, opts).unwrap();
+    let m = fam.base_model();
+    let mut checked = 0;
+    for b in &set.branches {
+        let edges: Vec<f64> = b.points.iter().map(|p| m.ice_edges(&p.state).0).collect();
+        for w in edges.windows(2) {
+            let at_end = |e: f64| !(1e-6..90.0 - 1e-6).contains(&e);
+            if at_end(w[0]) != at_end(w[1]) {
+                continue; // a corner crossing
+            }
+            checked += 1;
+            assert!(
+                (w[1] - w[0]).abs() <= 2.0 + 1e-9,
+                "ice edge moved from {} to {} degrees between neighbouring points",
+                w[0],
+                w[1]
+            );
+        }
+    }
+    assert!(checked > 100, "only {checked} steps checked");
+}
+
 /// Closed-form Q(x_s) of Budyko's relaxation model with edge coalbedo weight `theta`.
 ///
 /// Reference: Budyko (1969, Tellus 21, 611-619): integrating `0 = Q S c - (A + B T) + gamma

@@ -395,4 +395,6 @@ pub struct RawRegimes {
     pub spacing: Option<String>,
     /// Spacing of the rows' values of `row_control`: "linear" or "log".
     pub row_spacing: Option<String>,
+    /// Ice-edge latitude at and poleward of which a partial cap counts as small, degrees north.
+    pub small_cap_min_latitude_deg: Option<f64>,
 }

@@ -290,6 +290,12 @@ const REGIMES: &[Key] = &[
     whole("regimes.max_points", 5000, 10.0, 1e6),
     Key::choice("regimes.spacing", "linear", SPACING),
     Key::choice("regimes.row_spacing", "linear", SPACING),
+    Key::number(
+        "regimes.small_cap_min_latitude_deg",
+        "degree",
+        super::spec::DEFAULT_SMALL_CAP_MIN_LATITUDE,
+        Range::AboveUpTo(0.0, 90.0),
+    ),
 ];
 
 /// Every section in config order.

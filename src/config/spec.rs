@@ -304,6 +304,10 @@ pub struct EnsembleSpec {
 
 // ---- [regimes] (the 2-D regime map) ----
 
+/// Default ice-edge latitude at and poleward of which a partial cap counts as small, degrees
+/// north (`regimes.small_cap_min_latitude_deg`).
+pub const DEFAULT_SMALL_CAP_MIN_LATITUDE: f64 = 60.0;
+
 /// `[regimes]`, validated.
 #[derive(Debug, Clone, PartialEq)]
 pub struct RegimesSpec {
@@ -333,6 +337,9 @@ pub struct RegimesSpec {
     pub spacing: AxisSpacing,
     /// Spacing of the rows' values of `row_control`.
     pub row_spacing: AxisSpacing,
+    /// Ice-edge latitude at and poleward of which a partial cap counts as small rather than
+    /// large, degrees north: a naming convention for the map's classes, not a bifurcation.
+    pub small_cap_min_latitude: f64,
 }
 
 impl RegimesSpec {

@@ -135,6 +135,11 @@ pub(super) fn regimes_spec(
         max_step: c.num("regimes.max_step", &mut r.max_step)?,
         spacing: axis_spacing(c, "regimes.spacing", &mut r.spacing, (from, to))?,
         row_spacing: axis_spacing(c, "regimes.row_spacing", &mut r.row_spacing, (row_from, row_to))?,
+        // The default is not written back, so configs without the key resolve as before.
+        small_cap_min_latitude: match r.small_cap_min_latitude_deg {
+            None => super::spec::DEFAULT_SMALL_CAP_MIN_LATITUDE,
+            Some(_) => c.num("regimes.small_cap_min_latitude_deg", &mut r.small_cap_min_latitude_deg)?,
+        },
     }))
 }
 

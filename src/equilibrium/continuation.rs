@@ -49,6 +49,14 @@ const MAX_CORRECTOR_ITERATIONS: usize = 12;
 const MIN_TANGENT_COSINE: f64 = 0.9;
 /// Steps below this fraction of the first step trigger the corner crossing.
 const CORNER_FRACTION: f64 = 1e-3;
+/// Largest move of the northern ice edge in one ordinary step, degrees of latitude: where the
+/// edge moves fast against the scaled metric (a small cap near its fold, where a small change
+/// of state moves the edge many degrees) the points of a branch stay close enough that the
+/// curve drawn through them in (control, ice edge) shows no kinks.
+const MAX_EDGE_STEP_DEG: f64 = 2.0;
+/// Steps at or below this fraction of the first step are not shortened for the ice edge's
+/// sake (so the rule never drives a step down to the corner crossing).
+const EDGE_STEP_FLOOR: f64 = 0.1;
 /// Turning points of a branch closer than this many band widths in ice edge form one cluster
 /// (the sub-band wiggles of the `step` albedo's edge rule span about one band: measured 0.6
 /// to 0.9 band at 90 and 720 bands).
@@ -834,6 +842,17 @@ impl<'a> Tracer<'a> {
                         MIN_TANGENT_COSINE
                     } * chord
             });
+            // A step that moves the ice edge too far is shortened (above a floor), so the
+            // branch is sampled finely where its edge moves fast.
+            let edge_far = stepped.as_ref().is_some_and(|(nd, _)| {
+                ds > EDGE_STEP_FLOOR * self.opts.step
+                    && (self.model.ice_edges(&nd.t).0 - self.model.ice_edges(&cur.t).0).abs()
+                        > MAX_EDGE_STEP_DEG
+            });
+            if edge_far {
+                ds *= 0.5;
+                continue;
+            }
             if let Some((nd, iters)) = stepped {
                 let cosang = self.metric.tan(&nd.tan, &cur.tan);
                 if cosang >= MIN_TANGENT_COSINE || ds <= corner_step {

@@ -13,8 +13,9 @@ use super::branches::all_branches;
 use super::continuation::{Branch, ContinuationError, ContinuationOptions};
 use super::control::Controlled;
 
-/// Ice-edge latitude (degrees north) at and above which a partial ice cap counts as small.
-pub const SMALL_CAP_MIN_LATITUDE: f64 = 60.0;
+/// Default ice-edge latitude (degrees north) at and above which a partial ice cap counts as
+/// small (`regimes.small_cap_min_latitude_deg`). A naming convention, not a bifurcation.
+pub const SMALL_CAP_MIN_LATITUDE: f64 = crate::config::spec::DEFAULT_SMALL_CAP_MIN_LATITUDE;
 
 /// Edge latitudes within this of 90 (or 0) degrees count as ice free (or snowball), degrees.
 const EDGE_END_TOLERANCE: f64 = 1e-6;
@@ -52,13 +53,20 @@ impl Kind {
         Kind::Asymmetric,
     ];
 
-    /// The kind of an equilibrium with northern ice edge at `phi` degrees north.
+    /// The kind of an equilibrium with northern ice edge at `phi` degrees north, small and
+    /// large caps split at the default [`SMALL_CAP_MIN_LATITUDE`].
     pub fn of_edge(phi: f64) -> Kind {
+        Kind::of_edge_split(phi, SMALL_CAP_MIN_LATITUDE)
+    }
+
+    /// The kind of an equilibrium with northern ice edge at `phi` degrees north, caps with
+    /// their edge at or poleward of `split` degrees north counting as small.
+    pub fn of_edge_split(phi: f64, split: f64) -> Kind {
         if phi >= 90.0 - EDGE_END_TOLERANCE {
             Kind::IceFree
         } else if phi <= EDGE_END_TOLERANCE {
             Kind::Snowball
-        } else if phi >= SMALL_CAP_MIN_LATITUDE {
+        } else if phi >= split {
             Kind::SmallCap
         } else {
             Kind::LargeCap
@@ -81,15 +89,16 @@ impl Kind {
         }
     }
 
-    /// One-line definition, for file attributes and documentation.
-    pub fn definition(self) -> String {
+    /// One-line definition, for file attributes and documentation; `split` is the small/large
+    /// cap split latitude, degrees north.
+    pub fn definition(self, split: f64) -> String {
         match self {
             Kind::IceFree => "ice_free: northern ice edge at 90 degrees north (no ice)".into(),
             Kind::SmallCap => format!(
-                "small_cap: ice edge at or poleward of {SMALL_CAP_MIN_LATITUDE} degrees north, below 90"
+                "small_cap: ice edge at or poleward of {split} degrees north, below 90"
             ),
             Kind::LargeCap => {
-                format!("large_cap: ice edge equatorward of {SMALL_CAP_MIN_LATITUDE} degrees north, above 0")
+                format!("large_cap: ice edge equatorward of {split} degrees north, above 0")
             }
             Kind::Snowball => "snowball: ice edge at 0 degrees (ice everywhere)".into(),
             Kind::Asymmetric => {
@@ -174,15 +183,34 @@ fn vertices(branch: &Branch, edge: &dyn Fn(&[f64], f64) -> f64) -> Vec<Vertex> {
     out
 }
 
+/// The kind at fraction `f` of the segment from `a` to `z`: the ice edge interpolated, except
+/// that a segment between a fold and an ice-free (or snowball) point lies on the ice-free (or
+/// snowball) piece whole: a corner fold's edge, located to the fold tolerance, sits a hair
+/// short of 90 (or 0) degrees, and interpolating it would name an ice-free state a small cap.
+fn segment_kind(a: Vertex, z: Vertex, f: f64, split: f64) -> Kind {
+    let end_kind = |v: Vertex| match Kind::of_edge_split(v.edge, split) {
+        k @ (Kind::IceFree | Kind::Snowball) if !v.fold => Some(k),
+        _ => None,
+    };
+    let whole = match (a.fold, z.fold) {
+        (true, false) => end_kind(z),
+        (false, true) => end_kind(a),
+        _ => None,
+    };
+    whole.unwrap_or_else(|| Kind::of_edge_split(a.edge + f * (z.edge - a.edge), split))
+}
+
 /// Count and class the equilibria of `branches` at each value of `columns`.
 ///
-/// `edge(state, p)` is the northern ice-edge latitude (degrees) of `state` at control `p`.
+/// `edge(state, p)` is the northern ice-edge latitude (degrees) of `state` at control `p`;
+/// caps with their edge at or poleward of `split` (degrees north) count as small.
 /// Each segment counts a column value in `[low end, high end)`, and the branch's last
 /// point also at its own value, so a value is counted once per crossing.
 pub fn classify(
     branches: &[Branch],
     columns: &[f64],
     edge: &dyn Fn(&[f64], f64) -> f64,
+    split: f64,
 ) -> (Vec<u32>, Vec<u32>, Vec<u8>) {
     let n = columns.len();
     let (mut stable, mut all, mut kinds) = (vec![0u32; n], vec![0u32; n], vec![0u8; n]);
@@ -206,7 +234,7 @@ pub fn classify(
                 all[i] += 1;
                 if is_stable {
                     stable[i] += 1;
-                    kinds[i] |= Kind::of_edge(a.edge + f * (z.edge - a.edge)).bit();
+                    kinds[i] |= segment_kind(a, z, f, split).bit();
                 }
             }
         }
@@ -215,12 +243,14 @@ pub fn classify(
 }
 
 /// Trace every branch of the family `fam` over `opts`' range and class the equilibria at
-/// `columns`. `row_value` is only recorded.
+/// `columns`, small and large caps split at `split` degrees north. `row_value` is only
+/// recorded.
 pub fn regime_row(
     fam: &Controlled,
     opts: ContinuationOptions,
     columns: &[f64],
     row_value: f64,
+    split: f64,
 ) -> Result<RegimeRow, ContinuationError> {
     let set = all_branches(fam, opts)?;
     // A branch that ends stuck leaves this row's map incomplete beyond that control: say so
@@ -251,9 +281,9 @@ pub fn regime_row(
         base.ice_edges(state).0
     };
     let (sym, asym) = set.branches.split_at(set.asymmetric_from);
-    let (mut stable, mut equilibria, mut kinds) = classify(sym, columns, &edge);
+    let (mut stable, mut equilibria, mut kinds) = classify(sym, columns, &edge, split);
     // Asymmetric equilibria are a kind of their own whatever their edges.
-    let (s2, e2, k2) = classify(asym, columns, &edge);
+    let (s2, e2, k2) = classify(asym, columns, &edge, split);
     for i in 0..columns.len() {
         stable[i] += s2[i];
         equilibria[i] += e2[i];
@@ -407,6 +437,41 @@ pub struct RegimeMap {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// A stable segment from a corner fold (where the cap meets the pole, located a hair
+    /// short of 90 degrees) to an ice-free point is ice free, not a small cap; the same at the
+    /// equator for the snowball. Interpolating the edge named it a small cap (one cell of the
+    /// classic map at D = 0.425, S0 = 1385 W m-2 lost its ice-free class).
+    #[test]
+    fn a_segment_from_a_corner_fold_to_an_ice_free_point_is_ice_free() {
+        let v = |edge: f64, fold: bool| Vertex {
+            p: 0.0,
+            edge,
+            leading: -1.0,
+            fold,
+        };
+        let corner = v(90.0 - 1e-4, true);
+        let free = v(90.0, false);
+        for f in [0.0, 0.3, 0.999] {
+            assert_eq!(segment_kind(corner, free, f, 60.0), Kind::IceFree);
+            assert_eq!(segment_kind(free, corner, f, 60.0), Kind::IceFree);
+            assert_eq!(
+                segment_kind(v(1e-4, true), v(0.0, false), f, 60.0),
+                Kind::Snowball
+            );
+        }
+        // Elsewhere the edge is interpolated.
+        assert_eq!(segment_kind(v(89.0, false), free, 0.5, 60.0), Kind::SmallCap);
+        assert_eq!(segment_kind(corner, v(89.8, false), 0.5, 60.0), Kind::SmallCap);
+        assert_eq!(
+            segment_kind(v(50.0, false), v(70.0, false), 0.4, 60.0),
+            Kind::LargeCap
+        );
+        assert_eq!(
+            segment_kind(v(50.0, false), v(70.0, false), 0.4, 55.0),
+            Kind::SmallCap
+        );
+    }
 
     #[test]
     fn kinds_follow_the_edge_thresholds() {

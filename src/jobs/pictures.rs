@@ -857,7 +857,7 @@ fn regimes_map(r: &NcReader, title: &str) -> Result<HeatMap, Error> {
     let split = r.attr_f64("small_cap_min_latitude")?;
     let note = split.map(|v| {
         format!(
-            "Small and large caps are named by their ice edge, poleward or equatorward of {v:.0}°N: a naming convention, not a tipping line. Only the white-cased lines are folds."
+            "Small and large caps are named by their ice edge, poleward or equatorward of {v}°N (regimes.small_cap_min_latitude_deg): a naming convention, not a tipping line. Only the white-cased lines are folds."
         )
     });
     Ok(HeatMap {

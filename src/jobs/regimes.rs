@@ -118,7 +118,7 @@ fn rows(
         if log {
             fam = fam.in_log();
         }
-        let mut row = regime_row(&fam, copts, &row_columns, q)
+        let mut row = regime_row(&fam, copts, &row_columns, q, spec.small_cap_min_latitude)
             .map_err(|e| continuation_error(e, &spec.row_control, q))?;
         for f in &mut row.folds {
             f.control = fam.key_value(f.control);

@@ -10,7 +10,7 @@ use super::Attr;
 use super::OutputError;
 use crate::config::spec::RegimesSpec;
 use crate::equilibrium::control::control_units;
-use crate::equilibrium::regimes::{Kind, RegimeMap, SMALL_CAP_MIN_LATITUDE};
+use crate::equilibrium::regimes::{Kind, RegimeMap};
 use crate::model::Model;
 use std::path::Path;
 
@@ -108,7 +108,7 @@ pub fn write_regimes_with(
             "1",
             &format!(
                 "1 if a stable equilibrium of this kind exists ({})",
-                kind.definition()
+                kind.definition(spec.small_cap_min_latitude)
             ),
             None,
         );
@@ -204,8 +204,11 @@ pub fn write_regimes_with(
     w.set_attr_str("row_control_units", u2)?;
     w.set_attr_f64("row_control_from", spec.row_from)?;
     w.set_attr_f64("row_control_to", spec.row_to)?;
-    w.set_attr_f64("small_cap_min_latitude", SMALL_CAP_MIN_LATITUDE)?;
-    let defs: Vec<String> = Kind::ALL.iter().map(|k| k.definition()).collect();
+    w.set_attr_f64("small_cap_min_latitude", spec.small_cap_min_latitude)?;
+    let defs: Vec<String> = Kind::ALL
+        .iter()
+        .map(|k| k.definition(spec.small_cap_min_latitude))
+        .collect();
     w.set_attr_str(
         "kind_definitions",
         &format!(

@@ -145,7 +145,7 @@ impl<'m> RunWriter<'m> {
             .unwrap_or_default();
         for key in &params {
             let mut a = attrs(
-                crate::forcing::units_of(key),
+                crate::forcing::column_units(key).unwrap_or_else(|| crate::config::keys::units(key)),
                 &format!("value of config key {key} applied by the forcing history"),
                 None,
             );
