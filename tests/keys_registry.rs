@@ -238,6 +238,28 @@ fn kind_keys_name_kinds_their_section_allows() {
     }
     let names: Vec<&str> = icefold::physics::longwave::KINDS.iter().map(|k| k.name).collect();
     assert_eq!(names, icefold::physics::longwave::NAMES);
+    let names: Vec<&str> = icefold::physics::transport::KINDS
+        .iter()
+        .map(|k| k.name)
+        .collect();
+    assert_eq!(names, icefold::physics::transport::NAMES);
+}
+
+/// Each kind declared beside its physics names itself, and only itself, on each of its keys,
+/// and those keys are in the registry under the kind's section.
+#[test]
+fn kinds_beside_their_physics_own_their_keys() {
+    fn check<T>(section: &str, kinds: &[icefold::registry::Kind<T>]) {
+        for kind in kinds {
+            for key in kind.keys {
+                assert_eq!(key.kinds, [kind.name], "{}", key.name);
+                assert_eq!(key.section(), section, "{}", key.name);
+                assert!(keys::get(key.name).is_some(), "{} not in the registry", key.name);
+            }
+        }
+    }
+    check("longwave", icefold::physics::longwave::KINDS);
+    check("transport", icefold::physics::transport::KINDS);
 }
 
 /// The keys a forcing history may vary (forcing::KEYS, each with its role in the drivers) are
@@ -245,9 +267,49 @@ fn kind_keys_name_kinds_their_section_allows() {
 /// does not import config (no import cycle), and this keeps the two in step.
 #[test]
 fn forcing_keys_are_the_registrys_time_varying_keys() {
-    let mut registry: Vec<&str> = icefold::config::keys::time_varying_keys().map(|k| k.name).collect();
+    let mut registry: Vec<&str> = icefold::config::keys::time_varying_keys()
+        .map(|k| k.name)
+        .collect();
     let mut forcing: Vec<&str> = icefold::forcing::KEYS.to_vec();
     registry.sort_unstable();
     forcing.sort_unstable();
     assert_eq!(registry, forcing);
+}
+
+/// The check across keys of a transport kind (`D(x) >= 0`, declared in
+/// physics/transport/diffusive.rs) refuses a bad value in a file, by `--set` and as a control
+/// value of a built spec, with the same message naming the key.
+#[test]
+fn diffusivity_p2_keeping_d_non_negative_is_checked_everywhere() {
+    let dir = tempdir("kinds-p2");
+    std::fs::write(dir.join("bad.toml"), "[transport]\ndiffusivity_p2 = 3.0\n").unwrap();
+    std::fs::write(dir.join("ok.toml"), "[transport]\ndiffusivity_p2 = 0.5\n").unwrap();
+    let allowed = "allowed: -1 to 2 (keeps D(x) >= 0)";
+    for args in [
+        &["check", "bad.toml"][..],
+        &["check", "ok.toml", "--set", "transport.diffusivity_p2=-1.5"][..],
+    ] {
+        let out = icefold(&dir, args);
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(2), "{args:?}: {err}");
+        assert!(
+            err.contains("key `transport.diffusivity_p2`") && err.contains(allowed),
+            "{err}"
+        );
+    }
+    let ok = icefold(&dir, &["check", "ok.toml"]);
+    assert_eq!(ok.status.code(), Some(0));
+    assert!(String::from_utf8_lossy(&ok.stdout).contains("diffusivity_p2 = 0.5"));
+    // The setter of a built spec (controls and ensemble members) applies the same check.
+    let cfg = icefold::config::load(&dir.join("ok.toml"), &[]).unwrap();
+    let model = &cfg.spec.model;
+    assert_eq!(
+        keys::set_model_value(model, "transport.diffusivity_p2", 2.5, 1.0).unwrap_err(),
+        allowed
+    );
+    let set = keys::set_model_value(model, "transport.diffusivity_p2", 1.5, 1.0).unwrap();
+    assert_eq!(
+        set.transport,
+        icefold::physics::transport::TransportForm::Diffusive { d0: 0.55, d2: 1.5 }
+    );
 }

@@ -76,7 +76,9 @@ impl Transport {
     }
 
     /// Whether the temperature stays continuous across the ice edge (diffusion), so the `step`
-    /// albedo may interpolate the edge; otherwise it uses the edge-balance rule.
+    /// albedo may interpolate the edge; otherwise it uses the edge-balance rule, whose
+    /// constants `Model::balance` derives for relaxation only (a new kind that answers `false`
+    /// needs its own there).
     pub fn continuous(&self) -> bool {
         match self {
             Transport::Diffusive { .. } => true,
