@@ -53,7 +53,6 @@ fn count(w: &Workload) -> icefold::tally::Tally {
         "regimes" => {
             let opts = RegimesOptions {
                 threads: Some(THREADS),
-                ..Default::default()
             };
             black_box(run_regimes(&cfg, opts).unwrap());
         }
@@ -66,7 +65,7 @@ fn count(w: &Workload) -> icefold::tally::Tally {
         }
         _ => {
             let out = std::env::temp_dir().join(format!("icefold-bench-count-{}.nc", std::process::id()));
-            black_box(icefold::jobs::run::run_to_file(&cfg, &out, "bench", false).unwrap());
+            black_box(icefold::jobs::run::run_to_file(&cfg, &out, "bench").unwrap());
             let _ = std::fs::remove_file(&out);
         }
     }

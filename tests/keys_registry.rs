@@ -245,7 +245,9 @@ fn kind_keys_name_kinds_their_section_allows() {
 /// does not import config (no import cycle), and this keeps the two in step.
 #[test]
 fn forcing_keys_are_the_registrys_time_varying_keys() {
-    let mut registry: Vec<&str> = icefold::config::keys::time_varying_keys().map(|k| k.name).collect();
+    let mut registry: Vec<&str> = icefold::config::keys::time_varying_keys()
+        .map(|k| k.name)
+        .collect();
     let mut forcing: Vec<&str> = icefold::forcing::KEYS.to_vec();
     registry.sort_unstable();
     forcing.sort_unstable();

@@ -138,7 +138,10 @@ pub(super) fn regimes_spec(
         // The default is not written back, so configs without the key resolve as before.
         small_cap_min_latitude: match r.small_cap_min_latitude_deg {
             None => super::spec::DEFAULT_SMALL_CAP_MIN_LATITUDE,
-            Some(_) => c.num("regimes.small_cap_min_latitude_deg", &mut r.small_cap_min_latitude_deg)?,
+            Some(_) => c.num(
+                "regimes.small_cap_min_latitude_deg",
+                &mut r.small_cap_min_latitude_deg,
+            )?,
         },
     }))
 }
