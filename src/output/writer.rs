@@ -876,19 +876,7 @@ impl NcWriter {
             })?;
         super::close_on_exec(&file);
         Ok(NcWriter {
-            inner: Inner {
-                vars: HashMap::new(),
-                dims: HashMap::new(),
-                file,
-                path: target.to_path_buf(),
-                filters: if level == 0 {
-                    Vec::new()
-                } else {
-                    vec![Filter::shuffle(), Filter::deflate(level)]
-                },
-                packer: Packer::new(level),
-                key: String::new(),
-            },
+            inner: Inner::new(file, target, level),
             temp,
         })
     }
@@ -1059,6 +1047,24 @@ fn write_attr(loc: &Location, name: &str, value: &Attr) -> hdf5::Result<()> {
 }
 
 impl Inner {
+    /// A freshly created `file` for `target`, its chunked variables deflated at `level`
+    /// (shuffle + deflate, or no filters at level 0).
+    fn new(file: File, target: &Path, level: u8) -> Inner {
+        Inner {
+            vars: HashMap::new(),
+            dims: HashMap::new(),
+            file,
+            path: target.to_path_buf(),
+            filters: if level == 0 {
+                Vec::new()
+            } else {
+                vec![Filter::shuffle(), Filter::deflate(level)]
+            },
+            packer: Packer::new(level),
+            key: String::new(),
+        }
+    }
+
     fn h5err(&self, object: String) -> impl FnOnce(hdf5::Error) -> OutputError + '_ {
         move |source| OutputError::Hdf5 {
             path: self.path.clone(),
@@ -1750,19 +1756,7 @@ impl NcWriter {
                 source,
             })?;
         Ok(NcWriter {
-            inner: Inner {
-                vars: HashMap::new(),
-                dims: HashMap::new(),
-                file,
-                path: target.to_path_buf(),
-                filters: if level == 0 {
-                    Vec::new()
-                } else {
-                    vec![Filter::shuffle(), Filter::deflate(level)]
-                },
-                packer: Packer::new(level),
-                key: String::new(),
-            },
+            inner: Inner::new(file, target, level),
             // Nothing on disk to delete.
             temp: TempFile {
                 path: target.to_path_buf(),
